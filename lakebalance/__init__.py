@@ -1,0 +1,43 @@
+"""lakebalance: a defensible daily water balance of a lake or reservoir from its gauge records.
+
+The public API is re-exported here lazily, so that ``import lakebalance`` (and the command line's
+``--help``) stay fast.
+"""
+
+from __future__ import annotations
+
+import importlib
+from typing import Any
+
+__version__ = "0.1.0"
+
+# name -> module that defines it
+_EXPORTS = {
+    "load_site": "lakebalance.api",
+    "load_records": "lakebalance.api",
+    "Site": "lakebalance.config",
+    "Records": "lakebalance.records",
+    "Finding": "lakebalance.records",
+    "RowAccount": "lakebalance.records",
+    "LakebalanceError": "lakebalance.errors",
+    "InputError": "lakebalance.errors",
+    "ConfigError": "lakebalance.errors",
+    "UnitError": "lakebalance.errors",
+    "FitError": "lakebalance.errors",
+    "RangeError": "lakebalance.errors",
+}
+
+__all__ = ["__version__", *_EXPORTS]
+
+
+def __getattr__(name: str) -> Any:
+    module = _EXPORTS.get(name)
+    if module is None:
+        raise AttributeError(f"module 'lakebalance' has no attribute {name!r}")
+    value = getattr(importlib.import_module(module), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted(__all__)

@@ -1,0 +1,121 @@
+"""Every error and warning that lakebalance raises, in one place.
+
+The command line turns a :class:`LakebalanceError` into one line on stderr,
+``error: <file>[:<line>[:<column>]]: <what is wrong>``, and exit code 2.
+Any other exception is a bug in lakebalance (exit code 1).
+"""
+
+from __future__ import annotations
+
+import difflib
+from collections.abc import Iterable
+from pathlib import Path
+
+__all__ = [
+    "LakebalanceError",
+    "InputError",
+    "ConfigError",
+    "UnitError",
+    "FitError",
+    "RangeError",
+    "LakebalanceWarning",
+    "DataQualityWarning",
+    "ExtrapolationWarning",
+    "ApproximationWarning",
+    "suggest",
+]
+
+
+class LakebalanceError(Exception):
+    """Base of every error lakebalance raises on purpose.
+
+    Parameters
+    ----------
+    message : str
+        What is wrong, in plain words.
+    file : str or Path, optional
+        The file at fault.
+    line : int, optional
+        1-based line (or spreadsheet row) in ``file``.
+    column : int or str, optional
+        1-based column number or column name in ``file``.
+    """
+
+    def __init__(
+        self,
+        message: str,
+        *,
+        file: str | Path | None = None,
+        line: int | None = None,
+        column: int | str | None = None,
+    ) -> None:
+        super().__init__(message)
+        self.message = message
+        self.file = None if file is None else str(file)
+        self.line = line
+        self.column = column
+
+    def location(self) -> str:
+        """``file[:line[:column]]``, or an empty string when no file is known."""
+        if self.file is None:
+            return ""
+        loc = self.file
+        if self.line is not None:
+            loc += f":{self.line}"
+            if self.column is not None:
+                loc += f":{self.column}"
+        elif self.column is not None:
+            loc += f": column {self.column}"
+        return loc
+
+    def one_line(self) -> str:
+        """The message the CLI prints: ``error: <file>[:<line>[:<column>]]: <what>``."""
+        loc = self.location()
+        text = " ".join(self.message.split("\n"))
+        return f"error: {loc}: {text}" if loc else f"error: {text}"
+
+    def __str__(self) -> str:  # pragma: no cover - trivial
+        loc = self.location()
+        return f"{loc}: {self.message}" if loc else self.message
+
+
+class InputError(LakebalanceError):
+    """A data file (gauge series, survey, gaugings) cannot be used as it is."""
+
+
+class ConfigError(LakebalanceError):
+    """The site file is wrong: unknown key, wrong type, missing key, bad value."""
+
+
+class UnitError(LakebalanceError):
+    """A declared unit is unknown or of the wrong dimension for its series."""
+
+
+class FitError(LakebalanceError):
+    """A fit cannot be made from the data given (too few points, no spread, no convergence)."""
+
+
+class RangeError(LakebalanceError):
+    """A value lies outside a relation's range and the declared policy is ``error``."""
+
+
+class LakebalanceWarning(UserWarning):
+    """Base of lakebalance's warnings (raise with ``stacklevel=2``)."""
+
+
+class DataQualityWarning(LakebalanceWarning):
+    """Something in the records is doubtful but usable."""
+
+
+class ExtrapolationWarning(LakebalanceWarning):
+    """A relation (rating, storage) was used outside the range it was built on."""
+
+
+class ApproximationWarning(LakebalanceWarning):
+    """A method is an approximation whose accuracy the user should weigh."""
+
+
+def suggest(word: str, choices: Iterable[str]) -> str:
+    """A ``" (did you mean 'x'?)"`` suffix naming the nearest valid choice, or ``""``."""
+    match = difflib.get_close_matches(word, list(choices), n=1, cutoff=0.6)
+    return f" (did you mean '{match[0]}'?)" if match else ""

@@ -1,0 +1,133 @@
+"""The loaded gauge records of one site: one daily table in SI, with QA findings and row accounting.
+
+:class:`Records` is a pure data object; ``lakebalance.io`` builds it from the files of a site.
+Columns of :attr:`Records.daily` are series keys: the role (``"stage"``, ``"rain"``) when a role has
+one series, ``"<role>:<name>"`` (``"inflow:north_creek"``) when it has several. Values are in the
+internal units of :data:`lakebalance.units.INTERNAL_UNITS` for the role's kind: stage in m, flows in
+m³/s (daily mean), depths in m per day, temperatures in °C, humidity in %, wind in m/s, solar
+radiation in MJ m⁻² d⁻¹, sunshine in h per day. A missing day is NaN, never zero.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, Literal
+
+if TYPE_CHECKING:  # pragma: no cover
+    import pandas as pd
+
+    from .config import Site
+
+__all__ = ["Finding", "RowAccount", "SeriesInfo", "Records"]
+
+FindingKind = Literal[
+    "gap",
+    "duplicate",
+    "conflicting_duplicate",
+    "out_of_order",
+    "non_numeric",
+    "negative",
+    "out_of_range",
+    "spike",
+    "flatline",
+    "low_coverage",
+    "implausible_units",
+    "unparsed_date",
+    "empty",
+    "outside_storage",
+]
+
+
+@dataclass(frozen=True)
+class Finding:
+    """One QA finding on one series.
+
+    ``first`` and ``last`` are ISO dates (or timestamps) of the affected readings; ``count`` how
+    many readings or days; ``action`` what was done (``"kept, flagged"``, ``"set missing"``,
+    ``"merged"``, ``"rejected"``, ``"none"``); ``detail`` plain words, e.g. the tokens seen.
+    """
+
+    series: str
+    kind: str
+    first: str | None
+    last: str | None
+    count: int
+    action: str
+    detail: str = ""
+
+
+@dataclass(frozen=True)
+class RowAccount:
+    """Row accounting of one input file: ``read == used + flagged + rejected`` always holds."""
+
+    series: str
+    file: str
+    read: int
+    used: int
+    flagged: int
+    rejected: int
+
+    def __post_init__(self) -> None:
+        if self.read != self.used + self.flagged + self.rejected:
+            raise ValueError(
+                f"row accounting of {self.file} does not add up: {self.read} read != "
+                f"{self.used} used + {self.flagged} flagged + {self.rejected} rejected"
+            )
+
+
+@dataclass(frozen=True)
+class SeriesInfo:
+    """What was loaded for one series key."""
+
+    key: str
+    role: str
+    name: str
+    file: str
+    declared_units: str
+    internal_units: str
+    statistic: str
+    first: str | None = None  # first date with a value
+    last: str | None = None  # last date with a value
+    days: int = 0  # days in the period first..last
+    missing: int = 0  # days without a value in that period
+    flagged: int = 0  # days whose value is kept but flagged
+    rejected: int = 0  # input rows rejected
+
+
+@dataclass(frozen=True)
+class Records:
+    """Daily records of a site (see the module docstring for columns and units).
+
+    ``flags`` has the same index and columns as ``daily``: True where the daily value is kept but
+    doubtful (a spike, a flat-line, low coverage). ``subdaily_stage`` holds the raw stage readings
+    (m, timestamps in the site's zone) when stage came sub-daily, for balance terms that need the
+    stage at day boundaries; None otherwise.
+    """
+
+    site: Site
+    daily: pd.DataFrame
+    flags: pd.DataFrame
+    series: tuple[SeriesInfo, ...] = ()
+    findings: tuple[Finding, ...] = ()
+    accounting: tuple[RowAccount, ...] = ()
+    subdaily_stage: pd.Series | None = field(default=None, repr=False)
+
+    def keys(self, role: str) -> list[str]:
+        """Series keys of ``role`` in the order of the site file."""
+        return [s.key for s in self.series if s.role == role]
+
+    def has(self, role: str) -> bool:
+        """True when at least one series of ``role`` was loaded."""
+        return bool(self.keys(role))
+
+    def total(self, role: str) -> pd.Series:
+        """Sum of all series of ``role`` per day; NaN on a day where any of them is missing."""
+        keys = self.keys(role)
+        if not keys:
+            raise KeyError(f"no series of role {role!r}")
+        return (
+            self.daily[keys]
+            .sum(axis=1, min_count=len(keys))
+            .where(self.daily[keys].notna().all(axis=1))
+            .rename(role)
+        )
