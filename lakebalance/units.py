@@ -289,7 +289,6 @@ def factor(unit_from: str, unit_to: str) -> float:
     >>> round(factor("acre_foot", "m**3"), 2)
     1233.49
     """
-    ureg = registry()
     try:
         return float((parse_unit(unit_from) / parse_unit(unit_to)).to("").magnitude)
     except UnitError:
