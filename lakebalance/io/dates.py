@@ -1,0 +1,157 @@
+"""Timestamps of gauge files: parsing (ISO, a declared format, day-first) and the site's day boundary.
+
+A reading belongs to the local calendar day of the site's ``timezone``. Zone-aware timestamps
+(``2021-03-04T10:00:00+02:00``, ``...Z``) are converted to that zone; naive ones are taken to be in
+``source_timezone`` (default: the site's zone) and converted likewise. The result is naive local
+time of the site, which is what the daily index is made of.
+"""
+
+from __future__ import annotations
+
+import re
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+from ..errors import ConfigError
+
+if TYPE_CHECKING:  # pragma: no cover
+    import pandas as pd
+
+__all__ = ["parse_timestamps", "to_site_time"]
+
+_AWARE = re.compile(r"(?:[zZ]|[+-]\d\d:?\d\d)\s*$")
+_ISO_START = re.compile(r"^\s*\d{4}-\d{1,2}-\d{1,2}")
+
+
+def _sample(strings: pd.Series, n: int = 200) -> list[str]:
+    nonnull = strings.dropna()
+    if len(nonnull) <= 2 * n:
+        return list(nonnull)
+    return list(nonnull.iloc[:n]) + list(nonnull.iloc[-n:])
+
+
+def parse_timestamps(
+    values: object,
+    *,
+    format: str | None = None,
+    dayfirst: bool = False,
+    time: object | None = None,
+    timezone: str = "UTC",
+    source_timezone: str | None = None,
+) -> tuple[pd.DatetimeIndex, np.ndarray]:
+    """Parse date (and optional time-of-day) cells to naive timestamps on the site's clock.
+
+    Parameters
+    ----------
+    values : array-like
+        Date or date-time cells: strings, or datetime objects (spreadsheets).
+    format : str, optional
+        ``strftime`` format of the strings (of date and time joined by one space when ``time`` is
+        given). Without it ISO 8601 is tried first, then a format inferred from the cells with
+        ``dayfirst``.
+    dayfirst : bool
+        ``03/04/2021`` is 3 April when True, 4 March when False.
+    time : array-like, optional
+        Time-of-day cells of a separate column.
+    timezone : str
+        IANA zone of the site (its midnight bounds a day).
+    source_timezone : str, optional
+        IANA zone of naive timestamps (default: ``timezone``).
+
+    Returns
+    -------
+    timestamps : pandas.DatetimeIndex
+        Naive local time of the site; NaT where a cell does not parse.
+    bad : numpy.ndarray of bool
+        True where a non-empty cell did not parse.
+
+    Notes
+    -----
+    Daylight-saving ambiguities of naive timestamps in a zone other than the site's are resolved
+    as standard time, and non-existent times are shifted forward (common practice, no source).
+    """
+    import pandas as pd
+
+    s = pd.Series(values) if not isinstance(values, pd.Series) else values.reset_index(drop=True)
+    if time is not None:
+        t = pd.Series(time).reset_index(drop=True)
+        if t.dtype == object:
+            t = t.map(lambda v: v.isoformat() if hasattr(v, "isoformat") else v)
+        d = s
+        if pd.api.types.is_datetime64_any_dtype(d) or d.map(type).eq(pd.Timestamp).any():
+            d = pd.to_datetime(d, errors="coerce").dt.strftime("%Y-%m-%d")
+        elif d.dtype == object:
+            d = d.map(lambda v: v.date().isoformat() if hasattr(v, "date") else v)
+        s = d.astype("string").str.strip() + " " + t.astype("string").str.strip()
+    empty = s.isna().to_numpy()
+    if pd.api.types.is_datetime64_any_dtype(s):
+        parsed = pd.DatetimeIndex(s)
+    else:
+        if s.dtype != object:
+            s = s.astype(object).where(~pd.Series(empty)).map(str, na_action="ignore")
+        sample = _sample(s)
+        if any(hasattr(v, "year") for v in sample):  # spreadsheet datetimes
+            parsed = pd.DatetimeIndex(
+                pd.to_datetime(s.map(_cell_text, na_action="ignore"), errors="coerce")
+            )
+        else:
+            if any(isinstance(v, str) and v != v.strip() for v in sample) or any(
+                isinstance(v, str) and not v.strip() for v in sample
+            ):
+                s = s.str.strip().replace("", np.nan)
+                empty = s.isna().to_numpy()
+                sample = _sample(s)
+            aware = any(_AWARE.search(str(v)) for v in sample)
+            if format is not None:
+                parsed = pd.DatetimeIndex(
+                    pd.to_datetime(s, format=format, errors="coerce", utc=aware)
+                )
+            else:
+                parsed = None
+                iso = sum(bool(_ISO_START.match(str(v))) for v in sample)
+                if sample and iso >= 0.5 * len(sample):
+                    parsed = pd.DatetimeIndex(
+                        pd.to_datetime(s, format="ISO8601", errors="coerce", utc=aware)
+                    )
+                if parsed is None or parsed.isna().sum() > empty.sum() + 0.5 * (~empty).sum():
+                    import warnings
+
+                    with warnings.catch_warnings():
+                        warnings.simplefilter("ignore")
+                        parsed = pd.DatetimeIndex(
+                            pd.to_datetime(s, dayfirst=dayfirst, errors="coerce", utc=aware)
+                        )
+    bad = np.asarray(parsed.isna()) & ~empty
+    return to_site_time(parsed, timezone, source_timezone), bad
+
+
+def _cell_text(v: object) -> object:
+    """A spreadsheet cell as something :func:`pandas.to_datetime` reads (datetimes pass)."""
+    return v if hasattr(v, "year") else str(v)
+
+
+def to_site_time(
+    timestamps: pd.DatetimeIndex, timezone: str, source_timezone: str | None = None
+) -> pd.DatetimeIndex:
+    """Naive local time of ``timezone`` for aware or naive (``source_timezone``) timestamps."""
+    import pandas as pd
+
+    idx = pd.DatetimeIndex(timestamps)
+    try:
+        if idx.tz is not None:
+            return idx.tz_convert(timezone).tz_localize(None)
+        if source_timezone and source_timezone != timezone:
+            local = idx.tz_localize(
+                source_timezone,
+                ambiguous=np.zeros(len(idx), dtype=bool),
+                nonexistent="shift_forward",
+            )
+            return local.tz_convert(timezone).tz_localize(None)
+    except Exception as exc:  # unknown zone names come from zoneinfo/pytz with several types
+        if "zone" in str(exc).lower() or "tz" in str(exc).lower():
+            raise ConfigError(
+                f"unknown time zone ({exc}); use an IANA name such as 'Europe/Paris'"
+            ) from None
+        raise
+    return idx
