@@ -205,6 +205,9 @@ class EvaporationOptions:
     wind_height: float = 2.0  # m, height of the wind measurement
     heat_storage_lag: float = 0.0  # days, first-order lag on available energy (0 = off)
     fill: Literal["climatology", "none"] = "climatology"  # missing weather days
+    angstrom_a: float = 0.25  # (-) Angstrom a_s, solar radiation from sunshine (FAO-56 eq. 35)
+    angstrom_b: float = 0.50  # (-) Angstrom b_s
+    clip_negative: bool = True  # set negative computed evaporation (condensation) to 0
 
 
 @dataclass(frozen=True)
@@ -221,9 +224,17 @@ class QAOptions:
 class FlagOptions:
     """``[flags]``: detection of unexplained residuals."""
 
-    outlier_threshold: float = 5.0  # robust z-score of an isolated outlier
-    penalty: float | None = None  # change-point penalty (default: BIC-like from the data)
-    min_run_days: int = 14  # shortest persistent run reported
+    outlier_threshold: float = 5.0  # robust z-score of an isolated outlier (-)
+    outlier_window: int = 31  # days in the centred rolling median/MAD window
+    spike_days: int = 3  # days within which a stage step that is undone counts as a spike
+    penalty: float | None = None  # change-point penalty, (m³/d)² (default: BIC-like from the data)
+    change_method: Literal["pelt", "binseg"] = "pelt"  # change-point search
+    min_run_days: int = 14  # shortest persistent run or level-shift segment reported (days)
+    run_threshold: float = 4.0  # z-score of a run's volume against the residual noise (-)
+    cusum_slack: float = 0.5  # CUSUM reference value k, in noise standard deviations (-)
+    cusum_threshold: float = 10.0  # CUSUM decision interval h, in noise standard deviations (-)
+    drift_min_days: int = 180  # shortest segment tested for a linear drift (days)
+    drift_alpha: float = 0.001  # significance level of the drift test (-)
 
 
 @dataclass(frozen=True)

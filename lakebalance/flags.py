@@ -1,0 +1,1253 @@
+"""Flags on the unexplained residual of the daily balance and on the stage record.
+
+The residual of a day is what the gauged terms do not explain (positive = an unexplained gain, m³
+per day). Four detectors look at it, each with a published method behind it:
+
+* **isolated outliers** — robust z-score on a rolling median and median absolute deviation
+  (the Hampel identifier; Hampel, 1974; Pearson, 2002), on the residual and on the daily stage
+  change;
+* **level shifts** — penalised change-point search on the segment means (PELT, Killick et al.,
+  2012, or binary segmentation, Scott & Knott, 1974) through the ``ruptures`` library (Truong et
+  al., 2020), with a BIC-like default penalty;
+* **persistent runs** — the two-sided tabular CUSUM (Page, 1954) on the standardised residual;
+* **drift** — a linear trend inside a segment, tested with Newey–West (1987) standard errors.
+
+Each candidate becomes a :class:`Flag` with its dates, volume (m³), depth over the lake (mm), a
+significance against the uncertainty band of the residual, and a plain-words hint at its likely
+cause with the evidence for it. Flags never alter the data: a user who accepts a proposed
+correction writes it as a ``[[correction]]`` table in the site file (applied when the records are
+read), and :class:`Flags` lists the corrections in force.
+
+All functions here are pure: they take pandas Series / DataFrames or ndarrays and return new
+objects.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, Literal
+
+import numpy as np
+
+from .config import Correction, FlagOptions
+
+if TYPE_CHECKING:  # pragma: no cover
+    import pandas as pd
+
+__all__ = [
+    "FlagKind",
+    "Flag",
+    "Flags",
+    "ChangePoints",
+    "MAD_TO_SIGMA",
+    "robust_sigma",
+    "rolling_robust_z",
+    "long_run_variance_ratio",
+    "change_points",
+    "cusum",
+    "cusum_runs",
+    "detect_flags",
+]
+
+FlagKind = Literal["spike", "datum_shift", "level_shift", "run", "drift"]
+
+#: Scale from the median absolute deviation to the standard deviation of a normal law (-),
+#: 1 / Φ⁻¹(3/4) (Hampel, 1974).
+MAD_TO_SIGMA = 1.482602218505602
+
+_Z95 = 1.959963984540054  # two-sided 95 % normal quantile (-)
+
+
+# --------------------------------------------------------------------------------------------
+# Pure detectors
+# --------------------------------------------------------------------------------------------
+def robust_sigma(values: np.ndarray) -> float:
+    """Standard deviation estimated from the median absolute deviation, ignoring NaN.
+
+    Parameters
+    ----------
+    values : ndarray
+        Values in any unit.
+
+    Returns
+    -------
+    float
+        ``1.4826 · median(|x − median(x)|)`` in the unit of ``values`` (NaN when empty).
+
+    Notes
+    -----
+    σ̂ = MAD / Φ⁻¹(3/4): consistent for the normal law and unaffected by up to half of the values
+    being outliers.
+
+    References
+    ----------
+    Hampel, F. R. (1974). The influence curve and its role in robust estimation. JASA 69, 383–393.
+    """
+    x = np.asarray(values, dtype=float)
+    x = x[np.isfinite(x)]
+    if x.size == 0:
+        return float("nan")
+    return float(MAD_TO_SIGMA * np.median(np.abs(x - np.median(x))))
+
+
+def rolling_robust_z(
+    values: np.ndarray | pd.Series, window: int = 31, *, floor: float | None = None
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Robust z-score of each value against its centred rolling median and MAD (Hampel identifier).
+
+    Parameters
+    ----------
+    values : ndarray or Series
+        A regular series (one value per day), any unit; NaN allowed.
+    window : int
+        Odd number of values in the centred window (-); an even number is made odd.
+    floor : float, optional
+        Smallest scale used, in the unit of ``values`` (default: half the robust standard
+        deviation of the deviations from the rolling median), so that a quiet spell does not
+        turn ordinary noise into outliers.
+
+    Returns
+    -------
+    z, median, scale : ndarray
+        ``z = (x − median) / scale`` (-), the rolling median and the rolling scale
+        ``max(1.4826 · MAD, floor)`` in the unit of ``values``.
+
+    Notes
+    -----
+    z_t = (x_t − med_{W(t)}) / (1.4826 · med_{W(t)} |x_s − med_{W(t)}|), W(t) the ``window`` values
+    centred on t (shrunk at the ends). The windows are built at once with a strided view, so no
+    loop runs over the values.
+
+    References
+    ----------
+    Hampel, F. R. (1974), JASA 69, 383–393. Pearson, R. K. (2002). Outliers in process modeling and
+    identification. IEEE Trans. Control Systems Technology 10(1), 55–63.
+    """
+    x = np.asarray(values, dtype=float)
+    window = max(3, int(window) | 1)
+    half = window // 2
+    padded = np.concatenate([np.full(half, np.nan), x, np.full(half, np.nan)])
+    windows = np.lib.stride_tricks.sliding_window_view(padded, window)
+    with np.errstate(all="ignore"), _quiet_nan_warnings():
+        med = np.nanmedian(windows, axis=1)
+        mad = np.nanmedian(np.abs(windows - med[:, None]), axis=1)
+    scale = MAD_TO_SIGMA * mad
+    if floor is None:
+        floor = 0.5 * robust_sigma(x - med)
+    if not np.isfinite(floor) or floor <= 0:
+        floor = np.finfo(float).tiny
+    scale = np.where(np.isfinite(scale), np.maximum(scale, floor), np.nan)
+    with np.errstate(all="ignore"):
+        z = (x - med) / scale
+    return z, med, scale
+
+
+def long_run_variance_ratio(values: np.ndarray, lags: int | None = None) -> float:
+    """Ratio of the long-run variance to the variance of a series (Bartlett kernel), at least 1.
+
+    Parameters
+    ----------
+    values : ndarray
+        Deviations from a fitted level (any unit); NaN are dropped.
+    lags : int, optional
+        Bartlett truncation lag (default ``floor(4 (n/100)^(2/9))``, Newey & West, 1994).
+
+    Returns
+    -------
+    float
+        ``1 + 2 Σ_{j=1..L} (1 − j/(L+1)) ρ_j`` (-), floored at 1.
+
+    Notes
+    -----
+    The variance of a mean of n autocorrelated values is about ratio · σ² / n; scaling a
+    change-point penalty and a CUSUM by it keeps autocorrelated noise from passing for shifts.
+
+    References
+    ----------
+    Newey, W. K. & West, K. D. (1987). Econometrica 55(3), 703–708, eq. (2). Newey, W. K. &
+    West, K. D. (1994). Rev. Econ. Stud. 61(4), 631–653.
+    """
+    x = np.asarray(values, dtype=float)
+    x = x[np.isfinite(x)]
+    n = x.size
+    if n < 4:
+        return 1.0
+    x = x - x.mean()
+    var = float(np.dot(x, x) / n)
+    if var <= 0:
+        return 1.0
+    if lags is None:
+        lags = int(math.floor(4.0 * (n / 100.0) ** (2.0 / 9.0)))
+    lags = max(0, min(lags, n - 2))
+    total = 0.0
+    for j in range(1, lags + 1):  # loop over lags, not over values
+        rho = float(np.dot(x[j:], x[:-j]) / n) / var
+        total += (1.0 - j / (lags + 1.0)) * rho
+    return max(1.0, 1.0 + 2.0 * total)
+
+
+@dataclass(frozen=True)
+class ChangePoints:
+    """Result of :func:`change_points`.
+
+    ``starts`` are the positions (in the input, NaN included) where a new segment begins;
+    ``segments`` the ``(first, last)`` positions of every segment (inclusive), ``means`` their
+    means, ``penalty`` the penalty used (unit of the values squared), ``sigma`` the noise scale
+    (unit of the values) and ``ratio`` the long-run variance ratio applied (-).
+    """
+
+    starts: tuple[int, ...]
+    segments: tuple[tuple[int, int], ...]
+    means: tuple[float, ...]
+    penalty: float
+    sigma: float
+    ratio: float
+    method: str
+
+
+def change_points(
+    values: np.ndarray | pd.Series,
+    *,
+    penalty: float | None = None,
+    min_size: int = 2,
+    method: Literal["pelt", "binseg"] = "pelt",
+    autocorrelation: bool = True,
+) -> ChangePoints:
+    """Level shifts in a series: penalised least-squares segmentation of its mean.
+
+    Parameters
+    ----------
+    values : ndarray or Series
+        The series (any unit); NaN values are skipped and positions refer to the input.
+    penalty : float, optional
+        Cost added per change point, in the unit of ``values`` squared. Default: BIC-like,
+        ``2 σ̂² ln n`` with σ̂ the robust standard deviation of first differences divided by √2,
+        multiplied by the long-run variance ratio of the segmented series when
+        ``autocorrelation`` is true.
+    min_size : int
+        Shortest segment (values).
+    method : {"pelt", "binseg"}
+        Exact search by pruned exact linear time (PELT) or approximate binary segmentation.
+    autocorrelation : bool
+        Re-run with the penalty scaled by the long-run variance ratio of the deviations from the
+        first segmentation (only with the default penalty).
+
+    Returns
+    -------
+    ChangePoints
+
+    Notes
+    -----
+    Minimises Σ_segments Σ_t (x_t − x̄_seg)² + β·(number of change points). A change point adds
+    two parameters (a location and a mean); with Gaussian noise of variance σ² the BIC
+    (Schwarz, 1978) gives β = 2 σ² ln n. The first-difference estimate of σ (σ̂ = MAD(Δx)/√2) is
+    not inflated by the shifts themselves.
+
+    References
+    ----------
+    Killick, R., Fearnhead, P. & Eckley, I. A. (2012). Optimal detection of changepoints with a
+    linear computational cost. JASA 107, 1590–1598. Scott, A. J. & Knott, M. (1974). Biometrics
+    30, 507–512. Truong, C., Oudre, L. & Vayatis, N. (2020). Selective review of offline change
+    point detection methods. Signal Processing 167, 107299 (the ``ruptures`` library).
+    """
+    import ruptures as rpt
+
+    x = np.asarray(values, dtype=float)
+    positions = np.flatnonzero(np.isfinite(x))
+    y = x[positions]
+    n = y.size
+    min_size = max(1, int(min_size))
+    if n < 2 * min_size:
+        mean = float(np.mean(y)) if n else float("nan")
+        seg = ((int(positions[0]), int(positions[-1])),) if n else ()
+        return ChangePoints((), seg, (mean,) if n else (), float("nan"), float("nan"), 1.0, method)
+    sigma = robust_sigma(np.diff(y)) / math.sqrt(2.0)
+    if not np.isfinite(sigma) or sigma <= 0:
+        sigma = float(np.std(y)) or 1.0
+
+    def run(pen: float) -> list[int]:
+        if method == "pelt":
+            algo = rpt.KernelCPD(kernel="linear", min_size=min_size).fit(y)
+        else:
+            algo = rpt.Binseg(model="l2", min_size=min_size, jump=1).fit(y)
+        return [int(b) for b in algo.predict(pen=pen)]
+
+    ratio = 1.0
+    if penalty is None:
+        pen = 2.0 * sigma**2 * math.log(n)
+        breaks = run(pen)
+        if autocorrelation:
+            ratio = long_run_variance_ratio(_deviations(y, breaks))
+            if ratio > 1.0:
+                pen *= ratio
+                breaks = run(pen)
+    else:
+        pen = float(penalty)
+        breaks = run(pen)
+    bounds = [0, *breaks]
+    segments = tuple(
+        (int(positions[a]), int(positions[b - 1])) for a, b in zip(bounds[:-1], bounds[1:])
+    )
+    means = tuple(float(np.mean(y[a:b])) for a, b in zip(bounds[:-1], bounds[1:]))
+    starts = tuple(int(positions[b]) for b in breaks[:-1])
+    return ChangePoints(starts, segments, means, float(pen), float(sigma), float(ratio), method)
+
+
+def _deviations(y: np.ndarray, breaks: list[int]) -> np.ndarray:
+    out = np.empty_like(y)
+    a = 0
+    for b in breaks:  # loop over segments
+        out[a:b] = y[a:b] - y[a:b].mean()
+        a = b
+    return out
+
+
+def cusum(z: np.ndarray, slack: float = 0.5) -> tuple[np.ndarray, np.ndarray]:
+    """Two-sided tabular CUSUM of a standardised series.
+
+    Parameters
+    ----------
+    z : ndarray
+        Standardised values (-), in-control mean 0 and standard deviation 1; NaN adds nothing.
+    slack : float
+        Reference value k (-), half the shift (in standard deviations) to be detected quickly.
+
+    Returns
+    -------
+    upper, lower : ndarray
+        S⁺_t and S⁻_t (-), both ≥ 0.
+
+    Notes
+    -----
+    S⁺_t = max(0, S⁺_{t−1} + z_t − k), S⁻_t = max(0, S⁻_{t−1} − z_t − k), S_0 = 0. The recursion
+    is computed without a loop from its closed form S_t = C_t − min(0, min_{s≤t} C_s), with
+    C_t the cumulative sum of the increments (Lindley's recursion).
+
+    References
+    ----------
+    Page, E. S. (1954). Continuous inspection schemes. Biometrika 41, 100–115. Montgomery, D. C.
+    (2009). Introduction to Statistical Quality Control, 6th ed., §9.1, eqs. (9.2)–(9.3).
+    """
+    z = np.asarray(z, dtype=float)
+
+    def one_sided(inc: np.ndarray) -> np.ndarray:
+        c = np.cumsum(inc)
+        return c - np.minimum(np.minimum.accumulate(c), 0.0)
+
+    up = np.where(np.isfinite(z), z - slack, 0.0)
+    down = np.where(np.isfinite(z), -z - slack, 0.0)
+    return one_sided(up), one_sided(down)
+
+
+def cusum_runs(
+    z: np.ndarray, *, slack: float = 0.5, threshold: float = 8.0
+) -> list[tuple[int, int, int]]:
+    """Sustained departures found by the tabular CUSUM: ``(first, last, sign)`` positions.
+
+    Parameters
+    ----------
+    z : ndarray
+        Standardised values (-).
+    slack : float
+        Reference value k (-).
+    threshold : float
+        Decision interval h (-): a run is signalled when S⁺ or S⁻ exceeds it.
+
+    Returns
+    -------
+    list of (int, int, int)
+        For each signalled excursion: the first position after the sum last left zero (the
+        estimated start), the position of its peak (the estimated end) and +1 for an upward run,
+        −1 for a downward one.
+
+    Notes
+    -----
+    The start is the usual CUSUM change-time estimate (the last time the sum was zero before the
+    signal; Montgomery, 2009, §9.1.2); the end is taken where the sum peaks, after which the
+    departure no longer accumulates.
+    """
+    runs: list[tuple[int, int, int]] = []
+    upper, lower = cusum(z, slack)
+    for s, sign in ((upper, 1), (lower, -1)):
+        positive = s > 0
+        if not positive.any():
+            continue
+        edges = np.diff(np.concatenate([[0], positive.astype(np.int8), [0]]))
+        starts = np.flatnonzero(edges == 1)
+        stops = np.flatnonzero(edges == -1)  # exclusive
+        for a, b in zip(starts, stops):  # loop over excursions, not over values
+            peak = a + int(np.argmax(s[a:b]))
+            if s[peak] > threshold:
+                runs.append((int(a), int(peak), sign))
+    return sorted(runs)
+
+
+# --------------------------------------------------------------------------------------------
+# Result objects
+# --------------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class Flag:
+    """One dated, sized and explained flag.
+
+    Attributes
+    ----------
+    kind : {"spike", "datum_shift", "level_shift", "run", "drift"}
+        What the detectors saw.
+    start, end : str
+        ISO dates of the first and last flagged day.
+    series : str
+        ``"residual"`` or ``"stage"`` (the record the evidence comes from).
+    volume_m3 : float
+        Signed unexplained volume over the flag (m³; positive = gain): the sum of the residual's
+        departure from its usual level. For a stage spike or datum shift, the storage jump the
+        stage step implies on its first day.
+    depth_mm : float
+        ``volume_m3`` over the mean lake area of the flagged days (mm).
+    rate_m3_per_day : float
+        Mean departure per flagged day (m³/d).
+    significance : float
+        |volume| / its 1-σ uncertainty (-), from the balance's uncertainty band when one was
+        given, else from the noise of the residual itself (see :attr:`Flags.band_source`).
+    significant : bool
+        ``significance`` above the two-sided 95 % normal quantile (1.96).
+    cause : str
+        Likely cause in a few words ("gauge datum shift", "unmetered withdrawal", ...).
+    hint : str
+        One plain sentence on the likely cause and what to check.
+    evidence : tuple of str
+        The facts behind the hint.
+    magnitude_m : float or None
+        Stage step (m) of a datum shift or stage spike.
+    correction : Correction or None
+        The ``[[correction]]`` a user may accept (datum shifts); never applied here.
+    accepted : bool
+        A matching correction is already in the site file.
+    """
+
+    kind: FlagKind
+    start: str
+    end: str
+    series: str
+    volume_m3: float
+    depth_mm: float
+    rate_m3_per_day: float
+    significance: float
+    significant: bool
+    cause: str
+    hint: str
+    evidence: tuple[str, ...] = ()
+    magnitude_m: float | None = None
+    correction: Correction | None = None
+    accepted: bool = False
+
+    @property
+    def days(self) -> int:
+        """Number of calendar days from ``start`` to ``end`` inclusive."""
+        import pandas as pd
+
+        return int((pd.Timestamp(self.end) - pd.Timestamp(self.start)).days) + 1
+
+    def correction_toml(self) -> str:
+        """The ``[[correction]]`` table a user would paste into the site file ('' when none)."""
+        c = self.correction
+        if c is None:
+            return ""
+        lines = [
+            "[[correction]]",
+            f'series = "{c.series}"',
+            f'kind = "{c.kind}"',
+            f'start = "{c.start}"',
+        ]
+        if c.end:
+            lines.append(f'end = "{c.end}"')
+        lines += [f"value = {c.value:.4f}", f'reason = "{c.reason}"']
+        return "\n".join(lines)
+
+
+@dataclass(frozen=True, eq=False)
+class Flags:
+    """All flags of one record, with the settings and scales behind them.
+
+    ``items`` are ordered by start date. ``baseline_m3`` is the usual level of the residual
+    (m³/d, the length-weighted median of segment means), ``noise_m3`` the robust day-to-day scale
+    (m³/d), ``ratio`` the long-run variance ratio (-), ``change_points`` the ISO dates where a
+    level-shift segment begins, ``corrections`` the ``[[correction]]`` tables of the site file in
+    force (already applied to the records), ``band_source`` says what the significance is
+    measured against.
+    """
+
+    items: tuple[Flag, ...]
+    residual_m3: pd.Series = field(repr=False)
+    baseline_m3: float = float("nan")
+    noise_m3: float = float("nan")
+    ratio: float = 1.0
+    penalty: float = float("nan")
+    change_points: tuple[str, ...] = ()
+    corrections: tuple[Correction, ...] = ()
+    band_source: str = "residual noise"
+    options: FlagOptions = field(default_factory=FlagOptions)
+
+    def __len__(self) -> int:
+        return len(self.items)
+
+    def __iter__(self):
+        return iter(self.items)
+
+    def of_kind(self, kind: str) -> tuple[Flag, ...]:
+        """The flags of one kind."""
+        return tuple(f for f in self.items if f.kind == kind)
+
+    def mask(self, index: pd.DatetimeIndex | None = None) -> pd.Series:
+        """True on every day covered by a flag (index defaults to the residual's)."""
+        import pandas as pd
+
+        idx = self.residual_m3.index if index is None else index
+        out = np.zeros(len(idx), dtype=bool)
+        values = idx.values
+        for f in self.items:  # loop over flags
+            out |= (values >= np.datetime64(f.start)) & (values <= np.datetime64(f.end))
+        return pd.Series(out, index=idx, name="flagged")
+
+    def to_frame(self) -> pd.DataFrame:
+        """One row per flag (columns as :class:`Flag`; evidence joined with '; ')."""
+        import pandas as pd
+
+        rows = []
+        for f in self.items:
+            rows.append(
+                {
+                    "kind": f.kind,
+                    "start": f.start,
+                    "end": f.end,
+                    "days": f.days,
+                    "series": f.series,
+                    "volume_m3": f.volume_m3,
+                    "depth_mm": f.depth_mm,
+                    "rate_m3_per_day": f.rate_m3_per_day,
+                    "significance": f.significance,
+                    "significant": f.significant,
+                    "cause": f.cause,
+                    "hint": f.hint,
+                    "evidence": "; ".join(f.evidence),
+                    "magnitude_m": f.magnitude_m,
+                    "accepted": f.accepted,
+                }
+            )
+        cols = [
+            "kind",
+            "start",
+            "end",
+            "days",
+            "series",
+            "volume_m3",
+            "depth_mm",
+            "rate_m3_per_day",
+            "significance",
+            "significant",
+            "cause",
+            "hint",
+            "evidence",
+            "magnitude_m",
+            "accepted",
+        ]
+        return pd.DataFrame(rows, columns=cols)
+
+    def to_dict(self) -> dict:
+        """A JSON-ready summary (used by ``lakebalance flags --json``)."""
+        idx = self.residual_m3.index
+        return {
+            "period": [
+                None if len(idx) == 0 else idx[0].date().isoformat(),
+                None if len(idx) == 0 else idx[-1].date().isoformat(),
+            ],
+            "baseline_m3_per_day": self.baseline_m3,
+            "noise_m3_per_day": self.noise_m3,
+            "long_run_variance_ratio": self.ratio,
+            "change_point_penalty": self.penalty,
+            "change_points": list(self.change_points),
+            "significance_against": self.band_source,
+            "corrections_in_force": [
+                {
+                    "series": c.series,
+                    "kind": c.kind,
+                    "start": c.start,
+                    "end": c.end,
+                    "value": c.value,
+                    "reason": c.reason,
+                }
+                for c in self.corrections
+            ],
+            "flags": [
+                {
+                    **{
+                        k: getattr(f, k)
+                        for k in (
+                            "kind",
+                            "start",
+                            "end",
+                            "series",
+                            "volume_m3",
+                            "depth_mm",
+                            "rate_m3_per_day",
+                            "significance",
+                            "significant",
+                            "cause",
+                            "hint",
+                            "magnitude_m",
+                            "accepted",
+                        )
+                    },
+                    "days": f.days,
+                    "evidence": list(f.evidence),
+                    "correction": f.correction_toml() or None,
+                }
+                for f in self.items
+            ],
+            "note": NOTE,
+        }
+
+    def summary(self) -> str:
+        """Plain text: one paragraph per flag, then the corrections in force."""
+        idx = self.residual_m3.index
+        out = []
+        if len(idx):
+            out.append(
+                f"Residual flags, {idx[0].date()} to {idx[-1].date()}: {len(self.items)} flag(s); "
+                f"usual residual {self.baseline_m3:,.0f} m³/d, day-to-day noise "
+                f"{self.noise_m3:,.0f} m³/d; significance against the {self.band_source}."
+            )
+        for i, f in enumerate(self.items, 1):
+            sig = "significant" if f.significant else "not significant"
+            out.append(
+                f"\n{i}. {f.kind} {f.start}"
+                + ("" if f.end == f.start else f" to {f.end}")
+                + f" ({f.days} d): {f.volume_m3:+,.0f} m³ ({f.depth_mm:+.1f} mm over the lake), "
+                f"{f.significance:.1f} σ, {sig}.\n   Likely cause: {f.cause}. {f.hint}"
+            )
+            for e in f.evidence:
+                out.append(f"   - {e}")
+            if f.accepted:
+                out.append("   Correction accepted in the site file (applied to the records).")
+            elif f.correction is not None:
+                out.append("   To accept the correction, add to the site file:")
+                out.extend("     " + ln for ln in f.correction_toml().splitlines())
+        if self.corrections:
+            out.append("\nCorrections in force (from the site file, applied to the records):")
+            for c in self.corrections:
+                span = c.start + (f" to {c.end}" if c.end else " onwards")
+                out.append(f"  - {c.series}: {c.kind} {c.value:+.4f} from {span}. {c.reason}")
+        out.append("\n" + NOTE)
+        return "\n".join(out)
+
+    def __str__(self) -> str:  # pragma: no cover - convenience
+        return self.summary()
+
+
+NOTE = (
+    "Flags are statistical pointers for review, not findings of fault; they never alter the data. "
+    "Where a flag bears on dam safety, public water supply or flood levels, confirm it on site and "
+    "defer to local codes and a licensed professional."
+)
+
+
+# --------------------------------------------------------------------------------------------
+# The combined detector
+# --------------------------------------------------------------------------------------------
+def _quiet_nan_warnings():
+    import warnings
+
+    class _Ctx:
+        def __enter__(self):
+            self._w = warnings.catch_warnings()
+            self._w.__enter__()
+            warnings.simplefilter("ignore", RuntimeWarning)
+
+        def __exit__(self, *exc):
+            return self._w.__exit__(*exc)
+
+    return _Ctx()
+
+
+def _groups(mask: np.ndarray, gap: int = 0) -> list[tuple[int, int]]:
+    """Runs of True positions ``(first, last)``, merging runs separated by ≤ ``gap`` False."""
+    pos = np.flatnonzero(mask)
+    if pos.size == 0:
+        return []
+    breaks = np.flatnonzero(np.diff(pos) > gap + 1)
+    firsts = np.concatenate([[pos[0]], pos[breaks + 1]])
+    lasts = np.concatenate([pos[breaks], [pos[-1]]])
+    return [(int(a), int(b)) for a, b in zip(firsts, lasts)]
+
+
+def _column(daily: pd.DataFrame, name: str) -> np.ndarray | None:
+    if name in daily.columns:
+        return daily[name].to_numpy(dtype=float)
+    return None
+
+
+def detect_flags(
+    daily: pd.DataFrame,
+    options: FlagOptions | None = None,
+    *,
+    sigma_m3: pd.Series | np.ndarray | None = None,
+    corrections: tuple[Correction, ...] = (),
+) -> Flags:
+    """Flag the unexplained residual and the stage record of a daily balance.
+
+    Parameters
+    ----------
+    daily : DataFrame
+        Daily balance on a regular daily index: ``residual_m3`` (m³/d, positive = unexplained
+        gain, NaN where unknown) is required; ``stage_m`` (m), ``area_m2`` (m²),
+        ``inflow_m3``, ``rain_m3``, ``outflow_m3``, ``evaporation_m3`` (m³/d) are used for the
+        evidence when present.
+    options : FlagOptions, optional
+        Thresholds (the ``[flags]`` section of the site file).
+    sigma_m3 : Series or ndarray, optional
+        1-σ uncertainty of each day's residual from the balance's uncertainty band (m³/d). Without
+        it the significance is measured against the noise of the residual itself.
+    corrections : tuple of Correction
+        The corrections of the site file already applied to the records (reported, and used to
+        mark matching flags as accepted).
+
+    Returns
+    -------
+    Flags
+
+    Notes
+    -----
+    1. *Events* (spikes and datum shifts): days whose residual has a robust z-score
+       |z| > ``outlier_threshold`` (rolling window ``outlier_window``), and days whose stage
+       change Δh has one where the residual is unknown. Events within ``spike_days`` of each
+       other are merged. When the stage steps on an event day, the event is a datum shift if the
+       step is not undone within the event (net step ≥ half the largest cumulative step) and a
+       stage spike otherwise; with no stage step it is a spike of a flow term.
+    2. *Level shifts and runs*: change points of the residual with event days left out
+       (:func:`change_points`, segments of at least ``min_run_days``). The usual level is the
+       length-weighted median of the segment means; a segment away from it is a run when both of
+       its ends are change points and a level shift when it reaches either end of the record.
+       Segments starting at a datum shift are its aftermath and become its evidence.
+    3. *Runs* missed by the segmentation: two-sided CUSUM (:func:`cusum_runs`) of
+       (residual − usual level) / (noise · √ratio).
+    4. *Drift*: a linear trend, tested with Newey–West errors, inside segments of at least
+       ``drift_min_days``; reported when p < ``drift_alpha``.
+
+    Significance: |V| / sqrt(Σ σ_t²) over the flagged days, with σ_t the band's daily 1-σ
+    (``sigma_m3``) or the residual's robust noise times the square root of the long-run variance
+    ratio. Days are taken as independent in the band, a systematic error common to the whole
+    record is part of the usual level.
+    """
+    import pandas as pd
+
+    options = options or FlagOptions()
+    if "residual_m3" not in daily.columns:
+        from .errors import LakebalanceError
+
+        raise LakebalanceError("the daily balance has no 'residual_m3' column to flag")
+    index = daily.index
+    r = daily["residual_m3"].to_numpy(dtype=float)
+    n = r.size
+    stage = _column(daily, "stage_m")
+    area = _column(daily, "area_m2")
+    inflow = _column(daily, "inflow_m3")
+    rain = _column(daily, "rain_m3")
+    outflow = _column(daily, "outflow_m3")
+    evaporation = _column(daily, "evaporation_m3")
+    if sigma_m3 is not None:
+        band = np.asarray(sigma_m3, dtype=float)
+        if band.shape != r.shape:
+            raise ValueError("sigma_m3 must have one value per day of the balance")
+        band_source = "balance uncertainty band"
+    else:
+        band = None
+        band_source = "noise of the residual (no uncertainty band given)"
+
+    def iso(i: int) -> str:
+        return pd.Timestamp(index[i]).date().isoformat()
+
+    mean_area = np.nanmean(area) if area is not None and np.isfinite(area).any() else float("nan")
+
+    def depth_mm(volume: float, a: int, b: int) -> float:
+        if area is None:
+            return float("nan")
+        with _quiet_nan_warnings():
+            ar = np.nanmean(area[a : b + 1])
+        if not np.isfinite(ar) or ar <= 0:
+            ar = mean_area
+        return float(volume / ar * 1000.0) if np.isfinite(ar) and ar > 0 else float("nan")
+
+    # ---- step 1: events --------------------------------------------------------------------
+    z_r, med_r, _ = rolling_robust_z(r, options.outlier_window)
+    noise = robust_sigma(r - med_r)
+    if not np.isfinite(noise) or noise <= 0:
+        noise = robust_sigma(r) if np.isfinite(robust_sigma(r)) and robust_sigma(r) > 0 else 1.0
+    out_r = np.abs(z_r) > options.outlier_threshold
+    if stage is not None:
+        dh = np.diff(stage, prepend=np.nan)
+        z_h, med_h, _ = rolling_robust_z(dh, options.outlier_window)
+        step = np.where(np.isfinite(dh - med_h), dh - med_h, 0.0)
+        jump = np.abs(z_h) > options.outlier_threshold
+    else:
+        dh = z_h = None
+        step = np.zeros(n)
+        jump = np.zeros(n, dtype=bool)
+    event_mask = out_r | (jump & ~np.isfinite(r))
+    events = _groups(event_mask, gap=max(0, options.spike_days - 1))
+
+    def sigma_of(a: int, b: int, ratio: float) -> float:
+        if band is not None:
+            s = band[a : b + 1]
+            s = s[np.isfinite(s)]
+            if s.size:
+                return float(math.sqrt(np.sum(s**2)))
+        days = int(np.isfinite(r[a : b + 1]).sum()) or 1
+        return float(noise * math.sqrt(ratio * days))
+
+    flags: list[Flag] = []
+    datum_starts: list[int] = []
+    for a, b in events:  # loop over events (few)
+        anomaly = r[a : b + 1] - med_r[a : b + 1]
+        cum = np.cumsum(step[a : b + 1])
+        peak = float(cum[np.argmax(np.abs(cum))]) if cum.size else 0.0
+        net = float(cum[-1]) if cum.size else 0.0
+        stage_jump = bool(jump[a : b + 1].any())
+        first_jump = a + int(np.argmax(jump[a : b + 1])) if stage_jump else a
+        evidence: list[str] = []
+        if stage_jump:
+            a_area = area[first_jump] if area is not None else float("nan")
+            implied = peak * a_area if np.isfinite(a_area) else float("nan")
+            evidence.append(
+                f"the stage stepped by {peak:+.3f} m on {iso(first_jump)} "
+                f"(robust z {z_h[first_jump]:+.1f} of the daily change)"
+            )
+            if np.isfinite(implied):
+                evidence.append(f"a storage change of {implied:+,.0f} m³ in the balance")
+            flow_note = _flow_note(inflow, rain, first_jump, options.outlier_window, iso)
+            if flow_note:
+                evidence.append(flow_note)
+        if stage_jump and abs(net) >= 0.5 * abs(peak):
+            # datum shift: the step stays
+            kind: FlagKind = "datum_shift"
+            volume = float(np.nansum(anomaly)) if np.isfinite(anomaly).any() else implied
+            evidence.append(
+                f"the step was not undone within {options.spike_days} day(s) "
+                f"(net {net:+.3f} m of {peak:+.3f} m)"
+            )
+            corr = Correction(
+                series="stage",
+                kind="offset",
+                start=iso(first_jump),
+                end=None,
+                value=float(-net),
+                reason=f"gauge datum shift of {net:+.3f} m flagged by lakebalance",
+            )
+            accepted = any(
+                c.series == "stage" and c.start == corr.start and c.kind == "offset"
+                for c in corrections
+            )
+            flags.append(
+                Flag(
+                    kind=kind,
+                    start=iso(first_jump),
+                    end=iso(first_jump if b == first_jump else b),
+                    series="stage",
+                    volume_m3=volume,
+                    depth_mm=depth_mm(volume, a, b),
+                    rate_m3_per_day=volume / (b - a + 1),
+                    significance=abs(volume) / sigma_of(a, b, 1.0),
+                    significant=abs(volume) / sigma_of(a, b, 1.0) > _Z95,
+                    cause="gauge datum shift",
+                    hint=(
+                        "A one-day storage jump with no matching flow, and the stage stays "
+                        f"offset by {net:+.3f} m: check the gauge zero, staff plate or logger "
+                        "(re-installation, survey) and, if confirmed, accept the offset."
+                    ),
+                    evidence=tuple(evidence),
+                    magnitude_m=float(net),
+                    correction=corr,
+                    accepted=accepted,
+                )
+            )
+            datum_starts.append(first_jump)
+        else:
+            if stage_jump:
+                # the bad reading appears in the residual as minus the storage jump it implies
+                volume = float(-peak * area[first_jump]) if area is not None else float("nan")
+                if not np.isfinite(volume):
+                    volume = float(np.nansum(anomaly))
+                cause = "bad stage reading"
+                series = "stage"
+                evidence.append(
+                    f"the stage came back within the event (net {net:+.3f} m of {peak:+.3f} m)"
+                )
+                hint = (
+                    "The stage stepped and came back: a bad reading (logger glitch, wave, "
+                    "debris on the sensor). Check the raw readings; the paired residuals cancel."
+                )
+                magnitude: float | None = float(peak)
+            else:
+                volume = float(np.nansum(anomaly))
+                series = "residual"
+                magnitude = None
+                rain_big = _is_high(rain, a, b, options.outlier_window)
+                if volume > 0 and rain_big:
+                    cause = "ungauged storm inflow"
+                    hint = (
+                        "An unexplained gain on a rainy day with no stage step: runoff from an "
+                        "ungauged area, or under-read rain or inflow."
+                    )
+                else:
+                    cause = "spike in a flow term"
+                    hint = (
+                        "An unexplained "
+                        + ("gain" if volume > 0 else "loss")
+                        + " on a day with no stage step: check the inflow, withdrawal and release "
+                        "readings of that day (a spike or a missing decimal)."
+                    )
+                zmax = float(np.nanmax(np.abs(z_r[a : b + 1])))
+                evidence.append(f"residual robust z up to {zmax:.1f} with no stage step")
+            if not np.isfinite(volume):
+                volume = 0.0
+            sig = abs(volume) / sigma_of(a, b, 1.0)
+            flags.append(
+                Flag(
+                    kind="spike",
+                    start=iso(a),
+                    end=iso(b),
+                    series=series,
+                    volume_m3=volume,
+                    depth_mm=depth_mm(volume, a, b),
+                    rate_m3_per_day=volume / (b - a + 1),
+                    significance=sig,
+                    significant=sig > _Z95,
+                    cause=cause,
+                    hint=hint,
+                    evidence=tuple(evidence),
+                    magnitude_m=magnitude,
+                )
+            )
+
+    # ---- step 2: change points -------------------------------------------------------------
+    clean = r.copy()
+    clean[event_mask] = np.nan
+    for a, b in events:
+        clean[a : b + 1] = np.nan
+    cps = change_points(
+        clean,
+        penalty=options.penalty,
+        min_size=options.min_run_days,
+        method=options.change_method,
+    )
+    ratio = cps.ratio
+    if cps.means:
+        lengths = np.array([b - a + 1 for a, b in cps.segments], dtype=float)
+        baseline = _weighted_median(np.array(cps.means), lengths)
+    else:
+        baseline = float(np.nanmedian(clean)) if np.isfinite(clean).any() else 0.0
+    dev = clean - baseline
+    covered = np.zeros(n, dtype=bool)
+    for seg_i, ((a, b), mean) in enumerate(zip(cps.segments, cps.means)):
+        days_valid = int(np.isfinite(clean[a : b + 1]).sum())
+        if days_valid < options.min_run_days:
+            continue
+        volume = float(np.nansum(dev[a : b + 1]))
+        sd = noise * math.sqrt(ratio * days_valid)
+        z_seg = abs(volume) / sd
+        if z_seg < options.run_threshold:
+            continue
+        # aftermath of a datum shift?
+        after = [d for d in datum_starts if abs(a - d) <= options.spike_days + 1]
+        if after:
+            k = next(
+                i
+                for i, f in enumerate(flags)
+                if f.kind == "datum_shift" and f.start == iso(after[0])
+            )
+            f = flags[k]
+            extra = (
+                f"then the residual changed by {mean - baseline:+,.0f} m³/d from {iso(a)} to "
+                f"{iso(b)} ({days_valid} d)"
+                + (
+                    " as the outflow is computed from the shifted stage"
+                    if outflow is not None
+                    else ""
+                )
+            )
+            flags[k] = _replace(f, evidence=(*f.evidence, extra))
+            covered[a : b + 1] = True
+            continue
+        bounded = seg_i > 0 and seg_i < len(cps.segments) - 1
+        kind = "run" if bounded else "level_shift"
+        flags.append(
+            _segment_flag(
+                kind,
+                a,
+                b,
+                volume,
+                days_valid,
+                baseline,
+                mean,
+                iso,
+                depth_mm,
+                sigma_of,
+                ratio,
+                step,
+                z_h,
+                clean,
+                outflow,
+                evaporation,
+                options,
+            )
+        )
+        covered[a : b + 1] = True
+
+    # ---- step 3: CUSUM runs ----------------------------------------------------------------
+    scale = noise * math.sqrt(ratio)
+    z_dev = dev / scale
+    for a, b, _sign in cusum_runs(
+        z_dev, slack=options.cusum_slack, threshold=options.cusum_threshold
+    ):
+        if covered[a : b + 1].any() or any(
+            abs(a - d) <= options.spike_days + 1 for d in datum_starts
+        ):
+            continue
+        days_valid = int(np.isfinite(clean[a : b + 1]).sum())
+        if days_valid < options.min_run_days:
+            continue
+        volume = float(np.nansum(dev[a : b + 1]))
+        if abs(volume) / (noise * math.sqrt(ratio * days_valid)) < options.run_threshold:
+            continue
+        with _quiet_nan_warnings():
+            mean = float(np.nanmean(clean[a : b + 1]))
+        flags.append(
+            _segment_flag(
+                "run",
+                a,
+                b,
+                volume,
+                days_valid,
+                baseline,
+                mean,
+                iso,
+                depth_mm,
+                sigma_of,
+                ratio,
+                step,
+                z_h,
+                clean,
+                outflow,
+                evaporation,
+                options,
+                detector="CUSUM",
+            )
+        )
+        covered[a : b + 1] = True
+
+    # ---- step 4: drift inside long segments ------------------------------------------------
+    for a, b in cps.segments:
+        if b - a + 1 < options.drift_min_days:
+            continue
+        res = _trend_test(clean[a : b + 1])
+        if res is None:
+            continue
+        slope, p_value = res
+        if p_value >= options.drift_alpha:
+            continue
+        days = b - a + 1
+        t = np.arange(days) - (days - 1) / 2.0
+        volume = float(slope * np.sum(t[t > 0]))  # second half's excess over the segment mean
+        flags.append(
+            Flag(
+                kind="drift",
+                start=iso(a),
+                end=iso(b),
+                series="residual",
+                volume_m3=volume,
+                depth_mm=depth_mm(volume, a, b),
+                rate_m3_per_day=float(slope),
+                significance=float(abs(_norm_ppf(p_value / 2.0))),
+                significant=bool(p_value < 0.05),
+                cause="drift",
+                hint=(
+                    "The residual trends steadily: a drifting sensor (stage logger, flow meter), "
+                    "a rating that changes slowly (weed growth, sedimentation) or a slowly "
+                    "changing groundwater exchange."
+                ),
+                evidence=(
+                    f"trend of {slope:+,.1f} m³/d per day over {days} d "
+                    f"(Newey–West p = {p_value:.2g})",
+                    f"{volume:+,.0f} m³ in the second half above the segment's mean level",
+                ),
+            )
+        )
+
+    flags.sort(key=lambda f: (f.start, f.kind))
+    return Flags(
+        items=tuple(flags),
+        residual_m3=daily["residual_m3"].copy(),
+        baseline_m3=float(baseline),
+        noise_m3=float(noise),
+        ratio=float(ratio),
+        penalty=float(cps.penalty),
+        change_points=tuple(iso(i) for i in cps.starts),
+        corrections=tuple(corrections),
+        band_source=band_source,
+        options=options,
+    )
+
+
+def _replace(f: Flag, **changes) -> Flag:
+    import dataclasses
+
+    return dataclasses.replace(f, **changes)
+
+
+def _weighted_median(values: np.ndarray, weights: np.ndarray) -> float:
+    order = np.argsort(values)
+    v, w = values[order], weights[order]
+    c = np.cumsum(w)
+    return float(v[np.searchsorted(c, 0.5 * c[-1])])
+
+
+def _is_high(x: np.ndarray | None, a: int, b: int, window: int) -> bool:
+    if x is None:
+        return False
+    z, _, _ = rolling_robust_z(x, window)
+    seg = z[a : b + 1]
+    return bool(np.isfinite(seg).any() and np.nanmax(seg) > 3.0)
+
+
+def _flow_note(inflow, rain, i: int, window: int, iso) -> str:
+    parts = []
+    for name, x in (("inflow", inflow), ("rain", rain)):
+        if x is None or not np.isfinite(x[i]):
+            continue
+        z, med, _ = rolling_robust_z(x, window)
+        if np.isfinite(z[i]) and abs(z[i]) > 3.0:
+            parts.append(f"{name} that day was unusual (robust z {z[i]:+.1f})")
+        else:
+            parts.append(f"{name} that day was ordinary ({x[i]:,.0f} m³, usual {med[i]:,.0f} m³)")
+    if not parts:
+        return ""
+    return (
+        "no matching flow: " + ", ".join(parts)
+        if all("ordinary" in p for p in parts)
+        else ("; ".join(parts))
+    )
+
+
+def _segment_flag(
+    kind,
+    a,
+    b,
+    volume,
+    days_valid,
+    baseline,
+    mean,
+    iso,
+    depth_mm,
+    sigma_of,
+    ratio,
+    step,
+    z_h,
+    clean,
+    outflow,
+    evaporation,
+    options,
+    detector="change-point search",
+) -> Flag:
+    """A run or level-shift flag with its likely cause and evidence."""
+    rate = volume / days_valid
+    evidence = [
+        f"mean residual {mean:+,.0f} m³/d against a usual {baseline:+,.0f} m³/d over "
+        f"{days_valid} d ({detector})"
+    ]
+    if z_h is not None:
+        near = [i for i in (a - 1, a, a + 1, b, b + 1) if 0 <= i < len(step)]
+        zmax = float(np.nanmax(np.abs(np.nan_to_num(z_h[near])))) if near else 0.0
+        evidence.append(
+            f"no stage step at its start or end (largest robust z of the daily change {zmax:.1f})"
+            if zmax <= options.outlier_threshold
+            else f"a stage step at its start or end (robust z {zmax:.1f})"
+        )
+    seg = clean[a : b + 1]
+    cause = None
+    for name, x in (("outflow", outflow), ("evaporation", evaporation)):
+        if x is None:
+            continue
+        xs = x[a : b + 1]
+        ok = np.isfinite(seg) & np.isfinite(xs)
+        if ok.sum() < 10 or np.nanstd(xs[ok]) == 0 or np.nanmean(np.abs(xs[ok])) == 0:
+            continue
+        share = abs(rate) / float(np.nanmean(np.abs(xs[ok])))
+        rho = float(np.corrcoef(seg[ok], xs[ok])[0, 1])
+        if abs(rho) >= 0.5 and share <= 1.0:
+            evidence.append(
+                f"the residual follows the {name} (correlation {rho:+.2f}); the departure is "
+                f"{100 * share:.0f} % of the mean {name}"
+            )
+            cause = cause or ("rating shift" if name == "outflow" else "evaporation bias")
+    if cause == "rating shift":
+        hint = (
+            "The unexplained term scales with the outflow: the outlet control may have changed "
+            "(weeds, debris, erosion, gate work). Check with new gaugings and refit the rating."
+        )
+    elif cause == "evaporation bias":
+        hint = (
+            "The unexplained term scales with the evaporation: the evaporation method or its "
+            "coefficient (pan coefficient, weather station) may be biased over this period."
+        )
+    elif rate < 0:
+        cause = "unmetered withdrawal"
+        hint = (
+            "A sustained unexplained loss with no stage jump: an unmetered withdrawal (pumping, "
+            "irrigation offtake), a leak or a metered outflow not in the records."
+            if kind == "run"
+            else "The residual moved to a lower level and stayed: a new unmetered withdrawal, "
+            "a changed outlet or gauge, or more seepage."
+        )
+    else:
+        cause = "unmetered inflow"
+        hint = (
+            "A sustained unexplained gain with no stage jump: an ungauged inflow (stream, return "
+            "flow, transfer) or a groundwater gain."
+            if kind == "run"
+            else "The residual moved to a higher level and stayed: an ungauged inflow, a changed "
+            "gauge or a change in the groundwater exchange."
+        )
+    sig = abs(volume) / sigma_of(a, b, ratio)
+    return Flag(
+        kind=kind,
+        start=iso(a),
+        end=iso(b),
+        series="residual",
+        volume_m3=float(volume),
+        depth_mm=depth_mm(volume, a, b),
+        rate_m3_per_day=float(rate),
+        significance=float(sig),
+        significant=bool(sig > _Z95),
+        cause=cause,
+        hint=hint,
+        evidence=tuple(evidence),
+    )
+
+
+def _trend_test(y: np.ndarray) -> tuple[float, float] | None:
+    """Slope (unit per step) and two-sided Newey–West p-value of a linear trend."""
+    ok = np.isfinite(y)
+    if ok.sum() < 10:
+        return None
+    import statsmodels.api as sm
+
+    t = np.arange(y.size, dtype=float)[ok]
+    n = int(ok.sum())
+    lags = int(math.floor(4.0 * (n / 100.0) ** (2.0 / 9.0)))
+    fit = sm.OLS(y[ok], sm.add_constant(t)).fit(cov_type="HAC", cov_kwds={"maxlags": lags})
+    return float(fit.params[1]), float(fit.pvalues[1])
+
+
+def _norm_ppf(p: float) -> float:
+    from scipy.stats import norm
+
+    return float(norm.ppf(max(p, 1e-300)))
