@@ -132,6 +132,11 @@ class StorageOptions:
     max_depth: float | None = None  # m, outline source: depth from outline level to bottom
     shape_exponent: float = 1.0  # outline source: area(z) ∝ ((z - z_bottom)/depth)^p
     outline_stage: float | None = None  # m, outline source: stage of the outline shoreline
+    bottom: float | None = None  # m, stage of the deepest point (area 0) below the lowest level
+    volume_tolerance: float = 0.01  # (-) table volume vs integrated area: allowed share of range
+    compare: Path | None = None  # a second survey (table or contour layer) to compare against
+    delimiter: str | None = None  # CSV field delimiter of a table (sniffed when absent)
+    decimal: str = "."  # decimal mark of a CSV table
 
 
 @dataclass(frozen=True)
