@@ -1,0 +1,912 @@
+"""Fitting a rating curve to spot gaugings, with its uncertainty.
+
+:func:`fit_rating_curve` fits any law of :mod:`lakebalance.outlet.laws` by nonlinear least squares
+(:mod:`lakebalance.outlet.nls`, analytic Jacobians), in log space by default, and returns a frozen
+:class:`RatingFit` with parameters, standard errors, covariance, confidence and prediction
+intervals (delta method, or a residual bootstrap), and a residual table.
+
+Notes
+-----
+Log-space residuals (the default) assume a multiplicative error,
+:math:`\\ln Q_i = \\ln f(h_i; \\theta) + \\varepsilon_i`, as rating practice does (ISO 1100-2, 2010,
+§6; the percentage standard error of estimate :math:`S_e = 100\\,\\sigma_{\\ln}` of its eq. 7 is
+reported as ``se_percent``). Linear residuals, :math:`Q_i = f(h_i;\\theta) + \\varepsilon_i`,
+optionally weighted, are the textbook nonlinear regression (Bates & Watts, 1988, §2.1).
+
+Zero-flow gaugings cannot enter a log residual. They carry information on the datum instead: a
+control that is dry at stage :math:`z` has its datum at or above :math:`z`, so every datum is
+bounded below by the highest zero-flow stage (common practice, no source). A zero-flow gauging
+above a gauging with flow contradicts any single control; it is excluded and reported.
+
+Confidence bands come from the delta method, :math:`\\operatorname{var}\\,\\hat g(h) = \\nabla g^T
+\\Sigma \\nabla g` with :math:`g = \\ln f` (log) or :math:`f` (linear); prediction bands add the
+residual variance (Seber & Wild, 1989, §5.1, eq. 5.8). The bootstrap option resamples residuals
+and refits every replicate at once by a vectorised Levenberg-Marquardt started at the estimate
+(Davison & Hinkley, 1997, Algorithm 6.1).
+
+References
+----------
+Bates, D. M. and Watts, D. G. (1988). Nonlinear Regression Analysis and Its Applications. Wiley.
+Davison, A. C. and Hinkley, D. V. (1997). Bootstrap Methods and their Application. CUP.
+ISO 1100-2 (2010). Hydrometry - Determination of the stage-discharge relationship.
+Seber, G. A. F. and Wild, C. J. (1989). Nonlinear Regression. Wiley.
+"""
+
+from __future__ import annotations
+
+import itertools
+import warnings
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from functools import cached_property
+from typing import TYPE_CHECKING, Any, Literal
+
+import numpy as np
+
+from ..errors import ConfigError, DataQualityWarning, FitError, suggest
+from .laws import (
+    CompoundLaw,
+    Law,
+    PowerFamilyLaw,
+    Rating,
+    SegmentedLaw,
+    discharge_with,
+)
+from .nls import covariance_from_jacobian, solve_least_squares
+
+if TYPE_CHECKING:  # pragma: no cover
+    import pandas as pd
+
+__all__ = ["FitOptions", "RatingFit", "Prediction", "RatingSummary", "fit_rating_curve"]
+
+Array = np.ndarray
+Residuals = Literal["log", "linear"]
+
+
+@dataclass(frozen=True)
+class FitOptions:
+    """How a rating is fitted.
+
+    Parameters
+    ----------
+    residuals : {"log", "linear"}
+        Residual space: ``"log"`` (multiplicative error, default) or ``"linear"``.
+    fixed : dict
+        Parameter name -> value held fixed (SI).
+    initial : dict
+        Parameter name -> starting value (SI); others are found automatically.
+    bounds : dict
+        Parameter name -> (lower, upper) (SI); either may be ``None``/inf for none.
+    bootstrap : int
+        Residual-bootstrap refits kept for intervals (0: delta method only).
+    """
+
+    residuals: Residuals = "log"
+    fixed: Mapping[str, float] = field(default_factory=dict)
+    initial: Mapping[str, float] = field(default_factory=dict)
+    bounds: Mapping[str, tuple[float | None, float | None]] = field(default_factory=dict)
+    bootstrap: int = 0
+
+
+@dataclass(frozen=True)
+class Prediction:
+    """Discharge with an interval, m³/s (arrays of the stage's shape)."""
+
+    stage_m: Array
+    discharge_m3s: Array
+    lower_m3s: Array
+    upper_m3s: Array
+    interval: str
+    level: float  # confidence level (-), e.g. 0.95
+
+    def frame(self) -> pd.DataFrame:
+        """The prediction as a table (1-D stages)."""
+        import pandas as pd
+
+        return pd.DataFrame(
+            {
+                "stage_m": np.ravel(self.stage_m),
+                "discharge_m3s": np.ravel(self.discharge_m3s),
+                "lower_m3s": np.ravel(self.lower_m3s),
+                "upper_m3s": np.ravel(self.upper_m3s),
+            }
+        )
+
+
+@dataclass(frozen=True)
+class RatingSummary:
+    """The summary of a fit; renders as text (``str``) or HTML (``_repr_html_``)."""
+
+    title: str
+    rows: tuple[tuple[str, float, float, float, float, bool], ...]  # name, value, se, lo, hi, fixed
+    facts: tuple[tuple[str, str], ...]
+    notes: tuple[str, ...]
+
+    def __str__(self) -> str:
+        lines = [self.title, "=" * len(self.title)]
+        lines += [f"{k:<28s} {v}" for k, v in self.facts]
+        lines.append("")
+        lines.append(f"{'parameter':<18s}{'value':>14s}{'std. error':>14s}{'95% interval':>30s}")
+        for name, v, se, lo, hi, fixed in self.rows:
+            if fixed:
+                lines.append(f"{name:<18s}{v:>14.6g}{'(fixed)':>14s}")
+            else:
+                lines.append(f"{name:<18s}{v:>14.6g}{se:>14.4g}{f'[{lo:.6g}, {hi:.6g}]':>30s}")
+        if self.notes:
+            lines.append("")
+            lines += [f"note: {n}" for n in self.notes]
+        return "\n".join(lines)
+
+    def _repr_html_(self) -> str:
+        from html import escape
+
+        facts = "".join(f"<tr><th>{escape(k)}</th><td>{escape(v)}</td></tr>" for k, v in self.facts)
+        rows = "".join(
+            f"<tr><td>{escape(n)}</td><td>{v:.6g}</td>"
+            + (
+                "<td colspan=2>(fixed)</td>"
+                if fx
+                else f"<td>{se:.4g}</td><td>[{lo:.6g}, {hi:.6g}]</td>"
+            )
+            + "</tr>"
+            for n, v, se, lo, hi, fx in self.rows
+        )
+        notes = "".join(f"<li>{escape(n)}</li>" for n in self.notes)
+        return (
+            f"<h4>{escape(self.title)}</h4><table>{facts}</table>"
+            f"<table><tr><th>parameter</th><th>value</th><th>std. error</th><th>95% interval</th>"
+            f"</tr>{rows}</table>" + (f"<ul>{notes}</ul>" if notes else "")
+        )
+
+
+@dataclass(frozen=True)
+class RatingFit:
+    """A fitted rating curve (frozen). Build with :func:`fit_rating_curve`.
+
+    Attributes
+    ----------
+    law : Law
+        The control law.
+    params : dict
+        Estimates by name (SI), fixed ones included.
+    param_names : tuple
+        Order of ``cov`` and of parameter rows in ensembles.
+    cov : ndarray (k, k)
+        Covariance of the estimates (zero rows/columns for fixed parameters).
+    free : tuple of bool
+        Which parameters were estimated.
+    n : int
+        Gaugings in the residuals.
+    dof : int
+        Degrees of freedom ``n - free parameters``.
+    sigma : float
+        Residual standard deviation in the residual space (log: -, linear: m³/s).
+    residuals : {"log", "linear"}
+        Residual space.
+    table : DataFrame
+        One row per gauging: date, stage_m, discharge_m3s, fitted_m3s, residual, used, note.
+    lower, upper : ndarray (k,)
+        Bounds used (SI), for clipping sampled parameters.
+    warnings : tuple of str
+        What the fit had to exclude or assume.
+    bootstrap_params : ndarray (B, k) or None
+        Bootstrap refits when requested.
+    zero_flow_stage_m : float or None
+        Highest stage of a zero-flow gauging used as a datum bound.
+    derived : dict
+        Quantities implied by the parameters (segment coefficients set by continuity).
+    """
+
+    law: Law
+    params: dict[str, float]
+    param_names: tuple[str, ...]
+    cov: Array
+    free: tuple[bool, ...]
+    n: int
+    dof: int
+    sigma: float
+    residuals: Residuals
+    table: pd.DataFrame
+    lower: Array
+    upper: Array
+    warnings: tuple[str, ...] = ()
+    bootstrap_params: Array | None = None
+    bootstrap_residuals: Array | None = None
+    zero_flow_stage_m: float | None = None
+    derived: dict[str, float] = field(default_factory=dict)
+
+    # ---- statistics --------------------------------------------------------------------
+    @property
+    def form(self) -> str:
+        return self.law.form
+
+    @cached_property
+    def rating(self) -> Rating:
+        """The fitted curve as a plain :class:`Rating`."""
+        return Rating(self.law, self.params)
+
+    @cached_property
+    def stderr(self) -> dict[str, float]:
+        """Standard error of each parameter (0 for fixed ones), SI."""
+        with np.errstate(invalid="ignore"):
+            se = np.sqrt(np.diag(self.cov))
+        return {n: float(s) for n, s in zip(self.param_names, se)}
+
+    @property
+    def vector(self) -> Array:
+        return np.array([self.params[n] for n in self.param_names])
+
+    def t_quantile(self, alpha: float = 0.05) -> float:
+        """Two-sided Student t quantile with ``dof`` degrees of freedom."""
+        from scipy.stats import t
+
+        return float(t.ppf(1 - alpha / 2, self.dof))
+
+    def conf_int(self, alpha: float = 0.05) -> dict[str, tuple[float, float]]:
+        """Wald confidence interval of each parameter, ``value ± t(1-α/2, dof) · se``."""
+        t = self.t_quantile(alpha)
+        return {
+            n: (self.params[n] - t * self.stderr[n], self.params[n] + t * self.stderr[n])
+            for n in self.param_names
+        }
+
+    @property
+    def se_percent(self) -> float:
+        """Standard error of estimate in percent (ISO 1100-2, 2010, eq. 7; log residuals)."""
+        used = self.table[self.table["used"] & (self.table["discharge_m3s"] > 0)]
+        rel = np.log(used["discharge_m3s"] / used["fitted_m3s"]).to_numpy()
+        return float(100.0 * np.sqrt(np.sum(rel**2) / self.dof)) if self.dof > 0 else np.nan
+
+    @property
+    def gauged_range(self) -> tuple[float, float]:
+        """Lowest and highest stage of the gaugings used (m)."""
+        used = self.table.loc[self.table["used"], "stage_m"]
+        return float(used.min()), float(used.max())
+
+    # ---- curves ------------------------------------------------------------------------
+    def discharge(self, stage_m: Array | float) -> Array:
+        """Fitted discharge (m³/s) at ``stage_m`` (m, any shape)."""
+        return self.rating.discharge(stage_m)
+
+    def discharge_derivative(self, stage_m: Array | float) -> Array:
+        """dQ/dh (m²/s) of the fitted curve at ``stage_m`` (m)."""
+        return self.rating.discharge_derivative(stage_m)
+
+    def discharge_with(self, params: Array, stage_m: Array) -> Array:
+        """Ensemble discharge (m³/s): row i of ``params`` (n, k) on ``stage_m[i, ...]`` (m)."""
+        return discharge_with(self.law, params, stage_m)
+
+    def sample_params(self, rng: np.random.Generator, n: int) -> Array:
+        """``n`` parameter rows (n, k) drawn from the estimate's normal approximation.
+
+        Draws use the covariance (fixed parameters stay fixed) and are clipped to the bounds of
+        the fit (coefficients stay positive, datums stay above zero-flow gaugings).
+        """
+        if not np.all(np.isfinite(self.cov)):
+            raise FitError("the rating covariance is not finite; parameters cannot be sampled")
+        draws = rng.multivariate_normal(self.vector, self.cov, size=n, method="eigh")
+        return np.clip(draws, self.lower, self.upper)
+
+    def predict(
+        self,
+        stage_m: Array | float,
+        interval: Literal["confidence", "prediction"] | None = None,
+        alpha: float = 0.05,
+        method: Literal["auto", "delta", "bootstrap"] = "auto",
+    ) -> Array | Prediction:
+        """Discharge at ``stage_m`` (m), optionally with a confidence or prediction interval.
+
+        Parameters
+        ----------
+        stage_m : array_like
+            Stages, m (any shape).
+        interval : {None, "confidence", "prediction"}
+            None returns the discharge array (m³/s); otherwise a :class:`Prediction`.
+        alpha : float
+            1 - confidence level (-).
+        method : {"auto", "delta", "bootstrap"}
+            ``"auto"`` uses the bootstrap when the fit holds bootstrap refits, else the delta
+            method.
+        """
+        h = np.asarray(stage_m, dtype=float)
+        q = self.discharge(h)
+        if interval is None:
+            return q
+        if interval not in ("confidence", "prediction"):
+            raise ValueError("interval must be None, 'confidence' or 'prediction'")
+        use_boot = method == "bootstrap" or (method == "auto" and self.bootstrap_params is not None)
+        if use_boot:
+            if self.bootstrap_params is None:
+                raise FitError("this fit holds no bootstrap refits (set bootstrap > 0)")
+            lo, hi = self._bootstrap_band(h, interval, alpha)
+        else:
+            lo, hi = self._delta_band(h, q, interval, alpha)
+        return Prediction(h, q, lo, hi, interval, 1 - alpha)
+
+    def _delta_band(self, h: Array, q: Array, interval: str, alpha: float) -> tuple[Array, Array]:
+        grads = np.stack(np.broadcast_arrays(*self.law.gradient(list(self.vector), h)), axis=-1)
+        var = np.einsum("...i,ij,...j->...", grads, self.cov, grads)
+        t = self.t_quantile(alpha)
+        if self.residuals == "log":
+            with np.errstate(divide="ignore", invalid="ignore"):
+                var_log = var / q**2
+                if interval == "prediction":
+                    var_log = var_log + self.sigma**2
+                half = t * np.sqrt(var_log)
+                lo = np.where(q > 0, q * np.exp(-half), 0.0)
+                hi = np.where(q > 0, q * np.exp(half), 0.0)
+            return lo, hi
+        if interval == "prediction":
+            var = var + self.sigma**2
+        half = t * np.sqrt(var)
+        return np.maximum(q - half, 0.0), q + half
+
+    def _bootstrap_band(self, h: Array, interval: str, alpha: float) -> tuple[Array, Array]:
+        boot = self.bootstrap_params
+        assert boot is not None
+        hb = np.broadcast_to(h, (boot.shape[0], *h.shape))
+        qb = self.discharge_with(boot, hb)
+        if interval == "prediction":
+            rng = np.random.default_rng(0)  # fixed: the band must not change between calls
+            res = self.bootstrap_residuals
+            assert res is not None
+            e = rng.choice(res, size=qb.shape)
+            qb = qb * np.exp(e) if self.residuals == "log" else np.maximum(qb + e, 0.0)
+        lo, hi = np.quantile(qb, [alpha / 2, 1 - alpha / 2], axis=0)
+        return lo, hi
+
+    # ---- reporting ---------------------------------------------------------------------
+    def parameter_table(self, alpha: float = 0.05) -> dict[str, dict[str, Any]]:
+        """``{name: {value, stderr, ci95: [lo, hi], fixed}}`` (SI)."""
+        ci = self.conf_int(alpha)
+        return {
+            n: {
+                "value": self.params[n],
+                "stderr": self.stderr[n],
+                "ci95": list(ci[n]),
+                "fixed": not f,
+            }
+            for n, f in zip(self.param_names, self.free)
+        }
+
+    def summary(self) -> RatingSummary:
+        """Parameters with standard errors and 95% intervals, and the fit statistics."""
+        ci = self.conf_int()
+        rows = tuple(
+            (n, self.params[n], self.stderr[n], ci[n][0], ci[n][1], not f)
+            for n, f in zip(self.param_names, self.free)
+        )
+        lo, hi = self.gauged_range
+        facts = (
+            ("form", self.form),
+            ("residuals", self.residuals),
+            ("gaugings used", str(self.n)),
+            ("degrees of freedom", str(self.dof)),
+            ("standard error of estimate", f"{self.se_percent:.2f} %"),
+            ("gauged stage range", f"{lo:.3f} to {hi:.3f} m"),
+        )
+        facts += tuple((k, f"{v:.6g}") for k, v in self.derived.items())
+        if self.zero_flow_stage_m is not None:
+            facts += (("highest zero-flow stage", f"{self.zero_flow_stage_m:.3f} m"),)
+        return RatingSummary(f"Rating curve ({self.form})", rows, facts, self.warnings)
+
+
+# --------------------------------------------------------------------------------------------
+# Fitting
+# --------------------------------------------------------------------------------------------
+def _components(law: Law) -> list[tuple[str, PowerFamilyLaw, int]]:
+    """(prefix, law, offset of its first parameter) of every power-family part of ``law``."""
+    if isinstance(law, PowerFamilyLaw):
+        return [("", law, 0)]
+    out, i = [], 0
+    parts = law.components if isinstance(law, CompoundLaw) else law.segments  # type: ignore[union-attr]
+    for j, (name, sub) in enumerate(parts):
+        out.append((f"{name}.", sub, i - (1 if isinstance(law, SegmentedLaw) and j else 0)))
+        i += len(sub.param_names) - (1 if isinstance(law, SegmentedLaw) and j else 0)
+    return out
+
+
+def _profile_start(
+    h: Array, q: Array, w: Array, law: PowerFamilyLaw, e_lo: float, e_hi: float, fixed: dict
+) -> dict[str, float]:
+    """Starting values of one power-family law: a profile over the datum with a log-linear fit.
+
+    For each trial datum e, ``ln Q = ln(c·factor) + b ln(h - e)`` is linear in ``ln c`` and
+    ``b``; the datum with the smallest weighted sum of squares wins (common practice, no source).
+    """
+    pos = q > 0
+    h, y, w = h[pos], np.log(q[pos]), w[pos]
+    hmin, span = float(h.min()), float(np.ptp(h)) or max(abs(float(h.min())), 1.0)
+    dn = law.datum_name
+    if dn in fixed:
+        grid = np.array([fixed[dn]])
+    else:
+        depth = np.geomspace(1e-3 * span, 20 * span, 80)
+        grid = hmin - depth
+        grid = grid[(grid >= e_lo) & (grid <= e_hi)]
+        if grid.size == 0:
+            grid = np.array([min(max(e_lo, hmin - span), e_hi)])
+    x = np.log(np.maximum(h[None, :] - grid[:, None], 1e-300))  # (g, n)
+    sw = w / w.sum()
+    xm = (x * sw).sum(1, keepdims=True)
+    ym = (y * sw).sum()
+    if law.exponent is not None or "b" in fixed:
+        b = np.full(grid.size, law.exponent if law.exponent is not None else fixed["b"])
+    else:
+        sxx = ((x - xm) ** 2 * sw).sum(1)
+        sxy = ((x - xm) * (y - ym) * sw).sum(1)
+        b = np.where(sxx > 0, sxy / np.where(sxx > 0, sxx, 1), 1.0)
+        b = np.clip(b, 0.05, 20.0)
+    a = ym - b * xm[:, 0]
+    sse = (((y[None, :] - a[:, None] - b[:, None] * x) ** 2) * sw).sum(1)
+    i = int(np.nanargmin(sse))
+    out = {law.coef_name: float(np.exp(a[i]) / law.factor), dn: float(grid[i])}
+    if law.exponent is None:
+        out["b"] = float(b[i])
+    return out
+
+
+def _check_names(names: tuple[str, ...], given: Mapping[str, Any], what: str) -> None:
+    for key in given:
+        if key not in names:
+            raise ConfigError(
+                f"rating: unknown parameter '{key}' in '{what}'{suggest(key, names)}; "
+                f"parameters are {', '.join(names)}"
+            )
+
+
+def _clean(
+    stage_m: Array, discharge_m3s: Array, weights: Array | None
+) -> tuple[Array, Array, Array, Array, list[str], list[str]]:
+    """Masks of usable rows, notes per row, and warnings."""
+    h = np.asarray(stage_m, dtype=float).ravel()
+    q = np.asarray(discharge_m3s, dtype=float).ravel()
+    if h.shape != q.shape:
+        raise FitError("stage and discharge of the gaugings differ in length")
+    w = np.ones_like(h) if weights is None else np.asarray(weights, dtype=float).ravel()
+    if w.shape != h.shape:
+        raise FitError("weights and gaugings differ in length")
+    notes = [""] * h.size
+    used = np.ones(h.size, bool)
+    msgs: list[str] = []
+    for mask, why in (
+        (~np.isfinite(h) | ~np.isfinite(q), "missing stage or discharge"),
+        (np.isfinite(q) & (q < 0), "negative discharge"),
+        (~np.isfinite(w) | (w <= 0), "weight not positive"),
+    ):
+        mask = mask & used
+        if mask.any():
+            used &= ~mask
+            for i in np.flatnonzero(mask):
+                notes[i] = why
+            msgs.append(f"{int(mask.sum())} gauging(s) excluded: {why}")
+    return h, q, w, used, notes, msgs
+
+
+def fit_rating_curve(
+    law: Law,
+    stage_m: Array,
+    discharge_m3s: Array,
+    *,
+    dates: Any = None,
+    weights: Array | None = None,
+    options: FitOptions | None = None,
+    rng: np.random.Generator | None = None,
+) -> RatingFit:
+    """Fit ``law`` to gaugings by nonlinear least squares.
+
+    Parameters
+    ----------
+    law : Law
+        The control law (:func:`~lakebalance.outlet.laws.power_law` etc.).
+    stage_m : array_like (n,)
+        Gauged stages, m on the gauge datum.
+    discharge_m3s : array_like (n,)
+        Gauged discharges, m³/s (zero for a dry outlet).
+    dates : array_like (n,), optional
+        Dates of the gaugings (for the shift test and the residual table).
+    weights : array_like (n,), optional
+        Relative weights (inverse variances, -) of the gaugings.
+    options : FitOptions, optional
+        Residual space, fixed/initial/bounded parameters, bootstrap size.
+    rng : numpy.random.Generator, optional
+        Source of the bootstrap draws (required when ``options.bootstrap > 0``).
+
+    Returns
+    -------
+    RatingFit
+
+    Raises
+    ------
+    FitError
+        Fewer usable gaugings than free parameters plus one, fewer distinct stages than free
+        parameters, no gauging with flow, or no convergence.
+    ConfigError
+        A fixed, initial or bounded parameter that the law does not have.
+
+    Notes
+    -----
+    The residual of gauging i is :math:`\\sqrt{w_i}(\\ln Q_i - \\ln f(h_i;\\theta))` (log) or
+    :math:`\\sqrt{w_i}(Q_i - f(h_i;\\theta))` (linear). Coefficients are bounded below by 0 and
+    every datum below by the highest zero-flow stage; the first control's datum lies below the
+    lowest gauging with flow.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from lakebalance.outlet import power_law, fit_rating_curve
+    >>> h = np.linspace(0.3, 2.0, 12)
+    >>> fit = fit_rating_curve(power_law(), h, 4.0 * (h - 0.1) ** 1.6)
+    >>> round(fit.params["b"], 3)
+    1.6
+    """
+    import pandas as pd
+
+    options = options or FitOptions()
+    names = law.param_names
+    k = len(names)
+    for what in ("fixed", "initial", "bounds"):
+        _check_names(names, getattr(options, what), what)
+    h, q, w, used, notes, msgs = _clean(stage_m, discharge_m3s, weights)
+    if dates is None:
+        date_col = pd.Series(pd.NaT, index=range(h.size), dtype="datetime64[ns]")
+    else:
+        date_col = pd.Series(pd.to_datetime(np.asarray(dates).ravel()))
+        if date_col.size != h.size:
+            raise FitError("dates and gaugings differ in length")
+
+    flowing = used & (q > 0)
+    if not flowing.any():
+        raise FitError(
+            "no gauging with flow: a rating cannot be fitted from zero-flow gaugings alone"
+            if used.any()
+            else "no usable gauging (all are missing or negative)"
+        )
+    hmin_flow = float(h[flowing].min())
+    zero = used & (q == 0)
+    if zero.any():
+        bad = zero & (h >= hmin_flow)
+        if bad.any():
+            used &= ~bad
+            for i in np.flatnonzero(bad):
+                notes[i] = "zero flow above a gauging with flow (contradiction)"
+            msgs.append(
+                f"{int(bad.sum())} zero-flow gauging(s) at or above {hmin_flow:.3f} m, the lowest "
+                "stage with flow, excluded as contradictory"
+            )
+            zero &= ~bad
+    zero_stage = float(h[zero].max()) if zero.any() else None
+    in_resid = flowing if options.residuals == "log" else used
+    for i in np.flatnonzero(zero & ~in_resid):
+        notes[i] = "zero flow: bounds the datum"
+
+    # ---- bounds ------------------------------------------------------------------------
+    lo = np.full(k, -np.inf)
+    hi = np.full(k, np.inf)
+    comps = _components(law)
+    for j, (prefix, sub, _off) in enumerate(comps):
+        seg = isinstance(law, SegmentedLaw)
+        for pname in sub.param_names:
+            full = prefix + pname
+            if full not in names:
+                continue  # a segment's coefficient set by continuity
+            idx = names.index(full)
+            if pname == sub.coef_name:
+                lo[idx] = 0.0
+            elif pname == "b":
+                lo[idx], hi[idx] = 1e-3, 50.0
+            elif pname == sub.datum_name:
+                if zero_stage is not None and (j == 0 or not seg):
+                    lo[idx] = zero_stage
+                if j == 0:
+                    hi[idx] = hmin_flow - 1e-9 * max(1.0, abs(hmin_flow))
+                if seg and j > 0:
+                    brk = law.breaks[j - 1]  # type: ignore[union-attr]
+                    hi[idx] = brk - 1e-6 * max(1.0, abs(brk))
+    for key, (blo, bhi) in options.bounds.items():
+        idx = names.index(key)
+        if blo is not None:
+            lo[idx] = max(lo[idx], float(blo))
+        if bhi is not None:
+            hi[idx] = min(hi[idx], float(bhi))
+        if lo[idx] > hi[idx]:
+            raise ConfigError(f"rating: bounds of '{key}' leave no room ([{lo[idx]}, {hi[idx]}])")
+
+    free = np.array([n not in options.fixed for n in names])
+    kf = int(free.sum())
+    n_used = int(in_resid.sum())
+    if n_used <= kf:
+        raise FitError(
+            f"{n_used} usable gauging(s) cannot fit {kf} free parameter(s) with any uncertainty; "
+            f"need at least {kf + 1}"
+        )
+    n_stages = np.unique(h[in_resid]).size
+    if n_stages < min(kf, 3) or n_stages < 2 and kf > 1:
+        raise FitError(
+            f"the gaugings span only {n_stages} distinct stage(s); {kf} free parameters need "
+            "gaugings over a range of stages"
+        )
+
+    # ---- starting values -----------------------------------------------------------------
+    starts = _starting_values(law, h, q, w, flowing, lo, hi, options)
+
+    # ---- residuals and Jacobian ------------------------------------------------------------
+    hr, qr, swr = h[in_resid], q[in_resid], np.sqrt(w[in_resid])
+    base = np.array([options.fixed.get(n, np.nan) for n in names], dtype=float)
+    log = options.residuals == "log"
+    yr = np.log(qr) if log else qr
+
+    def full_params(theta: Array) -> list[Array | float]:
+        p = base.copy()
+        p[free] = theta
+        return list(p)
+
+    def residual(theta: Array) -> Array:
+        f = law.discharge(full_params(theta), hr)
+        if log:
+            with np.errstate(divide="ignore"):
+                f = np.log(f)
+        return swr * (yr - f)
+
+    def jacobian(theta: Array) -> Array:
+        p = full_params(theta)
+        g = np.stack(np.broadcast_arrays(*law.gradient(p, hr)), axis=-1)[:, free]
+        if log:
+            g = g / law.discharge(p, hr)[:, None]
+        return -swr[:, None] * g
+
+    best = None
+    failures = []
+    for start in starts:
+        p0 = np.clip(start[free], lo[free], hi[free])
+        try:
+            res = solve_least_squares(residual, jacobian, p0, bounds=(lo[free], hi[free]))
+        except FitError as exc:
+            failures.append(exc.message)
+            continue
+        if best is None or res.rss < best.rss:
+            best = res
+    if best is None:
+        raise FitError("the rating fit did not converge: " + "; ".join(failures[:1]))
+
+    theta = best.params
+    cov_free = best.cov
+    if best.active.any():
+        # parameters on a bound are held there: their variance is conditional (zero)
+        keep = ~best.active
+        sub, _ = covariance_from_jacobian(best.jacobian[:, keep], best.rss, best.dof)
+        cov_free = np.zeros((kf, kf))
+        cov_free[np.ix_(keep, keep)] = sub
+        fnames = [n for n, f in zip(names, free) if f]
+        for i in np.flatnonzero(best.active):
+            why = (
+                "the highest zero-flow gauging"
+                if zero_stage is not None and np.isclose(theta[i], zero_stage)
+                else "a bound"
+            )
+            msgs.append(
+                f"parameter {fnames[i]} = {theta[i]:.6g} rests on {why}; its standard error is "
+                "not estimated (held fixed there)"
+            )
+    if not np.all(np.isfinite(cov_free)):
+        msgs.append(
+            "some parameters are not identified by the gaugings (singular Jacobian): e.g. a "
+            "control whose datum lies above every gauging; their standard errors are undefined"
+        )
+    cov = np.zeros((k, k))
+    cov[np.ix_(free, free)] = cov_free
+    pfull = np.array(full_params(theta), dtype=float)
+    params = {n: float(v) for n, v in zip(names, pfull)}
+    fitted = law.discharge(list(pfull), h)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        resid_all = np.where(used, np.log(q / fitted) if log else q - fitted, np.nan)
+    if log:
+        resid_all = np.where(used & (q > 0), resid_all, np.nan)
+    table = pd.DataFrame(
+        {
+            "date": date_col.to_numpy(),
+            "stage_m": h,
+            "discharge_m3s": q,
+            "weight": w,
+            "fitted_m3s": fitted,
+            "residual": resid_all,
+            "used": used,
+            "in_residuals": in_resid,
+            "note": notes,
+        }
+    )
+    derived = law.coefficients(list(pfull)) if isinstance(law, SegmentedLaw) else {}
+    boot = boot_res = None
+    if options.bootstrap > 0:
+        if rng is None:
+            raise FitError("a bootstrap needs a random generator (rng)")
+        boot, boot_res = _bootstrap(
+            law, names, free, base, theta, best, hr, yr, swr, lo, hi, log, options.bootstrap, rng
+        )
+    for m in msgs:
+        warnings.warn(f"rating: {m}", DataQualityWarning, stacklevel=2)
+    return RatingFit(
+        law=law,
+        params=params,
+        param_names=names,
+        cov=cov,
+        free=tuple(bool(f) for f in free),
+        n=n_used,
+        dof=best.dof,
+        sigma=best.sigma,
+        residuals=options.residuals,
+        table=table,
+        lower=np.where(free, lo, pfull),
+        upper=np.where(free, hi, pfull),
+        warnings=tuple(msgs),
+        bootstrap_params=boot,
+        bootstrap_residuals=boot_res,
+        zero_flow_stage_m=zero_stage,
+        derived=derived,
+    )
+
+
+def _starting_values(
+    law: Law,
+    h: Array,
+    q: Array,
+    w: Array,
+    flowing: Array,
+    lo: Array,
+    hi: Array,
+    options: FitOptions,
+) -> list[Array]:
+    """Candidate starting vectors (full parameter order): automatic, then user overrides."""
+    names = law.param_names
+    hf, qf, wf = h[flowing], q[flowing], w[flowing]
+
+    def overrides(vec: Array) -> Array:
+        for key, value in {**options.initial, **options.fixed}.items():
+            vec[names.index(key)] = value
+        return vec
+
+    def local_fixed(prefix: str) -> dict[str, float]:
+        given = {**options.initial, **options.fixed}
+        return {k[len(prefix) :]: v for k, v in given.items() if k.startswith(prefix)}
+
+    def bounds_of(full: str) -> tuple[float, float]:
+        i = names.index(full)
+        return lo[i], hi[i]
+
+    if isinstance(law, PowerFamilyLaw):
+        e_lo, e_hi = bounds_of(law.datum_name)
+        s = _profile_start(hf, qf, wf, law, e_lo, e_hi, local_fixed(""))
+        return [overrides(np.array([s[n] for n in names]))]
+
+    comps = law.components if isinstance(law, CompoundLaw) else law.segments  # type: ignore[union-attr]
+    first_name, first = comps[0]
+    later = comps[1:]
+    # candidate datums of the later controls: quantiles of the gauged stages (or given values)
+    quant = np.quantile(hf, [0.2, 0.35, 0.5, 0.65, 0.8, 0.92])
+    cand_lists = []
+    for j, (name, sub) in enumerate(later, start=1):
+        key = f"{name}.{sub.datum_name}"
+        dlo, dhi = bounds_of(key)
+        if key in options.initial or key in options.fixed:
+            cand_lists.append([{**options.initial, **options.fixed}[key]])
+        elif isinstance(law, SegmentedLaw):
+            brk = law.breaks[j - 1]
+            cand_lists.append(
+                list(np.clip(brk - np.array([0.05, 0.3, 1.0]) * np.ptp(hf), dlo, dhi))
+            )
+        else:
+            cand_lists.append(list(np.clip(quant, dlo, dhi)))
+    combos = list(itertools.product(*cand_lists))[:60]
+    out = []
+    for combo in combos:
+        vec = np.full(len(names), np.nan)
+        # first control: gaugings below the lowest later datum (all if too few)
+        below = hf < (min(combo) if isinstance(law, CompoundLaw) else law.breaks[0])
+        sel = below if below.sum() >= 3 else np.ones_like(below)
+        e_lo, e_hi = bounds_of(f"{first_name}.{first.datum_name}")
+        s0 = _profile_start(
+            hf[sel], qf[sel], wf[sel], first, e_lo, e_hi, local_fixed(f"{first_name}.")
+        )
+        for p, v in s0.items():
+            vec[names.index(f"{first_name}.{p}")] = v
+        for (name, sub), d in zip(later, combo):
+            vec[names.index(f"{name}.{sub.datum_name}")] = d
+            if "b" in sub.param_names:
+                vec[names.index(f"{name}.b")] = 1.5
+            cname = f"{name}.{sub.coef_name}"
+            if cname in names:
+                q1 = first.discharge([s0[p] for p in first.param_names], hf)
+                above = hf > d
+                g = sub.discharge([1.0, d] + ([1.5] if sub.exponent is None else []), hf)
+                ratio = (qf - q1)[above] / np.maximum(g[above], 1e-300)
+                ratio = ratio[ratio > 0]
+                vec[names.index(cname)] = float(np.median(ratio)) if ratio.size else 1.0
+        out.append(overrides(vec))
+    return out
+
+
+def _bootstrap(
+    law: Law,
+    names: tuple[str, ...],
+    free: Array,
+    base: Array,
+    theta: Array,
+    best,
+    h: Array,
+    y: Array,
+    sw: Array,
+    lo: Array,
+    hi: Array,
+    log: bool,
+    n_boot: int,
+    rng: np.random.Generator,
+    iterations: int = 40,
+) -> tuple[Array, Array]:
+    """Residual bootstrap, every replicate refitted at once (vectorised Levenberg-Marquardt).
+
+    Residuals are rescaled by ``sqrt(n/(n-p))`` (Davison & Hinkley, 1997, eq. 6.9) before
+    resampling; each replicate starts at the estimate and takes damped Gauss-Newton steps with
+    its own damping factor, accepting a step only when it lowers that replicate's sum of squares.
+    """
+    n = h.size
+    kf = int(free.sum())
+    e = best.residuals  # sqrt(w) * (y - f): homoscedastic
+    e = (e - e.mean()) * np.sqrt(n / max(n - kf, 1))
+    fit_y = y - best.residuals / sw  # fitted values in the residual space
+    idx = rng.integers(0, n, size=(n_boot, n))
+    ystar = fit_y[None, :] + e[idx] / sw[None, :]
+    lo_f, hi_f = lo[free], hi[free]
+    th = np.repeat(theta[None, :], n_boot, axis=0)
+
+    def evaluate(t: Array) -> tuple[Array, Array]:
+        p = []
+        fi = 0
+        for j in range(len(names)):
+            if free[j]:
+                p.append(t[:, fi : fi + 1])
+                fi += 1
+            else:
+                p.append(base[j])
+        f = law.discharge(p, h[None, :])
+        g = np.stack(np.broadcast_arrays(*law.gradient(p, h[None, :])), axis=-1)[..., free]
+        if log:
+            with np.errstate(divide="ignore", invalid="ignore"):
+                g = g / f[..., None]
+                f = np.log(f)
+        return f, g
+
+    def cost(f: Array) -> Array:
+        res = sw * (ystar - f)
+        c = np.einsum("bn,bn->b", res, res)
+        return np.where(np.isfinite(c), c, np.inf)
+
+    f, g = evaluate(th)
+    c = cost(f)
+    lam = np.full(n_boot, 1e-3)
+    eye = np.eye(kf)
+    for _ in range(iterations):
+        jw = g * sw[None, :, None]
+        rw = sw * (ystar - f)
+        jtj = np.einsum("bni,bnj->bij", jw, jw)
+        jtr = np.einsum("bni,bn->bi", jw, rw)
+        diag = np.einsum("bii->bi", jtj)
+        a = jtj + lam[:, None, None] * (diag[:, :, None] * eye + 1e-12 * eye)
+        try:
+            step = np.linalg.solve(a, jtr[..., None])[..., 0]
+        except np.linalg.LinAlgError:
+            step = np.einsum("bij,bj->bi", np.linalg.pinv(a), jtr)
+        trial = np.clip(th + step, lo_f, hi_f)
+        f_t, g_t = evaluate(trial)
+        c_t = cost(f_t)
+        better = c_t < c
+        th = np.where(better[:, None], trial, th)
+        f = np.where(better[:, None], f_t, f)
+        g = np.where(better[:, None, None], g_t, g)
+        done_rel = np.abs(c - c_t) <= 1e-12 * np.maximum(c, 1e-300)
+        c = np.where(better, c_t, c)
+        lam = np.where(better, lam / 3.0, lam * 4.0)
+        if np.all(done_rel | (lam > 1e10)):
+            break
+    out = np.repeat(base[None, :], n_boot, axis=0)
+    out[:, free] = th
+    return out, e
