@@ -25,6 +25,8 @@ _EXPORTS = {
     "UnitError": "lakebalance.errors",
     "FitError": "lakebalance.errors",
     "RangeError": "lakebalance.errors",
+    "lake_evaporation": "lakebalance.api",
+    "EvaporationResult": "lakebalance.evaporation",
 }
 
 __all__ = ["__version__", *_EXPORTS]

@@ -1,0 +1,95 @@
+"""``lakebalance evaporation``: daily lake evaporation, monthly totals of every possible method."""
+
+from __future__ import annotations
+
+import argparse
+
+from ._common import add_json, add_site
+
+HELP = "lake evaporation: monthly totals of every method the weather allows, side by side"
+
+_METHODS = ("auto", "given", "pan", "penman", "priestley_taylor", "fao56", "hargreaves")
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    add_site(parser)
+    parser.add_argument(
+        "--method",
+        choices=_METHODS,
+        default=None,
+        help="method for the lake evaporation (default: [evaporation] method of the site file)",
+    )
+    parser.add_argument(
+        "--unit",
+        default="mm",
+        metavar="UNIT",
+        help="depth unit of the monthly totals (default: mm)",
+    )
+    add_json(parser)
+
+
+def run(args: argparse.Namespace) -> int:
+    import warnings
+
+    from .. import api
+    from .._json import dumps
+    from ..errors import LakebalanceWarning
+
+    site = api.load_site(args.site)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", LakebalanceWarning)
+        result = api.lake_evaporation(site, method=args.method)
+    messages = [str(w.message) for w in caught if issubclass(w.category, LakebalanceWarning)]
+    monthly = result.monthly(args.unit)
+    diffs = result.monthly_differences(args.unit)
+    if args.json:
+        doc = {
+            "site": site.site.name,
+            "method": result.method,
+            "available": list(result.available),
+            "unit": args.unit,
+            "monthly": [
+                {"month": str(month), **{k: row[k] for k in monthly.columns}}
+                for month, row in monthly.iterrows()
+            ],
+            "differences": [
+                {"month": str(month), **{f"{k}-{result.method}": row[k] for k in diffs.columns}}
+                for month, row in diffs.iterrows()
+            ],
+            "totals": {k: monthly[k].sum(min_count=1) for k in result.available},
+            "filled_days": int(result.filled.sum()),
+            "inputs": result.inputs,
+            "notes": list(result.notes),
+            "warnings": messages,
+        }
+        print(dumps(doc))
+        return 0
+    print(f"{site.site.name}: lake evaporation by {result.method} (monthly totals, {args.unit})")
+    methods = list(result.available)
+    width = max(9, *(len(m) + 1 for m in methods))
+    head = f"{'month':<8}" + "".join(f"{m:>{width}}" for m in methods)
+    head += f"{'days':>6}{'filled':>7}"
+    others = [m for m in methods if m != result.method]
+    head += "".join(f"{'Δ' + m:>{width + 1}}" for m in others)
+    print(head)
+
+    def fmt(x: float, w: int) -> str:
+        return f"{'-':>{w}}" if x != x else f"{x:>{w}.1f}"
+
+    for month, row in monthly.iterrows():
+        line = f"{str(month):<8}" + "".join(fmt(row[m], width) for m in methods)
+        line += f"{int(row['days']):>6}{int(row['filled_days']):>7}"
+        line += "".join(fmt(diffs.loc[month, m], width + 1) for m in others)
+        print(line)
+    line = f"{'total':<8}" + "".join(fmt(monthly[m].sum(min_count=1), width) for m in methods)
+    line += f"{int(monthly['days'].sum()):>6}{int(monthly['filled_days'].sum()):>7}"
+    line += "".join(fmt(diffs[m].sum(min_count=1), width + 1) for m in others)
+    print(line)
+    print(f"Δ columns: each method's monthly total minus {result.method}'s.")
+    for key, value in result.inputs.items():
+        print(f"input: {key}: {value}")
+    for note in result.notes:
+        print(f"note: {note}")
+    for msg in messages:
+        print(f"warning: {msg}")
+    return 0
