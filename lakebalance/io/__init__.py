@@ -1,0 +1,95 @@
+"""Reading the files of a site: one reader per format, daily aggregation, QA, row accounting.
+
+:func:`read_records` is the entry point (the API's :func:`lakebalance.api.load_records` calls it).
+Formats, chosen by file suffix: delimited text (:mod:`lakebalance.io.csv`), Excel workbooks
+(:mod:`lakebalance.io.excel`), WaterML 2.0 documents (:mod:`lakebalance.io.waterml2`); small
+strict tables (storage relations, gaugings) through :func:`lakebalance.io.tables.read_table`.
+"""
+
+from __future__ import annotations
+
+import sys
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:  # pragma: no cover
+    from ..config import Site
+    from ..records import Records
+
+__all__ = ["read_records"]
+
+
+def read_records(site: Site, progress: bool = False) -> Records:
+    """Read, convert to SI, check and aggregate to days every series of ``site``.
+
+    Parameters
+    ----------
+    site : Site
+        The validated site file.
+    progress : bool
+        Show a progress bar over the series on stderr (only when stderr is a terminal).
+
+    Returns
+    -------
+    Records
+        One daily table over the union of the series' periods (missing days NaN), the flags,
+        per-series information, every finding and the row accounting of every file.
+
+    Raises
+    ------
+    InputError, UnitError, ConfigError
+        A file or a declared unit is unusable; a correction names an unknown series.
+    """
+    import pandas as pd
+
+    from ..errors import ConfigError
+    from ..records import Records
+    from .series import load_series
+
+    keys = [s.key for s in site.series]
+    for corr in site.correction:
+        if corr.series not in keys:
+            from ..errors import suggest
+
+            raise ConfigError(
+                f"[[correction]] names series {corr.series!r}, which the site file does not "
+                f"declare{suggest(corr.series, keys)}",
+                file=site.path,
+            )
+    specs = list(site.series)
+    iterator = specs
+    bar = None
+    if progress and specs and sys.stderr.isatty():
+        from tqdm import tqdm
+
+        bar = tqdm(specs, desc="reading", unit="series", file=sys.stderr, leave=False)
+        iterator = bar
+    loaded = []
+    try:
+        for spec in iterator:
+            if bar is not None:
+                bar.set_postfix_str(spec.file.name)
+            loaded.append(load_series(spec, site))
+    finally:
+        if bar is not None:
+            bar.close()
+    if loaded:
+        start = min(ls.daily.index[0] for ls in loaded)
+        end = max(ls.daily.index[-1] for ls in loaded)
+        index = pd.date_range(start, end, freq="D", name="date")
+    else:
+        index = pd.DatetimeIndex([], name="date")
+    daily = pd.DataFrame({ls.info.key: ls.daily.reindex(index) for ls in loaded}, index=index)
+    flags = pd.DataFrame(
+        {ls.info.key: ls.flags.reindex(index, fill_value=False).astype(bool) for ls in loaded},
+        index=index,
+    )
+    stage = [ls.subdaily for ls in loaded if ls.info.role == "stage" and ls.subdaily is not None]
+    return Records(
+        site=site,
+        daily=daily,
+        flags=flags,
+        series=tuple(ls.info for ls in loaded),
+        findings=tuple(f for ls in loaded for f in ls.findings),
+        accounting=tuple(ls.account for ls in loaded),
+        subdaily_stage=stage[0] if stage else None,
+    )

@@ -11,10 +11,12 @@ from pathlib import Path
 
 import numpy as np
 
+from ..config import SeriesSpec
 from ..errors import InputError
+from ._raw import RawSeries
 from ._text import TextTable, resolve_column
 
-__all__ = ["EXCEL_SUFFIXES", "read_excel_table"]
+__all__ = ["EXCEL_SUFFIXES", "read_excel_table", "read_excel_series"]
 
 EXCEL_SUFFIXES = (".xlsx", ".xlsm")
 
@@ -104,4 +106,30 @@ def read_excel_table(
         positions={k: p + 1 for k, p in positions.items()},
         delimiter="",
         encoding="",
+    )
+
+
+def read_excel_series(spec: SeriesSpec, what: str) -> RawSeries:
+    """Read the date (and time) and value cells of ``spec`` from one sheet of a workbook.
+
+    Raises
+    ------
+    InputError
+        Not a workbook, no such sheet, an empty or header-only sheet, a missing column.
+    """
+    wanted = {"date": spec.date, "value": spec.value}
+    if spec.time:
+        wanted["time"] = spec.time
+    table = read_excel_table(spec.file, wanted, what=what, sheet=spec.sheet)
+    frame = table.frame
+    return RawSeries(
+        file=table.file,
+        dates=frame["date"],
+        values=frame["value"],
+        times=frame["time"] if spec.time else None,
+        lines=table.lines,
+        units=None,
+        value_column=table.positions["value"],
+        date_column=table.positions["date"],
+        decimal=spec.decimal,
     )

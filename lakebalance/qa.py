@@ -1,0 +1,338 @@
+"""Quality checks on gauge series: pure functions on arrays, no file access.
+
+Each function answers one question about a series (where are the gaps, which readings repeat a
+timestamp, which readings are spikes...) and returns masks, runs or counts; the readers in
+:mod:`lakebalance.io` turn those answers into :class:`~lakebalance.records.Finding` objects and
+into the row accounting. All are vectorised over readings.
+
+Thresholds that come from the trade rather than from a published source are marked "common
+practice, no source"; recalled physical limits are marked "from memory".
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+if TYPE_CHECKING:  # pragma: no cover
+    import pandas as pd
+
+__all__ = [
+    "MAD_TO_SIGMA",
+    "STATE_ROLES",
+    "SPIKE_ROLES",
+    "NON_NEGATIVE_ROLES",
+    "ROLE_BOUNDS",
+    "runs",
+    "token_counts",
+    "DuplicateCheck",
+    "order_and_duplicates",
+    "out_of_bounds",
+    "robust_z",
+    "spikes",
+    "flatlines",
+    "implausible_units",
+    "outside_storage",
+]
+
+#: Scale factor from the median absolute deviation to the standard deviation of a normal
+#: distribution, 1/Φ⁻¹(3/4) (Rousseeuw and Croux, 1993, eq. 1.1; also Huber, 1981).
+MAD_TO_SIGMA = 1.482602218505602
+
+#: Roles that are states of the lake or the air (a stuck sensor repeats them); flows and depths
+#: are left out because zero or a constant pumping rate are legitimately constant.
+STATE_ROLES = frozenset(
+    {"stage", "tmax", "tmin", "tmean", "dewpoint", "rh", "rh_max", "rh_min", "wind", "solar"}
+)
+
+#: Roles checked for spikes: smooth states. Inflows, rain and evaporation are event-driven and
+#: skewed, where a robust z-score would flag every storm (common practice, no source).
+SPIKE_ROLES = STATE_ROLES
+
+#: Roles whose values cannot be negative (a negative one is rejected).
+NON_NEGATIVE_ROLES = frozenset(
+    {
+        "inflow",
+        "withdrawal",
+        "release",
+        "rain",
+        "evaporation",
+        "pan",
+        "rh",
+        "rh_max",
+        "rh_min",
+        "wind",
+        "solar",
+        "sunshine",
+    }
+)
+
+#: Physical bounds of single readings in internal units; outside them a reading is rejected.
+ROLE_BOUNDS: dict[str, tuple[float, float]] = {
+    "rh": (0.0, 100.0),  # % by definition
+    "rh_max": (0.0, 100.0),
+    "rh_min": (0.0, 100.0),
+    "sunshine": (0.0, 24.0),  # h per day, by definition
+    "tmax": (-90.0, 60.0),  # °C, beyond the recorded extremes of air temperature (from memory)
+    "tmin": (-90.0, 60.0),
+    "tmean": (-90.0, 60.0),
+    "dewpoint": (-90.0, 40.0),
+}
+
+
+def runs(mask: np.ndarray) -> np.ndarray:
+    """Start and stop (exclusive) indices of the runs of True in ``mask``, shape (n_runs, 2)."""
+    m = np.asarray(mask, dtype=np.int8)
+    if m.size == 0:
+        return np.zeros((0, 2), dtype=np.int64)
+    edges = np.flatnonzero(np.diff(np.concatenate(([0], m, [0]))))
+    return edges.reshape(-1, 2)
+
+
+def token_counts(cells: pd.Series, bad: np.ndarray, limit: int = 20) -> dict[str, int]:
+    """How often each non-numeric token occurs among the ``bad`` cells (most frequent first).
+
+    Tokens are the stripped cell texts (``n/a``, ``ICE``, ``<0.01``); beyond ``limit`` distinct
+    tokens the rest are counted together under ``"(other)"``.
+    """
+    import pandas as pd
+
+    if not np.any(bad):
+        return {}
+    tokens = pd.Series(cells[np.asarray(bad)]).astype(str).str.strip()
+    counts = tokens.value_counts()
+    out = {str(k): int(v) for k, v in counts.iloc[:limit].items()}
+    if len(counts) > limit:
+        out["(other)"] = int(counts.iloc[limit:].sum())
+    return out
+
+
+@dataclass(frozen=True)
+class DuplicateCheck:
+    """Result of :func:`order_and_duplicates` (indices refer to the input arrays).
+
+    ``order`` sorts the readings by time (stable); ``out_of_order`` counts readings earlier than
+    one before them in the file; ``merged`` marks repeated readings equal to the kept one (dropped,
+    their value is the same); ``conflict`` marks every reading of a timestamp that carries
+    different values (none is chosen: all are set missing); ``conflict_times`` the distinct
+    timestamps in conflict.
+    """
+
+    order: np.ndarray
+    out_of_order: int
+    merged: np.ndarray
+    conflict: np.ndarray
+    conflict_times: np.ndarray
+
+
+def order_and_duplicates(
+    times: np.ndarray, values: np.ndarray, tolerance: float = 0.0
+) -> DuplicateCheck:
+    """Sort readings by time and sort out repeated timestamps.
+
+    Parameters
+    ----------
+    times : numpy.ndarray of datetime64
+        Timestamps of the readings (no NaT).
+    values : numpy.ndarray of float
+        Values of the readings (no NaN), any unit.
+    tolerance : float
+        Values of one timestamp differing by at most this (same unit) count as equal.
+
+    Returns
+    -------
+    DuplicateCheck
+    """
+    t = np.asarray(times).astype("datetime64[ns]").view(np.int64)
+    v = np.asarray(values, dtype=float)
+    n = len(t)
+    if n == 0:
+        empty = np.zeros(0, dtype=bool)
+        return DuplicateCheck(np.zeros(0, np.int64), 0, empty, empty, np.zeros(0, "datetime64[ns]"))
+    running_max = np.maximum.accumulate(t)
+    out_of_order = int(np.count_nonzero(t[1:] < running_max[:-1]))
+    order = np.argsort(t, kind="stable")
+    ts = t[order]
+    vs = v[order]
+    same_as_prev = np.concatenate(([False], ts[1:] == ts[:-1]))
+    merged = np.zeros(n, dtype=bool)
+    conflict = np.zeros(n, dtype=bool)
+    conflict_times = np.zeros(0, dtype="datetime64[ns]")
+    if same_as_prev.any():
+        group_start = ~same_as_prev
+        gid = np.cumsum(group_start) - 1
+        gmin = np.full(gid[-1] + 1, np.inf)
+        gmax = np.full(gid[-1] + 1, -np.inf)
+        np.minimum.at(gmin, gid, vs)
+        np.maximum.at(gmax, gid, vs)
+        size = np.bincount(gid)
+        in_dup = size[gid] > 1
+        differs = (gmax - gmin)[gid] > tolerance
+        conflict_sorted = in_dup & differs
+        merged_sorted = same_as_prev & ~differs
+        merged[order] = merged_sorted
+        conflict[order] = conflict_sorted
+        conflict_times = np.unique(ts[conflict_sorted]).astype("datetime64[ns]")
+    return DuplicateCheck(order, out_of_order, merged, conflict, conflict_times)
+
+
+def out_of_bounds(role: str, values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Masks of impossible readings of ``role`` (internal units): ``(negative, out_of_range)``.
+
+    Negative flows, depths, humidities, wind speeds, radiation and sunshine are impossible;
+    humidity above 100 %, sunshine above 24 h and air temperatures beyond the recorded extremes
+    are out of range (see :data:`ROLE_BOUNDS`).
+    """
+    v = np.asarray(values, dtype=float)
+    with np.errstate(invalid="ignore"):
+        negative = (v < 0) if role in NON_NEGATIVE_ROLES else np.zeros(v.shape, dtype=bool)
+        lo, hi = ROLE_BOUNDS.get(role, (-np.inf, np.inf))
+        out_range = ((v < lo) | (v > hi)) & ~negative
+    return negative, out_range
+
+
+def robust_z(values: np.ndarray, window: int, floor: float = 0.0) -> np.ndarray:
+    """Robust z-score of each value against its centred rolling median.
+
+    ``z = |x - median_w(x)| / (1.4826 · max(median_w(|x - median_w(x)|), floor))`` with centred
+    windows of ``window`` values (NaN skipped; at least half a window needed).
+
+    Notes
+    -----
+    The Hampel identifier (Hampel, 1974; Pearson, 2002, "Outliers in process modeling and
+    identification", IEEE Trans. Control Syst. Technol. 10(1), eq. 6). ``floor`` keeps a flat
+    stretch (zero MAD) from turning a one-resolution-step change into an infinite score.
+    """
+    import pandas as pd
+
+    x = pd.Series(np.asarray(values, dtype=float))
+    w = max(int(window), 3)
+    minp = max(w // 2 + 1, 2)
+    med = x.rolling(w, center=True, min_periods=minp).median()
+    dev = (x - med).abs()
+    mad = dev.rolling(w, center=True, min_periods=minp).median()
+    scale = MAD_TO_SIGMA * np.maximum(mad.to_numpy(), floor)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        z = dev.to_numpy() / scale
+    z[dev.to_numpy() == 0] = 0.0
+    return z
+
+
+def spikes(
+    values: np.ndarray, window: int = 7, threshold: float = 6.0, resolution: float | None = None
+) -> np.ndarray:
+    """Mask of spikes: readings whose robust z-score (:func:`robust_z`) exceeds ``threshold``.
+
+    Parameters
+    ----------
+    values : numpy.ndarray
+        Readings in time order (NaN allowed), any unit.
+    window : int
+        Readings in the centred rolling window.
+    threshold : float
+        Robust z-score above which a reading is a spike (-).
+    resolution : float, optional
+        Gauge resolution in the unit of ``values``. The local MAD is floored at the larger of
+        the resolution and the series' typical (median non-zero) rolling MAD, so that flat or
+        quantised stretches do not turn one-step changes into spikes (common practice, no
+        source).
+    """
+    x = np.asarray(values, dtype=float)
+    if np.count_nonzero(~np.isnan(x)) < max(int(window), 3):
+        return np.zeros(x.shape, dtype=bool)
+    import pandas as pd
+
+    s = pd.Series(x)
+    w = max(int(window), 3)
+    med = s.rolling(w, center=True, min_periods=w // 2 + 1).median()
+    mad = (s - med).abs().rolling(w, center=True, min_periods=w // 2 + 1).median()
+    positive = mad[mad > 0]
+    floor = float(positive.median()) if len(positive) else 0.0
+    if resolution:
+        floor = max(floor, float(resolution))
+    if floor == 0.0:
+        finite = x[np.isfinite(x)]
+        floor = 1e-9 * max(float(np.max(np.abs(finite))) if finite.size else 1.0, 1.0)
+    z = robust_z(x, window, floor)
+    with np.errstate(invalid="ignore"):
+        return np.nan_to_num(z, nan=0.0) > threshold
+
+
+def flatlines(values: np.ndarray, min_days: int, tolerance: float = 0.0) -> np.ndarray:
+    """Runs of at least ``min_days`` consecutive identical values: array (n_runs, 2) start/stop.
+
+    A NaN breaks a run. ``tolerance`` (unit of ``values``) is the largest change still counted as
+    identical (0: exact repeats, as a stuck logger writes them).
+    """
+    x = np.asarray(values, dtype=float)
+    if x.size < 2 or min_days < 2:
+        return np.zeros((0, 2), dtype=np.int64)
+    same = np.abs(np.diff(x)) <= tolerance  # NaN compares False: breaks a run
+    r = runs(same)
+    if r.size == 0:
+        return r
+    r = np.column_stack((r[:, 0], r[:, 1] + 1))  # n equal steps join n + 1 values
+    return r[(r[:, 1] - r[:, 0]) >= min_days]
+
+
+def implausible_units(role: str, daily: np.ndarray) -> str | None:
+    """Plain-words reason why daily values (internal units) of ``role`` look declared in the
+    wrong unit, or None when they look plausible.
+
+    The limits are generous physical bounds (from memory, or common practice, no source): a lake
+    stage does not range over more than 100 m or move more than 1 m a day as a typical step; a
+    daily mean river inflow above 300 000 m³/s exceeds the largest rivers; daily rain above 2 m
+    and lake evaporation above 0.1 m/d exceed the world records; a humidity series whose maximum is
+    at most 1.0 is a fraction declared as %; air temperatures with a median above 45 °C are in °F
+    or K; a median daily wind above 20 m/s is in km/h or knots; daily solar radiation above
+    50 MJ m⁻² d⁻¹ exceeds the radiation at the top of the atmosphere.
+    """
+    x = np.asarray(daily, dtype=float)
+    x = x[np.isfinite(x)]
+    if x.size < 3:
+        return None
+    p01, p50, p99 = np.percentile(x, [1, 50, 99])
+    if role == "stage":
+        step = np.abs(np.diff(np.asarray(daily, dtype=float)))
+        step = step[np.isfinite(step)]
+        typical_step = float(np.median(step)) if step.size else 0.0
+        if p99 - p01 > 100.0:
+            return f"stage ranges over {p99 - p01:.4g} m (1st-99th percentile); cm or mm declared as m?"
+        if typical_step > 1.0:
+            return (
+                f"typical day-to-day stage change is {typical_step:.4g} m; cm or mm declared as m?"
+            )
+    elif role in ("inflow", "withdrawal", "release"):
+        if p99 > 3.0e5:
+            return f"daily flows reach {p99:.4g} m³/s; L/s or m³/d declared as m³/s?"
+    elif role == "rain":
+        if p99 > 2.0:
+            return f"daily rain reaches {p99:.4g} m; mm declared as m?"
+    elif role in ("evaporation", "pan"):
+        if p99 > 0.1:
+            return f"daily evaporation reaches {p99:.4g} m; mm declared as cm or m?"
+    elif role in ("rh", "rh_max", "rh_min"):
+        if x.max() <= 1.0:
+            return "humidity never exceeds 1: a fraction declared as %?"
+    elif role in ("tmax", "tmin", "tmean", "dewpoint"):
+        if p50 > 45.0:
+            return f"median temperature is {p50:.4g} °C; °F or K declared as °C?"
+    elif role == "wind":
+        if p50 > 20.0:
+            return f"median wind is {p50:.4g} m/s; km/h or knots declared as m/s?"
+    elif role == "solar":
+        if p99 > 50.0:
+            return f"daily solar radiation reaches {p99:.4g} MJ/m²/d; W/m² declared as MJ/m²/d?"
+    elif role == "sunshine":
+        if p99 > 24.0:
+            return f"daily sunshine reaches {p99:.4g} h; minutes declared as hours?"
+    return None
+
+
+def outside_storage(stage_m: np.ndarray, min_stage_m: float, max_stage_m: float) -> np.ndarray:
+    """Mask of stages (m) below the lowest or above the highest level of the storage relation."""
+    h = np.asarray(stage_m, dtype=float)
+    with np.errstate(invalid="ignore"):
+        return (h < min_stage_m) | (h > max_stage_m)
