@@ -19,6 +19,8 @@ import numpy as np
 if TYPE_CHECKING:  # pragma: no cover
     import pandas as pd
 
+    from .records import Finding
+
 __all__ = [
     "MAD_TO_SIGMA",
     "STATE_ROLES",
@@ -35,6 +37,7 @@ __all__ = [
     "flatlines",
     "implausible_units",
     "outside_storage",
+    "outside_storage_findings",
 ]
 
 #: Scale factor from the median absolute deviation to the standard deviation of a normal
@@ -336,3 +339,35 @@ def outside_storage(stage_m: np.ndarray, min_stage_m: float, max_stage_m: float)
     h = np.asarray(stage_m, dtype=float)
     with np.errstate(invalid="ignore"):
         return (h < min_stage_m) | (h > max_stage_m)
+
+
+def outside_storage_findings(
+    stage_m: pd.Series, min_stage_m: float, max_stage_m: float, series: str = "stage"
+) -> list[Finding]:
+    """One ``outside_storage`` finding per run of days whose stage (m) lies outside the relation.
+
+    ``stage_m`` is a daily Series indexed by date. The values are kept (action ``"kept"``): the
+    storage relation's own ``below``/``above`` policy decides what its users do with them.
+    """
+    from .records import Finding
+
+    h = stage_m.to_numpy(dtype=float)
+    mask = outside_storage(h, min_stage_m, max_stage_m)
+    out = []
+    for a, b in runs(mask):
+        seg = h[a:b]
+        side = "below" if np.nanmax(seg) < min_stage_m else "above"
+        if np.nanmin(seg) < min_stage_m and np.nanmax(seg) > max_stage_m:  # pragma: no cover
+            side = "below and above"
+        out.append(
+            Finding(
+                series,
+                "outside_storage",
+                stage_m.index[a].date().isoformat(),
+                stage_m.index[b - 1].date().isoformat(),
+                int(b - a),
+                "kept",
+                f"stage {side} the storage relation ({min_stage_m:.6g} to {max_stage_m:.6g} m)",
+            )
+        )
+    return out

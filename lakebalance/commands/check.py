@@ -1,0 +1,124 @@
+"""``lakebalance check SITE.toml``: load every series of a site and report what was found."""
+
+from __future__ import annotations
+
+import argparse
+
+from ._common import add_json, add_site
+
+HELP = "load and check the gauge records of a site: periods, missing days, findings, row accounting"
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    """Arguments of ``check``: the site file and ``--json``."""
+    add_site(parser)
+    add_json(parser)
+
+
+def _storage_findings(site, records) -> tuple[list, str | None]:
+    """Findings of stage outside the storage relation, when one can be loaded."""
+    from .. import api
+
+    load_storage = getattr(api, "load_storage", None)
+    if site.storage is None or load_storage is None or not records.has("stage"):
+        return [], None
+    from ..errors import LakebalanceError
+
+    try:
+        curve = load_storage(site)
+    except LakebalanceError as exc:
+        return [], f"storage relation not checked against stage: {exc.one_line()[7:]}"
+    from ..qa import outside_storage_findings
+
+    key = records.keys("stage")[0]
+    return outside_storage_findings(
+        records.daily[key], curve.min_stage_m, curve.max_stage_m, key
+    ), None
+
+
+def run(args: argparse.Namespace) -> int:
+    """Load the records, print the report (text or JSON), return 0."""
+    import sys
+
+    from .. import api
+    from .._json import dumps
+
+    site = api.load_site(args.site)
+    records = api.load_records(site, progress=not args.json)
+    extra, note = _storage_findings(site, records)
+    findings = list(records.findings) + extra
+    if args.json:
+        doc = {
+            "site": site.site.name,
+            "site_file": str(site.path),
+            "timezone": site.site.timezone,
+            "period": {
+                "first": records.daily.index[0].date().isoformat() if len(records.daily) else None,
+                "last": records.daily.index[-1].date().isoformat() if len(records.daily) else None,
+            },
+            "series": [
+                {
+                    **{
+                        k: getattr(s, k)
+                        for k in (
+                            "key",
+                            "role",
+                            "name",
+                            "file",
+                            "declared_units",
+                            "internal_units",
+                            "statistic",
+                            "first",
+                            "last",
+                            "days",
+                            "missing",
+                            "flagged",
+                            "rejected",
+                        )
+                    },
+                    "findings": [f for f in findings if f.series == s.key],
+                }
+                for s in records.series
+            ],
+            "accounting": list(records.accounting),
+            "notes": [note] if note else [],
+        }
+        print(dumps(doc))
+        return 0
+    out = sys.stdout
+    print(f"site: {site.site.name}  ({site.path})", file=out)
+    if len(records.daily):
+        print(
+            f"records: {records.daily.index[0].date()} to {records.daily.index[-1].date()}, "
+            f"{len(records.daily)} days, {len(records.series)} series",
+            file=out,
+        )
+    for s in records.series:
+        print("", file=out)
+        print(f"{s.key}  [{s.declared_units} -> {s.internal_units}, daily {s.statistic}]", file=out)
+        print(f"  file:     {s.file}", file=out)
+        print(f"  period:   {s.first} to {s.last}, {s.days} days", file=out)
+        print(
+            f"  missing:  {s.missing} days   flagged: {s.flagged} days   rejected: {s.rejected} rows",
+            file=out,
+        )
+        mine = [f for f in findings if f.series == s.key]
+        if not mine:
+            print("  findings: none", file=out)
+            continue
+        print(f"  findings: {len(mine)}", file=out)
+        for f in mine:
+            span = f.first if f.first == f.last else f"{f.first} to {f.last}"
+            span = span if f.first is not None else "-"
+            detail = f"  ({f.detail})" if f.detail else ""
+            print(f"    {f.kind:<22} {span:<42} n={f.count:<7} {f.action}{detail}", file=out)
+    print("", file=out)
+    print("row accounting (read = used + flagged + rejected):", file=out)
+    for a in records.accounting:
+        print(
+            f"  {a.series:<24} {a.read:>9} = {a.used:>9} + {a.flagged:>7} + {a.rejected:>7}   {a.file}",
+            file=out,
+        )
+    if note:
+        print(f"note: {note}", file=out)
+    return 0
