@@ -27,6 +27,11 @@ _EXPORTS = {
     "RangeError": "lakebalance.errors",
     "lake_evaporation": "lakebalance.api",
     "EvaporationResult": "lakebalance.evaporation",
+    "fit_rating": "lakebalance.api",
+    "RatingFit": "lakebalance.outlet",
+    "Rating": "lakebalance.outlet",
+    "FitOptions": "lakebalance.outlet",
+    "fit_rating_curve": "lakebalance.outlet",
 }
 
 __all__ = ["__version__", *_EXPORTS]

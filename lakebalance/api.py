@@ -134,3 +134,95 @@ def lake_evaporation(
             rain_m = daily[rain_keys].mean(axis=1, skipna=True)
             changes["rain_m3"] = surface_volume_m3(rain_m, area_m2).rename("rain_m3")
     return _dc.replace(result, **changes) if changes else result
+
+# ---- outlet rating ----------------------------------------------------------------------------
+if TYPE_CHECKING:  # pragma: no cover
+    import numpy as _np
+
+    from .outlet.fit import FitOptions, RatingFit
+
+__all__ += ["fit_rating", "rating_options"]
+
+
+def rating_options(site: Site) -> FitOptions:
+    """The fit options an ``[outlet]`` section asks for (component keys become ``name.param``)."""
+    from .errors import ConfigError
+    from .outlet.fit import FitOptions
+
+    opts = site.outlet
+    if opts is None:
+        raise ConfigError("the site file has no [outlet] section", file=site.path)
+    fixed, initial, bounds = dict(opts.fixed), dict(opts.initial), {}
+    for key, pair in opts.bounds.items():
+        bounds[key] = tuple(pair)
+    for comp in opts.component:
+        fixed.update({f"{comp.name}.{k}": v for k, v in comp.fixed.items()})
+        initial.update({f"{comp.name}.{k}": v for k, v in comp.initial.items()})
+        bounds.update({f"{comp.name}.{k}": tuple(v) for k, v in comp.bounds.items()})
+    for key, pair in bounds.items():
+        if len(pair) != 2:
+            raise ConfigError(
+                f"[outlet] bounds of '{key}' must be [lower, upper], got {list(pair)}",
+                file=site.path,
+            )
+    return FitOptions(
+        residuals=opts.residuals,
+        fixed=fixed,
+        initial=initial,
+        bounds=bounds,
+        bootstrap=opts.bootstrap,
+    )
+
+
+def fit_rating(site: Site, *, rng: _np.random.Generator | None = None) -> RatingFit:
+    """Fit the outlet rating of ``site`` to its spot gaugings.
+
+    Parameters
+    ----------
+    site : Site
+        The validated site file; ``[outlet]`` names the gaugings file, the control form and any
+        fixed, initial or bounded parameters (SI).
+    rng : numpy.random.Generator, optional
+        Source of the bootstrap draws (default: seeded from ``[site] seed``).
+
+    Returns
+    -------
+    RatingFit
+        Parameters with standard errors, covariance and intervals; ``predict`` gives discharge
+        (m³/s) with confidence or prediction bands. See ``docs/rating.md``.
+
+    Raises
+    ------
+    ConfigError, InputError, FitError
+        Missing section or gaugings file, an unreadable table, or gaugings that cannot fit.
+    """
+    import numpy as np
+
+    from .errors import ConfigError, FitError
+    from .io.gaugings import read_gaugings
+    from .outlet.fit import fit_rating_curve
+    from .outlet.laws import law_from_options
+
+    options = rating_options(site)
+    try:
+        law = law_from_options(site.outlet)
+    except ConfigError as exc:
+        raise ConfigError(exc.message, file=site.path) from None
+    g = read_gaugings(site.outlet)
+    if rng is None and options.bootstrap > 0:
+        rng = np.random.default_rng(site.site.seed)
+    try:
+        return fit_rating_curve(
+            law,
+            g.stage_m,
+            g.discharge_m3s,
+            dates=g.date,
+            weights=g.weight,
+            options=options,
+            rng=rng,
+        )
+    except FitError as exc:
+        raise FitError(exc.message, file=g.file) from None
+    except ConfigError as exc:
+        raise ConfigError(exc.message, file=site.path) from None
+

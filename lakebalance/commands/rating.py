@@ -1,0 +1,130 @@
+"""``lakebalance rating``: fit the outlet rating curve to the spot gaugings."""
+
+from __future__ import annotations
+
+import argparse
+
+from ._common import add_json, add_out, add_seed, add_site
+
+HELP = "fit the outlet rating curve to the spot gaugings, with its uncertainty"
+
+CAUTION = (
+    "Rating curves beyond the gauged range are extrapolations. Where outflows inform dam "
+    "safety, spillway capacity, flood levels or public water supply, defer to local codes and "
+    "a licensed professional engineer."
+)
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    add_site(parser)
+    add_json(parser)
+    add_out(parser)
+    add_seed(parser)
+
+
+def _stage_record(site):  # -> pandas Series or None
+    if not site.series_of("stage"):
+        return None
+    from ..api import load_records
+
+    records = load_records(site)
+    daily = records.daily
+    return daily["stage"] if "stage" in daily.columns else None
+
+
+def run(args: argparse.Namespace) -> int:
+    import warnings
+
+    import numpy as np
+
+    from .._json import dumps
+    from ..api import fit_rating, load_site
+    from ..errors import FitError, LakebalanceWarning
+    from ..outlet.diagnostics import extrapolation_check, shift_test
+
+    site = load_site(args.site)
+    seed = site.site.seed if args.seed is None else args.seed
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", LakebalanceWarning)  # collected in fit.warnings
+        fit = fit_rating(site, rng=np.random.default_rng(seed))
+    messages = list(fit.warnings)
+    shift = None
+    try:
+        shift = shift_test(fit, site.outlet.shift_date)
+        messages += shift.messages()
+    except FitError as exc:
+        messages.append(f"no rating-shift test: {exc.message}")
+    stage = _stage_record(site)
+    extra = extrapolation_check(fit, stage) if stage is not None else None
+    if extra is not None:
+        messages += extra.messages()
+
+    if args.out is not None:
+        _write_outputs(args.out, fit, stage)
+
+    if args.json:
+        doc = {
+            "site": site.site.name,
+            "form": fit.form,
+            "residuals": fit.residuals,
+            "parameters": fit.parameter_table(),
+            "derived": fit.derived,
+            "n": fit.n,
+            "dof": fit.dof,
+            "se_percent": fit.se_percent,
+            "gauged_range": list(fit.gauged_range),
+            "zero_flow_stage_m": fit.zero_flow_stage_m,
+            "bootstrap": int(site.outlet.bootstrap),
+            "seed": seed,
+            "shift_test": None
+            if shift is None
+            else {
+                "by": shift.by,
+                "p_value": shift.p_value,
+                "first_shift": shift.first_shift,
+                "periods": shift.periods,
+            },
+            "extrapolation": extra,
+            "warnings": messages,
+            "caution": CAUTION,
+        }
+        print(dumps(doc))
+        return 0
+    print(fit.summary())
+    if shift is not None:
+        print()
+        print(f"rating-shift test ({shift.by}):")
+        for row in shift.periods.itertuples():
+            mark = "  <- departs" if row.shifted else ""
+            print(
+                f"  {row.period:<18s} n={row.n:<4d} mean residual {row.mean_residual:+.4f} "
+                f"[{row.lower:+.4f}, {row.upper:+.4f}]{mark}"
+            )
+    for m in messages:
+        if m not in fit.warnings:  # those are in the summary's notes
+            print(f"warning: {m}")
+    print()
+    print(f"caution: {CAUTION}")
+    if args.out is not None:
+        print(f"wrote rating tables and figures to {args.out}")
+    return 0
+
+
+def _write_outputs(out, fit, stage) -> None:
+    from ..io.output import save_figure, write_csv
+    from ..report.figures_rating import curve_grid, rating_figure, rating_residual_figure
+
+    out.mkdir(parents=True, exist_ok=True)
+    write_csv(out / "rating_gaugings.csv", fit.table, index=False)
+    top = None if stage is None or stage.dropna().empty else float(stage.max())
+    h = curve_grid(fit, top)
+    conf = fit.predict(h, "confidence").frame()
+    pred = fit.predict(h, "prediction").frame()
+    conf["prediction_lower_m3s"] = pred["lower_m3s"]
+    conf["prediction_upper_m3s"] = pred["upper_m3s"]
+    conf = conf.rename(
+        columns={"lower_m3s": "confidence_lower_m3s", "upper_m3s": "confidence_upper_m3s"}
+    )
+    write_csv(out / "rating_curve.csv", conf, index=False)
+    save_figure(out / "rating.png", rating_figure(fit, top))
+    save_figure(out / "rating_residuals.png", rating_residual_figure(fit))
