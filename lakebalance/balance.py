@@ -1,0 +1,927 @@
+"""Daily water-balance closure, aggregation by month and water year, and Monte Carlo bands.
+
+The balance of a lake over one calendar day (all terms m³ per day)::
+
+    ΔV = I + P·Ā − E·Ā − O − W − R + residual
+
+with ΔV the change of storage between the day's two boundaries (00:00 and 24:00), I the gauged
+inflows, P and E the rain and lake-evaporation depths (m/d) on the mean lake area Ā of the day,
+O the outlet outflow from the rating, W metered withdrawals and R metered releases. The residual
+(positive = an unexplained gain) collects everything not measured: seepage, ungauged inflow,
+unmetered withdrawals, and the errors of every term.
+
+Stage within a day
+------------------
+The gauge record gives one stage per day (the daily mean). Storage change needs the stage at the
+day boundaries; the outlet integral needs the stage path inside the day, because a nonlinear law
+applied to a daily mean stage is biased (Jensen's inequality). This module:
+
+1. takes the boundary stage from the sub-daily record where it is given (``boundary_stage_m``);
+   elsewhere estimates it from the daily means, either as the mean of the two adjacent daily means
+   (``"adjacent_mean"``, second order) or with the fourth-order interface formula of finite-volume
+   reconstruction ``h_{i+1/2} = [7(h̄_i + h̄_{i+1}) − (h̄_{i−1} + h̄_{i+2})]/12`` (``"fourth_order"``,
+   Colella and Woodward, 1984, eq. 1.6);
+2. takes the stage path inside day d as the quadratic in time through the two boundary stages
+   whose mean over the day equals the daily mean:
+   ``h(τ) = h_s(1 − τ) + h_e τ + 6 (h̄ − (h_s + h_e)/2) τ (1 − τ)``, τ ∈ [0, 1];
+3. integrates the outlet law, the area, and so the rain and evaporation volumes along that path
+   with Gauss–Legendre quadrature (3 nodes by default, exact for polynomials of degree 5).
+
+This is exact for the two analytic cases of the tests: a vertical-walled basin draining through
+an orifice (Torricelli), whose stage is exactly quadratic in time and whose discharge is linear
+in time; and a linear reservoir, whose outflow is linear in stage so that its daily volume depends
+on the daily mean stage only.
+
+Uncertainty
+-----------
+:func:`add_uncertainty` runs a Monte Carlo over the errors of every term: relative errors per term
+(split into a part that persists through a water year and a part independent from day to day), a
+relative error of the storage relation's area, the rating's parameter covariance, and the stage
+gauge's resolution (uniform quantisation error at each day boundary, so that storage errors
+telescope instead of accumulating). It is vectorised over draws × days (no loop over days).
+
+References
+----------
+Colella, P. and Woodward, P. R. (1984). The Piecewise Parabolic Method (PPM) for gas-dynamical
+simulations. Journal of Computational Physics 54, 174–201, eq. (1.6).
+Winter, T. C. (1981). Uncertainties in estimating the water balance of lakes. Water Resources
+Bulletin 17(1), 82–115.
+Neff, B. P. and Nicholas, J. R. (2005). Uncertainty in the Great Lakes water balance. U.S.
+Geological Survey Scientific Investigations Report 2004-5100.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass, field, replace
+from functools import cache, cached_property
+from typing import Literal
+
+import numpy as np
+import pandas as pd
+
+from .units import SECONDS_PER_DAY, factor
+
+__all__ = [
+    "DailyTerms",
+    "ClosureOptions",
+    "TermErrors",
+    "OutletParameters",
+    "Balance",
+    "close_daily",
+    "add_uncertainty",
+    "water_year_of",
+    "day_path",
+    "TERM_SIGNS",
+]
+
+Array = np.ndarray
+StageFn = Callable[[Array], Array]
+
+#: Sign of each measured term in the storage change (+ gain, − loss).
+TERM_SIGNS: dict[str, int] = {
+    "inflow": +1,
+    "rain": +1,
+    "evaporation": -1,
+    "outflow": -1,
+    "withdrawal": -1,
+    "release": -1,
+}
+_M_TO_MM = None  # filled lazily from the unit layer
+
+
+def _m_to_mm() -> float:
+    global _M_TO_MM
+    if _M_TO_MM is None:
+        _M_TO_MM = factor("m", "mm")
+    return _M_TO_MM
+
+
+# --------------------------------------------------------------------------------------------
+# Inputs and options
+# --------------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class DailyTerms:
+    """The daily records that enter the balance, all on one daily index named ``date``.
+
+    Parameters
+    ----------
+    stage_m : pandas.Series
+        Daily mean stage on the gauge datum, m. Its index (tz-naive calendar days) is the index
+        of the balance.
+    inflow_m3s : mapping of str to pandas.Series
+        Daily mean gauged inflow of each tributary, m³/s.
+    rain_m : pandas.Series, optional
+        Daily rain depth on the lake, m per day.
+    evaporation_m : pandas.Series, optional
+        Daily lake evaporation depth, m per day.
+    withdrawal_m3s : pandas.Series, optional
+        Daily mean metered withdrawal (all offtakes summed), m³/s.
+    release_m3s : pandas.Series, optional
+        Daily mean metered release (all releases summed), m³/s.
+    boundary_stage_m : pandas.Series, optional
+        Stage at 00:00 of each date (the start of that day), m, e.g. interpolated from a
+        sub-daily record; may include the day after the last date (its end). NaN where unknown.
+
+    A term given as None is absent from this lake (taken as zero and listed in
+    :attr:`Balance.absent_terms`); a NaN day in a given term makes that day's residual NaN.
+    """
+
+    stage_m: pd.Series
+    inflow_m3s: Mapping[str, pd.Series] = field(default_factory=dict)
+    rain_m: pd.Series | None = None
+    evaporation_m: pd.Series | None = None
+    withdrawal_m3s: pd.Series | None = None
+    release_m3s: pd.Series | None = None
+    boundary_stage_m: pd.Series | None = None
+
+
+@dataclass(frozen=True)
+class ClosureOptions:
+    """How the daily closure is made.
+
+    Parameters
+    ----------
+    boundary_rule : {"adjacent_mean", "fourth_order"}
+        Estimate of the day-boundary stage from daily means where no sub-daily value is given.
+    nodes : int
+        Gauss–Legendre nodes per day for the outlet, area, rain and evaporation integrals.
+    water_year_start : int
+        First month (1–12) of the water year.
+    """
+
+    boundary_rule: Literal["adjacent_mean", "fourth_order"] = "adjacent_mean"
+    nodes: int = 3
+    water_year_start: int = 1
+
+
+@dataclass(frozen=True)
+class TermErrors:
+    """One-sigma errors of the balance terms for the Monte Carlo.
+
+    Defaults are typical values of published practice. From memory, Winter (1981) reports for
+    lake budgets: gauged streamflow 5–15% (good records about 10%), lake precipitation from
+    gauges 5–15%, lake evaporation 10–20% by mass-transfer or pan methods (about 15%); metered
+    withdrawals and releases are usually better than 5%. Neff and Nicholas (2005) give monthly
+    component uncertainties of 1.5–45% for the Great Lakes. A stage resolution of 0.003 m
+    (0.01 ft) is a common recording resolution (from memory); an area error of 2% of the storage
+    relation is common practice, no source. The split of each term's error into a part that
+    persists over a water year (``systematic`` share of the variance) and a day-to-day
+    independent part is a modelling assumption (common practice, no source).
+
+    Parameters
+    ----------
+    inflow, rain, evaporation, withdrawal, release : float
+        Relative error (-) of each term (each tributary independently).
+    area : float
+        Relative error (-) of the storage relation (scales ΔV and the rain and evaporation
+        volumes together; one draw per member for the whole record).
+    stage_resolution_m : float
+        Resolution of the stage gauge, m (uniform error ±resolution/2 at each day boundary).
+    systematic : float
+        Share (0–1) of each term's error variance that persists through a water year.
+    """
+
+    inflow: float = 0.10
+    rain: float = 0.10
+    evaporation: float = 0.15
+    withdrawal: float = 0.05
+    release: float = 0.05
+    area: float = 0.02
+    stage_resolution_m: float = 0.003
+    systematic: float = 0.5
+
+    def __post_init__(self) -> None:
+        for name in ("inflow", "rain", "evaporation", "withdrawal", "release", "area"):
+            v = getattr(self, name)
+            if not (math.isfinite(v) and v >= 0):
+                raise ValueError(f"relative error {name} must be >= 0, got {v!r}")
+        if not (0.0 <= self.systematic <= 1.0):
+            raise ValueError(f"systematic share must lie in [0, 1], got {self.systematic!r}")
+        if not (self.stage_resolution_m >= 0):
+            raise ValueError("stage resolution must be >= 0 m")
+
+    def relative(self, term: str) -> float:
+        """Relative error of a term name (``"inflow:<name>"`` uses ``inflow``)."""
+        return float(getattr(self, term.split(":")[0]))
+
+
+@dataclass(frozen=True)
+class OutletParameters:
+    """The outlet rating's parameters and their uncertainty, for the Monte Carlo.
+
+    Parameters
+    ----------
+    values : ndarray (k,)
+        Fitted parameter values (SI), in the order ``discharge_with`` expects.
+    discharge_with : callable
+        ``discharge_with(params (n, k), stage_m (n, ...)) -> m³/s``: member i uses row i.
+    cov : ndarray (k, k), optional
+        Parameter covariance (SI²), used when ``sample`` is None.
+    sample : callable, optional
+        ``sample(rng, n) -> ndarray (n, k)`` drawing parameter sets (e.g. from a bootstrap).
+    names : tuple of str
+        Parameter names (for notes).
+    """
+
+    values: Array
+    discharge_with: Callable[[Array, Array], Array]
+    cov: Array | None = None
+    sample: Callable[[np.random.Generator, int], Array] | None = None
+    names: tuple[str, ...] = ()
+
+    def draw(self, rng: np.random.Generator, n: int) -> Array:
+        """Parameter deviations from ``values``, ndarray (n, k)."""
+        v = np.asarray(self.values, dtype=float)
+        if self.sample is not None:
+            return np.asarray(self.sample(rng, n), dtype=float).reshape(n, v.size) - v
+        if self.cov is None:
+            return np.zeros((n, v.size))
+        cov = np.asarray(self.cov, dtype=float)
+        cov = np.where(np.isfinite(cov), cov, 0.0)
+        w, vec = np.linalg.eigh(0.5 * (cov + cov.T))
+        root = vec * np.sqrt(np.clip(w, 0.0, None))
+        return rng.standard_normal((n, v.size)) @ root.T
+
+
+# --------------------------------------------------------------------------------------------
+# Helpers
+# --------------------------------------------------------------------------------------------
+def water_year_of(index: pd.DatetimeIndex, start_month: int) -> Array:
+    """Water-year label of each date: the calendar year in which the water year ends.
+
+    With ``start_month = 10`` the water year 2021 runs from 1 October 2020 to 30 September 2021
+    (common practice, no source); with 1 it is the calendar year.
+    """
+    if not 1 <= int(start_month) <= 12:
+        raise ValueError(f"water_year_start must be a month 1-12, got {start_month!r}")
+    years = index.year.to_numpy()
+    if start_month == 1:
+        return years
+    return years + (index.month.to_numpy() >= start_month).astype(int)
+
+
+def _gauss_legendre(n: int) -> tuple[Array, Array]:
+    """Nodes on [0, 1] and weights summing to one."""
+    if n < 1:
+        raise ValueError("nodes must be >= 1")
+    x, w = np.polynomial.legendre.leggauss(n)
+    return 0.5 * (x + 1.0), 0.5 * w
+
+
+def day_path(stage_start_m: Array, stage_end_m: Array, stage_mean_m: Array, tau: Array) -> Array:
+    """Stage inside a day: the quadratic through both boundary stages with the given daily mean.
+
+    Parameters
+    ----------
+    stage_start_m, stage_end_m, stage_mean_m : ndarray (days,)
+        Stage at 00:00, at 24:00 and the daily mean, m.
+    tau : ndarray (nodes,)
+        Fractions of the day (0–1).
+
+    Returns
+    -------
+    ndarray (days, nodes)
+        Stage, m.
+
+    Notes
+    -----
+    ``h(τ) = h_s (1 − τ) + h_e τ + 6 (h̄ − (h_s + h_e)/2) τ (1 − τ)``; the mean of τ(1 − τ) over
+    [0, 1] is 1/6, so the path's mean is h̄.
+    """
+    hs = np.asarray(stage_start_m, dtype=float)[:, None]
+    he = np.asarray(stage_end_m, dtype=float)[:, None]
+    hm = np.asarray(stage_mean_m, dtype=float)[:, None]
+    t = np.asarray(tau, dtype=float)[None, :]
+    return hs * (1 - t) + he * t + 6.0 * (hm - 0.5 * (hs + he)) * t * (1 - t)
+
+
+def _boundaries(
+    stage: Array, given: Array | None, rule: Literal["adjacent_mean", "fourth_order"]
+) -> tuple[Array, Array]:
+    """Boundary stages (days + 1) and a flag of which came from the given sub-daily values."""
+    n = stage.size
+    b = np.full(n + 1, np.nan)
+    if n >= 2:
+        b[1:-1] = 0.5 * (stage[:-1] + stage[1:])
+        if rule == "fourth_order" and n >= 4:
+            inner = (7.0 * (stage[1:-2] + stage[2:-1]) - (stage[:-3] + stage[3:])) / 12.0
+            ok = np.isfinite(inner)
+            idx = np.arange(2, n - 1)
+            b[idx[ok]] = inner[ok]
+        elif rule not in ("adjacent_mean", "fourth_order"):
+            raise ValueError(f"unknown boundary_rule {rule!r}")
+    from_given = np.zeros(n + 1, dtype=bool)
+    if given is not None:
+        ok = np.isfinite(given)
+        b[ok] = given[ok]
+        from_given = ok
+    return b, from_given
+
+
+def _series(values: pd.Series | None, index: pd.DatetimeIndex, what: str) -> Array | None:
+    if values is None:
+        return None
+    s = pd.Series(values)
+    if not isinstance(s.index, pd.DatetimeIndex):
+        raise ValueError(f"{what}: the index must be a DatetimeIndex of days")
+    return s.reindex(index).to_numpy(dtype=float)
+
+
+# --------------------------------------------------------------------------------------------
+# The result
+# --------------------------------------------------------------------------------------------
+_BASE_COLUMNS = (
+    "stage_m",
+    "stage_start_m",
+    "stage_end_m",
+    "area_m2",
+    "storage_m3",
+    "storage_start_m3",
+    "storage_end_m3",
+    "storage_change_m3",
+    "inflow_m3",
+    "rain_m3",
+    "evaporation_m3",
+    "outflow_m3",
+    "withdrawal_m3",
+    "release_m3",
+    "residual_m3",
+    "complete",
+)
+_TERMS = ("inflow", "rain", "evaporation", "outflow", "withdrawal", "release")
+
+
+@dataclass(frozen=True)
+class Balance:
+    """A closed daily water balance (see the module docstring).
+
+    Attributes
+    ----------
+    daily : pandas.DataFrame
+        One row per day (index ``date``). Volumes in m³ per day: ``storage_change_m3``,
+        ``inflow_m3`` (sum) and ``inflow:<name>_m3`` per tributary, ``rain_m3``,
+        ``evaporation_m3``, ``outflow_m3``, ``withdrawal_m3``, ``release_m3``, ``residual_m3``
+        (positive = unexplained gain; NaN when any term is missing). Also ``stage_m`` (daily
+        mean), ``stage_start_m``/``stage_end_m`` (boundaries), ``area_m2`` (mean over the day),
+        ``storage_m3`` (at the daily mean stage), ``storage_start_m3``/``storage_end_m3`` and
+        ``complete`` (bool). After :func:`add_uncertainty`, ``residual_p05_m3`` and
+        ``residual_p95_m3``.
+    inflow_names : tuple of str
+        Tributary names, in the order of the ``inflow:<name>_m3`` columns.
+    absent_terms : tuple of str
+        Terms this lake has no record of (taken as zero).
+    water_year_start : int
+        First month of the water year.
+    notes : tuple of str
+        Plain-word notes on how the balance was made.
+    draws : int
+        Monte Carlo draws (0 when no uncertainty was run).
+    seed : int or None
+        Seed of the generator the bands were drawn with, when known.
+    """
+
+    daily: pd.DataFrame
+    inflow_names: tuple[str, ...] = ()
+    absent_terms: tuple[str, ...] = ()
+    water_year_start: int = 1
+    notes: tuple[str, ...] = ()
+    draws: int = 0
+    seed: int | None = None
+    monthly_bands: pd.DataFrame | None = field(default=None, repr=False)
+    annual_bands: pd.DataFrame | None = field(default=None, repr=False)
+    errors: TermErrors | None = None
+
+    # -- properties ----------------------------------------------------------------------
+    @property
+    def term_columns(self) -> list[str]:
+        """Measured-term columns (m³/d), tributaries included."""
+        return ["inflow_m3", *[f"inflow:{n}_m3" for n in self.inflow_names]] + [
+            f"{t}_m3" for t in _TERMS[1:]
+        ]
+
+    @property
+    def missing_days(self) -> int:
+        """Days whose residual is missing (some term missing)."""
+        return int((~self.daily["complete"]).sum())
+
+    @property
+    def period(self) -> tuple[pd.Timestamp, pd.Timestamp]:
+        """First and last date of the balance."""
+        return self.daily.index[0], self.daily.index[-1]
+
+    # -- aggregation ---------------------------------------------------------------------
+    def _aggregate(self, keys: Array, label: str) -> pd.DataFrame:
+        d = self.daily
+        complete = d["complete"].to_numpy()
+        cols = ["storage_change_m3", *self.term_columns, "residual_m3"]
+        values = d[cols].mul(complete, axis=0)
+        out = values.groupby(keys, sort=True).sum()
+        out.index.name = label
+        dates = pd.Series(d.index, index=d.index).groupby(keys, sort=True)
+        out.insert(0, "days", dates.size().to_numpy())
+        out.insert(1, "complete_days", pd.Series(complete).groupby(keys).sum().to_numpy())
+        out.insert(2, "start", dates.first().to_numpy())
+        out.insert(3, "end", dates.last().to_numpy())
+        out.insert(4, "storage_start_m3", d["storage_start_m3"].groupby(keys).first().to_numpy())
+        out.insert(5, "storage_end_m3", d["storage_end_m3"].groupby(keys).last().to_numpy())
+        area = d["area_m2"].where(complete)
+        out.insert(6, "mean_area_m2", area.groupby(keys).mean().to_numpy())
+        none = out["complete_days"] == 0
+        out.loc[none, cols] = np.nan
+        mm = _m_to_mm() / out["mean_area_m2"]
+        for c in cols:
+            out[c.replace("_m3", "_mm")] = out[c] * mm
+        gains = out["inflow_m3"] + out["rain_m3"]
+        out["closure_error_pct"] = 100.0 * out["residual_m3"] / gains.where(gains > 0)
+        return out
+
+    def monthly(self) -> pd.DataFrame:
+        """Monthly totals (m³ and mm over the mean lake area), with bands when available.
+
+        Terms are summed over the month's complete days only (``complete_days`` of ``days``),
+        so that each row adds up: ``storage_change = Σ terms (signed) + residual``.
+        ``closure_error_pct`` is the residual as a percentage of the measured gains (gauged
+        inflow plus rain). Index: the first day of each month.
+        """
+        idx = self.daily.index
+        keys = idx.to_period("M").to_timestamp()
+        out = self._aggregate(np.asarray(keys), "month")
+        out.index = pd.DatetimeIndex(out.index, name="month")
+        if self.monthly_bands is not None:
+            out = out.join(self.monthly_bands)
+        return out
+
+    def water_years(self) -> pd.DataFrame:
+        """Water-year totals (labelled by the calendar year in which each ends); see :meth:`monthly`.
+
+        With bands: ``residual_p05_m3``/``residual_p95_m3``, ``p_gain`` (share of draws with a
+        positive residual) and ``p_nonzero`` = |2·p_gain − 1|, the largest central confidence
+        level at which the band excludes zero.
+        """
+        keys = water_year_of(self.daily.index, self.water_year_start)
+        out = self._aggregate(keys, "water_year")
+        if self.annual_bands is not None:
+            out = out.join(self.annual_bands)
+        return out
+
+    def summary(self) -> str:
+        """A short plain-text summary of the whole period."""
+        wy = self.water_years()
+        first, last = self.period
+        lines = [
+            f"Water balance {first.date()} to {last.date()} ({len(self.daily)} days, "
+            f"{self.missing_days} with a missing term)",
+            f"absent terms: {', '.join(self.absent_terms) or 'none'}; "
+            f"Monte Carlo draws: {self.draws}" + (f" (seed {self.seed})" if self.seed else ""),
+            "",
+        ]
+        cols = ["complete_days", "storage_change_m3", "inflow_m3", "rain_m3", "evaporation_m3"]
+        cols += ["outflow_m3", "withdrawal_m3", "release_m3", "residual_m3", "closure_error_pct"]
+        if "residual_p05_m3" in wy:
+            cols += ["residual_p05_m3", "residual_p95_m3", "p_nonzero"]
+        with pd.option_context("display.width", 200, "display.max_columns", 30):
+            lines.append(wy[cols].to_string(float_format=lambda v: f"{v:,.4g}"))
+        lines += ["", *self.notes]
+        return "\n".join(lines)
+
+    @cached_property
+    def totals(self) -> dict[str, float]:
+        """Totals over all complete days, m³ (and the residual as % of gains)."""
+        d = self.daily[self.daily["complete"]]
+        out = {c: float(d[c].sum()) for c in ["storage_change_m3", *self.term_columns]}
+        out["residual_m3"] = float(d["residual_m3"].sum())
+        gains = out["inflow_m3"] + out["rain_m3"]
+        out["closure_error_pct"] = 100.0 * out["residual_m3"] / gains if gains > 0 else math.nan
+        return out
+
+
+# --------------------------------------------------------------------------------------------
+# Closure
+# --------------------------------------------------------------------------------------------
+def close_daily(
+    terms: DailyTerms,
+    *,
+    volume_fn: StageFn,
+    area_fn: StageFn,
+    outflow_fn: StageFn | None = None,
+    options: ClosureOptions = ClosureOptions(),
+) -> Balance:
+    """Close the water balance day by day.
+
+    Parameters
+    ----------
+    terms : DailyTerms
+        Daily records (stage m; flows m³/s; depths m per day).
+    volume_fn : callable
+        Storage (m³) at stage (m), vectorised.
+    area_fn : callable
+        Lake area (m²) at stage (m), vectorised.
+    outflow_fn : callable, optional
+        Outlet discharge (m³/s) at stage (m), vectorised; None for a lake without an outlet.
+    options : ClosureOptions
+        Boundary rule, quadrature nodes and water-year start.
+
+    Returns
+    -------
+    Balance
+
+    Notes
+    -----
+    For day d with boundary stages h_s, h_e, daily mean h̄ and path h(τ) (:func:`day_path`)::
+
+        ΔV_d = V(h_e) − V(h_s)
+        O_d  = T Σ_j w_j Q(h(τ_j)),   Ā_d = Σ_j w_j A(h(τ_j)),   T = 86 400 s
+        residual_d = ΔV_d − (Σ_i I_i T + P_d Ā_d − E_d Ā_d − O_d − W_d T − R_d T)
+
+    Example
+    -------
+    >>> import pandas as pd
+    >>> idx = pd.date_range("2021-01-01", periods=4, freq="D", name="date")
+    >>> t = DailyTerms(stage_m=pd.Series(1.0, index=idx))
+    >>> b = close_daily(t, volume_fn=lambda h: 1e6 * h, area_fn=lambda h: 1e6 + 0 * h)
+    >>> float(b.daily["residual_m3"].iloc[1])
+    0.0
+    """
+    stage_s = pd.Series(terms.stage_m, dtype=float)
+    if not isinstance(stage_s.index, pd.DatetimeIndex):
+        raise ValueError("stage_m must be indexed by a DatetimeIndex of days")
+    index = pd.DatetimeIndex(stage_s.index, name="date")
+    if not index.is_monotonic_increasing or index.has_duplicates:
+        raise ValueError("stage_m index must be increasing days without duplicates")
+    if len(index) > 1:
+        full = pd.date_range(index[0], index[-1], freq="D", name="date")
+        if len(full) != len(index):
+            stage_s = stage_s.reindex(full)
+            index = full
+    stage = stage_s.to_numpy(dtype=float)
+    n = stage.size
+    given = None
+    if terms.boundary_stage_m is not None:
+        bidx = index.append(pd.DatetimeIndex([index[-1] + pd.Timedelta(days=1)]))
+        given = pd.Series(terms.boundary_stage_m, dtype=float).reindex(bidx).to_numpy()
+    bnd, from_given = _boundaries(stage, given, options.boundary_rule)
+    hs, he = bnd[:-1], bnd[1:]
+
+    tau, w = _gauss_legendre(options.nodes)
+    path = day_path(hs, he, stage, tau)
+    ok_stage = np.isfinite(path).all(axis=1)
+    safe = np.where(np.isfinite(path), path, np.nanmean(stage) if np.isfinite(stage).any() else 0)
+    area_nodes = np.asarray(area_fn(safe), dtype=float)
+    area = np.where(ok_stage, area_nodes @ w, np.nan)
+    vs = np.where(np.isfinite(hs), np.asarray(volume_fn(np.nan_to_num(hs)), float), np.nan)
+    ve = np.where(np.isfinite(he), np.asarray(volume_fn(np.nan_to_num(he)), float), np.nan)
+    vmean = np.where(np.isfinite(stage), np.asarray(volume_fn(np.nan_to_num(stage)), float), np.nan)
+    dv = ve - vs
+    if outflow_fn is not None:
+        q_nodes = np.asarray(outflow_fn(safe), dtype=float)
+        outflow = np.where(ok_stage, (q_nodes @ w) * SECONDS_PER_DAY, np.nan)
+    else:
+        outflow = np.zeros(n)
+
+    absent: list[str] = []
+    if outflow_fn is None:
+        absent.append("outflow")
+    cols: dict[str, Array] = {}
+    names = tuple(terms.inflow_m3s)
+    if names:
+        per = {k: _series(v, index, f"inflow {k}") * SECONDS_PER_DAY for k, v in
+               terms.inflow_m3s.items()}  # fmt: skip
+        total = np.sum(np.vstack(list(per.values())), axis=0)
+        for k, v in per.items():
+            cols[f"inflow:{k}_m3"] = v
+    else:
+        total = np.zeros(n)
+        absent.append("inflow")
+    inflow = total
+
+    def depth_term(s: pd.Series | None, name: str) -> Array:
+        v = _series(s, index, name)
+        if v is None:
+            absent.append(name)
+            return np.zeros(n)
+        return v * area
+
+    def flow_term(s: pd.Series | None, name: str) -> Array:
+        v = _series(s, index, name)
+        if v is None:
+            absent.append(name)
+            return np.zeros(n)
+        return v * SECONDS_PER_DAY
+
+    rain = depth_term(terms.rain_m, "rain")
+    evap = depth_term(terms.evaporation_m, "evaporation")
+    withdrawal = flow_term(terms.withdrawal_m3s, "withdrawal")
+    release = flow_term(terms.release_m3s, "release")
+
+    measured = inflow + rain - evap - outflow - withdrawal - release
+    residual = dv - measured
+    complete = np.isfinite(residual)
+
+    daily = pd.DataFrame(
+        {
+            "stage_m": stage,
+            "stage_start_m": hs,
+            "stage_end_m": he,
+            "area_m2": area,
+            "storage_m3": vmean,
+            "storage_start_m3": vs,
+            "storage_end_m3": ve,
+            "storage_change_m3": dv,
+            "inflow_m3": inflow,
+            **cols,
+            "rain_m3": rain,
+            "evaporation_m3": evap,
+            "outflow_m3": outflow,
+            "withdrawal_m3": withdrawal,
+            "release_m3": release,
+            "residual_m3": residual,
+            "complete": complete,
+        },
+        index=index,
+    )
+    n_given = int(from_given.sum())
+    notes = [
+        f"day-boundary stage: {n_given} of {n + 1} from the sub-daily record, the rest by the "
+        f"{options.boundary_rule.replace('_', ' ')} rule from daily means",
+        f"outlet, area, rain and evaporation integrated along a quadratic stage path with "
+        f"{options.nodes}-node Gauss-Legendre quadrature",
+        f"{int((~complete).sum())} of {n} days have a missing term (residual left missing)",
+    ]
+    if absent:
+        notes.append(f"no record of: {', '.join(absent)} (taken as zero)")
+    return Balance(
+        daily=daily,
+        inflow_names=names,
+        absent_terms=tuple(absent),
+        water_year_start=options.water_year_start,
+        notes=tuple(notes),
+    )
+
+
+# --------------------------------------------------------------------------------------------
+# Monte Carlo
+# --------------------------------------------------------------------------------------------
+def _rating_jacobian(
+    outlet: OutletParameters, path: Array, weights: Array, ok: Array
+) -> tuple[Array, Array]:
+    """Daily outflow volume sensitivities: to the parameters (days, k) m³/unit and to stage."""
+    v = np.asarray(outlet.values, dtype=float)
+    k = v.size
+    days, nodes = path.shape
+    h = np.where(np.isfinite(path), path, 0.0)
+    step = np.maximum(np.abs(v) * 1e-6, 1e-9)
+    params = np.vstack([v + np.diag(step), v - np.diag(step)])  # (2k, k)
+    stacked = np.broadcast_to(h, (2 * k, days, nodes))
+    q = np.asarray(outlet.discharge_with(params, stacked), dtype=float)
+    grad = (q[:k] - q[k:]) / (2 * step)[:, None, None]  # (k, days, nodes)
+    jac = np.einsum("kdn,n->dk", grad, weights) * SECONDS_PER_DAY
+    jac[~ok] = 0.0
+    return jac, v
+
+
+def add_uncertainty(
+    balance: Balance,
+    *,
+    area_fn: StageFn,
+    outflow_fn: StageFn | None = None,
+    outlet: OutletParameters | None = None,
+    errors: TermErrors = TermErrors(),
+    draws: int = 1000,
+    rng: np.random.Generator,
+    seed: int | None = None,
+    nodes: int = 3,
+) -> Balance:
+    """Monte Carlo bands of the residual (daily, monthly, water-year) and P(residual ≠ 0).
+
+    Parameters
+    ----------
+    balance : Balance
+        From :func:`close_daily`.
+    area_fn : callable
+        Lake area (m²) at stage (m).
+    outflow_fn : callable, optional
+        Outlet discharge (m³/s) at stage (m), for the stage sensitivity of the outflow.
+    outlet : OutletParameters, optional
+        Rating parameters and covariance; None leaves the rating without parameter error.
+    errors : TermErrors
+        One-sigma errors of the terms.
+    draws : int
+        Monte Carlo draws.
+    rng : numpy.random.Generator
+        Source of randomness.
+    seed : int, optional
+        Recorded in the result.
+    nodes : int
+        Gauss–Legendre nodes (as in the closure).
+
+    Returns
+    -------
+    Balance
+        A copy with ``residual_p05_m3``/``residual_p95_m3`` columns and the monthly and annual
+        bands.
+
+    Notes
+    -----
+    Each draw m perturbs the residual of day d by::
+
+        e_md = Σ_k s_k T_kd σ_k (√ρ z_mky + √(1−ρ) ε_mkd)          (terms, year y of day d)
+             + a_m (ΔV_d − P_d + E_d)                              (area, a_m ~ N(0, σ_A²))
+             + J_d · δθ_m                                          (rating parameters)
+             + A(h_e) δ_m,d+1 − A(h_s) δ_m,d + T Σ_j w_j Q'(h_j)[(1−τ_j) δ_m,d + τ_j δ_m,d+1]
+
+    with s_k the sign of term k in the residual, ρ the systematic share, z and ε standard
+    normal, δ ~ U(−r/2, r/2) the boundary stage errors (the daily mean's error is taken as the
+    mean of its two boundaries'), and J_d the outflow volume's gradient in the parameters
+    (first order in the parameter deviation δθ_m, drawn from the fit's covariance or sampler).
+    The day-independent parts of all terms are summed into one normal deviate per draw and day
+    (a sum of independent normals is normal), so the cost is two random numbers per draw-day.
+    """
+    if draws < 2:
+        raise ValueError("draws must be >= 2")
+    d = balance.daily
+    n = len(d)
+    complete = d["complete"].to_numpy()
+    residual = d["residual_m3"].to_numpy()
+    rho = errors.systematic
+    tau, w = _gauss_legendre(nodes)
+    hs = d["stage_start_m"].to_numpy()
+    he = d["stage_end_m"].to_numpy()
+    path = day_path(hs, he, d["stage_m"].to_numpy(), tau)
+    ok = np.isfinite(path).all(axis=1) & complete
+
+    # ---- signed term volumes (sign as they enter the residual: residual = ΔV − Σ s T) -----
+    term_cols: list[tuple[str, Array]] = []
+    if balance.inflow_names:
+        for nm in balance.inflow_names:
+            term_cols.append((f"inflow:{nm}", -d[f"inflow:{nm}_m3"].to_numpy()))
+    for t in ("rain", "evaporation", "withdrawal", "release"):
+        if t not in balance.absent_terms:
+            term_cols.append((t, -TERM_SIGNS[t] * d[f"{t}_m3"].to_numpy()))
+    sig = np.array([errors.relative(nm) for nm, _ in term_cols])
+    tv = np.vstack([np.where(ok, v, 0.0) for _, v in term_cols]) if term_cols else np.zeros((0, n))
+    scaled = tv * sig[:, None]  # (K, days) residual change per unit z
+    indep_sd = np.sqrt((1.0 - rho) * np.sum(scaled**2, axis=0))  # (days,)
+    sys_cols = math.sqrt(rho) * scaled  # (K, days)
+
+    # ---- area: one draw per member ------------------------------------------------------
+    area_col = np.where(
+        ok,
+        d["storage_change_m3"].to_numpy()
+        - d["rain_m3"].to_numpy()
+        + d["evaporation_m3"].to_numpy(),
+        0.0,
+    )
+    # ---- rating ---------------------------------------------------------------------------
+    record_cols = [errors.area * area_col]  # coefficient columns of record-wide N(0,1) draws
+    record_z: list[Array] = [rng.standard_normal((draws, 1))]
+    notes = list(balance.notes)
+    if outlet is not None and outflow_fn is not None:
+        jac, _ = _rating_jacobian(outlet, path, w, ok)  # (days, k)
+        dtheta = outlet.draw(rng, draws)  # (draws, k)
+        record_cols.extend(jac.T)
+        record_z.append(dtheta)
+        notes.append("rating parameter uncertainty propagated to first order in the parameters")
+    rec_b = np.vstack(record_cols)  # (1 + k, days)
+    rec_z = np.hstack(record_z)  # (draws, 1 + k)
+
+    # ---- stage resolution -----------------------------------------------------------------
+    res = errors.stage_resolution_m
+    safe = np.where(np.isfinite(path), path, 0.0)
+    a_s = np.asarray(area_fn(np.nan_to_num(hs)), dtype=float)
+    a_e = np.asarray(area_fn(np.nan_to_num(he)), dtype=float)
+    if outflow_fn is not None:
+        eps = 1e-4  # m, central-difference step for dQ/dh
+        dq = (np.asarray(outflow_fn(safe + eps)) - np.asarray(outflow_fn(safe - eps))) / (2 * eps)
+        g_s = (dq * (1 - tau)[None, :]) @ w * SECONDS_PER_DAY
+        g_e = (dq * tau[None, :]) @ w * SECONDS_PER_DAY
+    else:
+        g_s = g_e = np.zeros(n)
+    c_prev = np.where(ok, -a_s + g_s, 0.0)
+    c_next = np.where(ok, a_e + g_e, 0.0)
+
+    # ---- chunks: whole water years ---------------------------------------------------------
+    wy = water_year_of(d.index, balance.water_year_start)
+    month_key = np.asarray(d.index.to_period("M").to_timestamp())
+    starts = np.flatnonzero(np.r_[True, wy[1:] != wy[:-1]])
+    ends = np.r_[starts[1:], n]
+    lo = np.full(n, np.nan)
+    hi = np.full(n, np.nan)
+    k5, k95 = _order_indices(draws)
+    month_draws: list[Array] = []
+    month_labels: list[pd.Timestamp] = []
+    year_draws: list[Array] = []
+    year_labels: list[int] = []
+    n_sys = sys_cols.shape[0]
+    base = np.where(ok, residual, 0.0)
+    carry: Array | None = None
+    rec_z32 = rec_z.astype(np.float32)
+    for a, b in zip(starts, ends, strict=True):
+        m = b - a
+        # persistent errors: one deviate per member (record-wide) or per member and year
+        z = np.hstack([rec_z32, rng.standard_normal((draws, n_sys), dtype=np.float32)])
+        coef = np.ascontiguousarray(np.vstack([rec_b[:, a:b], sys_cols[:, a:b]]), np.float32)
+        e = np.einsum("mk,kd->md", z, coef)  # small k: einsum's loops, no BLAS threads
+        e += _normal(rng, (draws, m)) * indep_sd[a:b].astype(np.float32)
+        if res > 0:
+            # boundary errors: the last boundary of a chunk is the first of the next one
+            u = np.empty((draws, m + 1), dtype=np.float32)
+            u[:, 0] = _uniform(rng, draws, res) if carry is None else carry
+            u[:, 1:] = _uniform(rng, (draws, m), res)
+            carry = u[:, -1].copy()
+            e += u[:, :-1] * c_prev[a:b].astype(np.float32)
+            e += u[:, 1:] * c_next[a:b].astype(np.float32)
+        e += base[a:b].astype(np.float32)
+        part = np.partition(e, (k5, k95), axis=0)
+        lo[a:b] = part[k5]
+        hi[a:b] = part[k95]
+        mk = month_key[a:b]
+        mstarts = np.flatnonzero(np.r_[True, mk[1:] != mk[:-1]])
+        month_draws.append(np.add.reduceat(e, mstarts, axis=1, dtype=np.float64))
+        month_labels.extend(pd.Timestamp(x) for x in mk[mstarts])
+        year_draws.append(e.sum(axis=1, dtype=np.float64)[:, None])
+        year_labels.append(int(wy[a]))
+    lo[~ok] = np.nan
+    hi[~ok] = np.nan
+
+    mdraw = np.hstack(month_draws)
+    ydraw = np.hstack(year_draws)
+    mcomplete = pd.Series(ok).groupby(month_key).sum().to_numpy()
+    ycomplete = pd.Series(ok).groupby(wy).sum().to_numpy()
+    monthly_bands = _band_table(mdraw, pd.DatetimeIndex(month_labels, name="month"), mcomplete)
+    annual_bands = _band_table(ydraw, pd.Index(year_labels, name="water_year"), ycomplete)
+    daily = d.copy()
+    daily["residual_p05_m3"] = lo
+    daily["residual_p95_m3"] = hi
+    notes.append(
+        f"Monte Carlo: {draws} draws; 5-95% bands; relative errors inflow {errors.inflow:g}, "
+        f"rain {errors.rain:g}, evaporation {errors.evaporation:g}, withdrawal "
+        f"{errors.withdrawal:g}, release {errors.release:g}, area {errors.area:g}; stage "
+        f"resolution {errors.stage_resolution_m:g} m; systematic share {errors.systematic:g}"
+    )
+    return replace(
+        balance,
+        daily=daily,
+        draws=draws,
+        seed=seed,
+        monthly_bands=monthly_bands,
+        annual_bands=annual_bands,
+        notes=tuple(notes),
+        errors=errors,
+    )
+
+
+@cache
+def _normal_table() -> Array:
+    """Φ⁻¹ at the centres of 2¹⁶ equal-probability bins, rescaled to unit variance (float32)."""
+    from scipy.special import ndtri
+
+    q = ndtri((np.arange(65536) + 0.5) / 65536.0)
+    return (q / q.std()).astype(np.float32)
+
+
+def _normal(rng: np.random.Generator, shape: tuple[int, ...]) -> Array:
+    """Standard normal deviates by inverse-transform sampling of 16 random bits (float32).
+
+    Each deviate is Φ⁻¹ at the centre of one of 2¹⁶ equal-probability bins (tails cut at
+    ±4.3σ, variance rescaled to one): indistinguishable from continuous normals for 5–95%
+    bands and sums, and about four times faster to draw than numpy's float32 ziggurat.
+    """
+    return np.take(_normal_table(), rng.integers(0, 65536, size=shape, dtype=np.uint16))
+
+
+def _uniform(rng: np.random.Generator, shape: int | tuple[int, ...], width: float) -> Array:
+    """Uniform deviates on (−width/2, width/2) from 16 random bits each (float32).
+
+    2¹⁶ equally spaced levels (bin centres) are ample for a quantisation error and let numpy
+    draw the bits several times faster than floating-point uniforms.
+    """
+    u = rng.integers(0, 65536, size=shape, dtype=np.uint16).astype(np.float32)
+    u += np.float32(0.5)
+    u *= np.float32(width / 65536.0)
+    u -= np.float32(0.5 * width)
+    return u
+
+
+def _order_indices(draws: int) -> tuple[int, int]:
+    """Order statistics used as the 5% and 95% quantiles (nearest rank)."""
+    k5 = max(0, math.ceil(0.05 * draws) - 1)
+    k95 = min(draws - 1, math.ceil(0.95 * draws) - 1)
+    return k5, k95
+
+
+def _band_table(draws: Array, index: pd.Index, complete: Array) -> pd.DataFrame:
+    lo, hi = np.quantile(draws, [0.05, 0.95], axis=0)
+    p_gain = (draws > 0).mean(axis=0)
+    out = pd.DataFrame(
+        {
+            "residual_p05_m3": lo,
+            "residual_p95_m3": hi,
+            "p_gain": p_gain,
+            "p_nonzero": np.abs(2.0 * p_gain - 1.0),
+        },
+        index=index,
+    )
+    out.loc[np.asarray(complete) == 0, :] = np.nan
+    return out
