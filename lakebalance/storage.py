@@ -62,6 +62,7 @@ __all__ = [
     "check_volumes",
     "storage_from_table",
     "storage_from_outline",
+    "compare_curves",
 ]
 
 Policy = Literal["error", "clamp", "extend"]
@@ -124,12 +125,12 @@ def integrate_area(
     return np.concatenate([[0.0], np.cumsum(dv)])
 
 
-def _where(rows: Sequence[int] | None, i: int) -> str:
-    return f"line {rows[i]}" if rows is not None else f"row {i + 1}"
+def _where(rows: Sequence[int] | None, i: int, label: str = "line") -> str:
+    return f"{label} {rows[i]}" if rows is not None else f"row {i + 1}"
 
 
-def _lines(rows: Sequence[int] | None, idx: np.ndarray) -> str:
-    shown = [_where(rows, int(i)) for i in idx[:_MAX_LISTED]]
+def _lines(rows: Sequence[int] | None, idx: np.ndarray, label: str = "line") -> str:
+    shown = [_where(rows, int(i), label) for i in idx[:_MAX_LISTED]]
     more = f" and {len(idx) - _MAX_LISTED} more" if len(idx) > _MAX_LISTED else ""
     return ", ".join(shown) + more
 
@@ -141,6 +142,7 @@ def validate_relation(
     *,
     rows: Sequence[int] | None = None,
     file: str | Path | None = None,
+    row_label: str = "line",
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:
     """Check a stage-area(-volume) table and return it as float arrays in increasing stage.
 
@@ -159,6 +161,8 @@ def validate_relation(
         The file line of each row, for messages (1-based).
     file : str or Path, optional
         The file the table came from, for messages.
+    row_label : str
+        What ``rows`` number (``"line"`` of a table, ``"feature"`` of a layer).
 
     Returns
     -------
@@ -179,6 +183,11 @@ def validate_relation(
         raise InputError("stage, area and volume columns differ in length", file=file)
     if row_list is not None and len(row_list) != h.size:
         raise ValueError("rows must give one line number per table row")
+
+    def line_at(i: int) -> int | None:
+        use = row_list is not None and row_label == "line"
+        return row_list[int(i)] if use else None  # type: ignore[index]
+
     if h.size < 2:
         raise InputError(f"a storage relation needs at least two levels, got {h.size}", file=file)
     for name, arr in (("stage", h), ("area", a), ("volume", v)):
@@ -186,9 +195,9 @@ def validate_relation(
             continue
         bad = np.flatnonzero(~np.isfinite(arr))
         if bad.size:
-            line = row_list[bad[0]] if row_list is not None else None
+            line = line_at(int(bad[0]))
             raise InputError(
-                f"missing or non-finite {name} at {_lines(row_list, bad)}",
+                f"missing or non-finite {name} at {_lines(row_list, bad, row_label)}",
                 file=file,
                 line=line,
                 column=name,
@@ -204,31 +213,31 @@ def validate_relation(
         i = int(bad[0])
         kind = "repeated" if dh[i] == 0 else "out of order"
         pairs = ", ".join(
-            f"{_where(row_list, int(k))} and {_where(row_list, int(k) + 1)}"
+            f"{_where(row_list, int(k), row_label)} and {_where(row_list, int(k) + 1, row_label)}"
             for k in bad[:_MAX_LISTED]
         )
         raise InputError(
             f"stage must increase strictly from row to row: {kind} stage {h[i + 1]:g} m at {pairs}",
             file=file,
-            line=row_list[i + 1] if row_list is not None else None,
+            line=line_at(i + 1),
             column="stage",
         )
     neg = np.flatnonzero(a < 0)
     if neg.size:
         raise InputError(
-            f"negative area at {_lines(row_list, neg)} ({a[neg[0]]:g} m²)",
+            f"negative area at {_lines(row_list, neg, row_label)} ({a[neg[0]]:g} m²)",
             file=file,
-            line=row_list[neg[0]] if row_list is not None else None,
+            line=line_at(neg[0]),
             column="area",
         )
     dec = np.flatnonzero(np.diff(a) < 0) + 1
     if dec.size:
         i = int(dec[0])
         raise InputError(
-            f"area decreases while stage rises at {_lines(row_list, dec)} "
+            f"area decreases while stage rises at {_lines(row_list, dec, row_label)} "
             f"({a[i - 1]:g} m² at {h[i - 1]:g} m, then {a[i]:g} m² at {h[i]:g} m)",
             file=file,
-            line=row_list[i] if row_list is not None else None,
+            line=line_at(i),
             column="area",
         )
     if not np.any(a > 0):
@@ -238,10 +247,10 @@ def validate_relation(
         if dec.size:
             i = int(dec[0])
             raise InputError(
-                f"volume decreases while stage rises at {_lines(row_list, dec)} "
+                f"volume decreases while stage rises at {_lines(row_list, dec, row_label)} "
                 f"({v[i - 1]:g} m³, then {v[i]:g} m³)",
                 file=file,
-                line=row_list[i] if row_list is not None else None,
+                line=line_at(i),
                 column="volume",
             )
     return h, a, v
@@ -876,6 +885,7 @@ def storage_from_table(
     tolerance: float = 0.01,
     bottom_stage_m: float | None = None,
     source: str | None = None,
+    row_label: str = "line",
 ) -> StorageCurve:
     """A relation from a stage-area(-volume) survey table (SI values).
 
@@ -904,6 +914,8 @@ def storage_from_table(
         Stage of the deepest point, m, below the lowest row: a level of zero area is added there.
     source : str, optional
         Description for reports (default: the file name).
+    row_label : str
+        What ``rows`` number (``"line"`` of a table, ``"feature"`` of a layer).
 
     Returns
     -------
@@ -914,7 +926,9 @@ def storage_from_table(
     InputError
         See :func:`validate_relation`; also a ``bottom_stage_m`` not below the lowest row.
     """
-    h, a, v = validate_relation(stage_m, area_m2, volume_m3, rows=rows, file=file)
+    h, a, v = validate_relation(
+        stage_m, area_m2, volume_m3, rows=rows, file=file, row_label=row_label
+    )
     row_list = None if rows is None else list(rows)
     if row_list is not None and np.asarray(stage_m, dtype=float).ravel()[0] > h[0]:
         row_list = row_list[::-1]  # the table was listed from the top down
@@ -1023,3 +1037,56 @@ def storage_from_outline(
         source=source or "outline approximation",
         approximate=True,
     )
+
+
+def compare_curves(
+    first: StorageCurve, second: StorageCurve, step_m: float = 0.05
+) -> dict[str, np.ndarray | float]:
+    """Two relations of one lake side by side over the stages both cover.
+
+    Volumes are compared as storage above the lowest common stage, since two surveys rarely
+    share the storage they assign to their lowest level.
+
+    Parameters
+    ----------
+    first, second : StorageCurve
+        The relations (e.g. a survey table and the contours it was drawn from).
+    step_m : float
+        Stage step of the comparison, m.
+
+    Returns
+    -------
+    dict
+        ``stage_m`` (m), ``area_first_m2``, ``area_second_m2`` (m²), ``volume_first_m3``,
+        ``volume_second_m3`` (m³ above the lowest common stage), and the largest differences
+        ``max_area_difference`` and ``max_volume_difference`` as shares (-) of the first
+        relation's area and volume at the top of the common range.
+
+    Raises
+    ------
+    InputError
+        When the two relations share no stage range.
+    """
+    lo = max(first.min_stage_m, second.min_stage_m)
+    hi = min(first.max_stage_m, second.max_stage_m)
+    if not hi > lo:
+        raise InputError(
+            f"the two storage relations share no stage range ({first.source}: "
+            f"{first.min_stage_m:g} to {first.max_stage_m:g} m; {second.source}: "
+            f"{second.min_stage_m:g} to {second.max_stage_m:g} m)"
+        )
+    grid = np.arange(np.ceil(lo / step_m - 1e-9), np.floor(hi / step_m + 1e-9) + 1) * step_m
+    grid = grid[(grid > lo + 1e-9) & (grid < hi - 1e-9)]
+    h = np.concatenate([[lo], grid, [hi]])
+    a1, a2 = first.area(h), second.area(h)
+    v1 = first.volume(h) - first.volume(lo)
+    v2 = second.volume(h) - second.volume(lo)
+    return {
+        "stage_m": h,
+        "area_first_m2": a1,
+        "area_second_m2": a2,
+        "volume_first_m3": v1,
+        "volume_second_m3": v2,
+        "max_area_difference": float(np.max(np.abs(a2 - a1)) / a1[-1]),
+        "max_volume_difference": float(np.max(np.abs(v2 - v1)) / v1[-1]),
+    }

@@ -1,0 +1,197 @@
+"""Reading the stage-area-storage relation that the site file's ``[storage]`` section declares.
+
+Three sources (``source`` key):
+
+``"table"``
+    A CSV or .xlsx survey table of stage and area (and optionally volume), in the declared units.
+``"contours"``
+    Bathymetric contours in a vector layer (GeoPackage, Shapefile, GeoJSON) with an elevation
+    attribute; stage = elevation - ``datum_offset``.
+``"outline"``
+    A lake outline polygon, the greatest depth and a basin-shape exponent: an approximation.
+
+Units are converted here, at ingest, through :mod:`lakebalance.units`.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from pathlib import Path
+
+import numpy as np
+
+from ..config import StorageOptions
+from ..errors import ConfigError, InputError
+from ..storage import StorageCurve, storage_from_outline, storage_from_table
+from ..units import to_si
+
+__all__ = ["read_storage", "storage_location", "source_of"]
+
+_TABLE_SUFFIXES = (".csv", ".txt", ".tsv", ".dat", ".xlsx", ".xlsm")
+
+
+def source_of(path: Path) -> str:
+    """``"table"`` or ``"contours"`` from a file's suffix (for a comparison survey)."""
+    from .vector import VECTOR_SUFFIXES
+
+    suffix = path.suffix.lower()
+    if suffix in _TABLE_SUFFIXES:
+        return "table"
+    if suffix in VECTOR_SUFFIXES:
+        return "contours"
+    raise InputError(
+        f"cannot tell a table from a vector layer by the suffix '{suffix}' (tables: "
+        f"{', '.join(_TABLE_SUFFIXES)}; layers: {', '.join(VECTOR_SUFFIXES)})",
+        file=path,
+    )
+
+
+def _need_file(options: StorageOptions, site_file: Path | None) -> Path:
+    if options.file is None:
+        raise ConfigError(f"[storage] source = '{options.source}' needs 'file'", file=site_file)
+    return options.file
+
+
+def read_storage(
+    options: StorageOptions,
+    *,
+    site_file: Path | None = None,
+    file: Path | None = None,
+    source: str | None = None,
+) -> StorageCurve:
+    """The storage relation of ``[storage]``, in SI units.
+
+    Parameters
+    ----------
+    options : StorageOptions
+        The ``[storage]`` section of the site file.
+    site_file : Path, optional
+        The site file, named in configuration errors.
+    file : Path, optional
+        Read this file instead of ``options.file`` (e.g. the ``compare`` survey).
+    source : {"table", "contours", "outline"}, optional
+        Its kind (default ``options.source``, or from the suffix when ``file`` is given).
+
+    Returns
+    -------
+    StorageCurve
+
+    Raises
+    ------
+    InputError
+        Unreadable or invalid survey (errors name the file and rows or features).
+    ConfigError
+        A key the source needs is missing.
+    """
+    if file is not None:
+        options = dataclasses.replace(options, file=file)
+        source = source or source_of(file)
+    source = source or options.source
+    path = _need_file(options, site_file)
+    if source == "table":
+        return _read_table(options, path)
+    if source == "contours":
+        return _read_contours(options, path)
+    if source == "outline":
+        return _read_outline(options, path, site_file)
+    raise ConfigError(f"[storage] unknown source {source!r}", file=site_file)
+
+
+def _read_table(options: StorageOptions, path: Path) -> StorageCurve:
+    from .tables import read_table
+
+    columns = {"stage": options.stage, "area": options.area}
+    if options.volume is not None:
+        columns["volume"] = options.volume
+    frame = read_table(
+        path,
+        columns,
+        what="storage table",
+        sheet=options.sheet,
+        delimiter=options.delimiter,
+        decimal=options.decimal,
+    )
+    stage = to_si(frame["stage"].to_numpy(), options.stage_units, "length", "storage stage")
+    area = to_si(frame["area"].to_numpy(), options.area_units, "area", "storage area")
+    volume = None
+    if options.volume is not None:
+        volume = to_si(frame["volume"].to_numpy(), options.volume_units, "volume", "storage volume")
+    return storage_from_table(
+        stage,
+        area,
+        volume,
+        integration=options.integration,
+        below=options.below,
+        above=options.above,
+        rows=frame["_line"].tolist(),
+        file=path,
+        tolerance=options.volume_tolerance,
+        bottom_stage_m=options.bottom,
+        source=f"table {path.name}",
+    )
+
+
+def _read_contours(options: StorageOptions, path: Path) -> StorageCurve:
+    from .vector import read_contours
+
+    contours = read_contours(path, layer=options.layer, elevation_field=options.elevation_field)
+    elevation_m = to_si(contours.elevation, options.elevation_units, "length", "contour elevation")
+    stage = elevation_m - options.datum_offset
+    return storage_from_table(
+        stage,
+        contours.area_m2,
+        integration=options.integration,
+        below=options.below,
+        above=options.above,
+        rows=[f[0] for f in contours.features],
+        row_label="feature",
+        file=path,
+        bottom_stage_m=options.bottom,
+        source=f"contours {path.name}",
+    )
+
+
+def _read_outline(options: StorageOptions, path: Path, site_file: Path | None) -> StorageCurve:
+    from .vector import read_outline
+
+    if options.max_depth is None:
+        raise ConfigError("[storage] source = 'outline' needs 'max_depth' (m)", file=site_file)
+    area, elevation, _, _ = read_outline(
+        path, layer=options.layer, elevation_field=options.elevation_field
+    )
+    if options.outline_stage is not None:
+        stage = float(options.outline_stage)
+    elif elevation is not None:
+        elevation_m = float(
+            to_si(np.array([elevation]), options.elevation_units, "length", "outline elevation")[0]
+        )
+        stage = elevation_m - options.datum_offset
+    else:
+        raise ConfigError(
+            "[storage] source = 'outline' needs 'outline_stage' (m), or an "
+            f"'{options.elevation_field}' attribute on the outline",
+            file=site_file,
+        )
+    return storage_from_outline(
+        area,
+        stage,
+        options.max_depth,
+        options.shape_exponent,
+        integration=options.integration,
+        below=options.below,
+        above=options.above,
+        source=f"outline {path.name} (max depth {options.max_depth:g} m, "
+        f"shape exponent {options.shape_exponent:g})",
+    )
+
+
+def storage_location(options: StorageOptions) -> tuple[float, float] | None:
+    """Latitude and longitude (decimal degrees) of the lake from its contours or outline.
+
+    Returns None for a table source (a table has no position).
+    """
+    if options.file is None or options.source == "table":
+        return None
+    from .vector import layer_centroid
+
+    return layer_centroid(options.file, layer=options.layer)
