@@ -135,6 +135,7 @@ def lake_evaporation(
             changes["rain_m3"] = surface_volume_m3(rain_m, area_m2).rename("rain_m3")
     return _dc.replace(result, **changes) if changes else result
 
+
 # ---- outlet rating ----------------------------------------------------------------------------
 if TYPE_CHECKING:  # pragma: no cover
     import numpy as _np
@@ -226,3 +227,57 @@ def fit_rating(site: Site, *, rng: _np.random.Generator | None = None) -> Rating
     except ConfigError as exc:
         raise ConfigError(exc.message, file=site.path) from None
 
+
+# ---- storage relation -------------------------------------------------------------------------
+if TYPE_CHECKING:  # pragma: no cover
+    from .storage import StorageCurve
+
+__all__ += ["load_storage", "lake_location"]
+
+
+def load_storage(site: Site, *, file: Path | None = None) -> StorageCurve:
+    """The stage-area-storage relation of ``site`` (``[storage]``), in SI units.
+
+    Parameters
+    ----------
+    site : Site
+        The validated site file.
+    file : Path, optional
+        Read this survey instead of ``[storage] file`` (a table or a contour layer, told apart by
+        the suffix), with the same column names, units and policies; used for ``compare``.
+
+    Returns
+    -------
+    StorageCurve
+        ``area(stage_m)`` m², ``volume(stage_m)`` m³, ``stage(volume_m3)`` m, vectorised; see
+        ``docs/storage.md``.
+
+    Raises
+    ------
+    ConfigError
+        No ``[storage]`` section, or a key its source needs is missing.
+    InputError
+        The survey cannot be read or is inconsistent (errors name the file and rows).
+    """
+    from .errors import ConfigError
+    from .io.storage import read_storage
+
+    if site.storage is None:
+        raise ConfigError("the site file has no [storage] section", file=site.path)
+    return read_storage(site.storage, site_file=site.path, file=file)
+
+
+def lake_location(site: Site) -> tuple[float, float] | None:
+    """Latitude and longitude of the lake (decimal degrees, WGS 84).
+
+    From ``[site] latitude``/``longitude`` when both are given, else the centroid of the storage
+    survey's contours or outline (a table has no position: None). The site is frozen: the value
+    is returned, never written back.
+    """
+    if site.site.latitude is not None and site.site.longitude is not None:
+        return float(site.site.latitude), float(site.site.longitude)
+    if site.storage is None:
+        return None
+    from .io.storage import storage_location
+
+    return storage_location(site.storage)
