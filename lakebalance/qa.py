@@ -34,6 +34,8 @@ __all__ = [
     "out_of_bounds",
     "robust_z",
     "spikes",
+    "returns_to_neighbours",
+    "step_scale",
     "flatlines",
     "implausible_units",
     "outside_storage",
@@ -50,9 +52,10 @@ STATE_ROLES = frozenset(
     {"stage", "tmax", "tmin", "tmean", "dewpoint", "rh", "rh_max", "rh_min", "wind", "solar"}
 )
 
-#: Roles checked for spikes: smooth states. Inflows, rain and evaporation are event-driven and
-#: skewed, where a robust z-score would flag every storm (common practice, no source).
-SPIKE_ROLES = STATE_ROLES
+#: Roles checked for spikes: smooth states. Inflows, rain, evaporation, wind, humidity and solar
+#: radiation are event-driven or gusty, where a robust z-score would flag every storm or cloudy
+#: day (common practice, no source).
+SPIKE_ROLES = frozenset({"stage", "tmax", "tmin", "tmean", "dewpoint"})
 
 #: Roles whose values cannot be negative (a negative one is rejected).
 NON_NEGATIVE_ROLES = frozenset(
@@ -224,9 +227,14 @@ def robust_z(values: np.ndarray, window: int, floor: float = 0.0) -> np.ndarray:
 
 
 def spikes(
-    values: np.ndarray, window: int = 7, threshold: float = 6.0, resolution: float | None = None
+    values: np.ndarray,
+    window: int = 7,
+    threshold: float = 6.0,
+    resolution: float | None = None,
+    returns: bool = True,
 ) -> np.ndarray:
-    """Mask of spikes: readings whose robust z-score (:func:`robust_z`) exceeds ``threshold``.
+    """Mask of spikes: readings whose robust z-score (:func:`robust_z`) exceeds ``threshold``
+    and (with ``returns``) that come back at once (:func:`returns_to_neighbours`).
 
     Parameters
     ----------
@@ -241,6 +249,11 @@ def spikes(
         the resolution and the series' typical (median non-zero) rolling MAD, so that flat or
         quantised stretches do not turn one-step changes into spikes (common practice, no
         source).
+    returns : bool
+        Also require the reading to come back at once (:func:`returns_to_neighbours`) and to
+        stand out from its neighbours by more than ``threshold`` times the series' typical
+        reading-to-reading change (:func:`step_scale`), so that fast but real rises and peaks of
+        a lake (a flood) are not called spikes.
     """
     x = np.asarray(values, dtype=float)
     if np.count_nonzero(~np.isnan(x)) < max(int(window), 3):
@@ -260,7 +273,41 @@ def spikes(
         floor = 1e-9 * max(float(np.max(np.abs(finite))) if finite.size else 1.0, 1.0)
     z = robust_z(x, window, floor)
     with np.errstate(invalid="ignore"):
-        return np.nan_to_num(z, nan=0.0) > threshold
+        hampel = np.nan_to_num(z, nan=0.0) > threshold
+    if not returns:
+        return hampel
+    x_dev = np.abs(
+        x - 0.5 * (np.concatenate(([np.nan], x[:-1])) + np.concatenate((x[1:], [np.nan])))
+    )
+    big = np.nan_to_num(x_dev, nan=np.inf) > threshold * max(step_scale(x), floor)
+    return hampel & returns_to_neighbours(x) & big
+
+
+def returns_to_neighbours(values: np.ndarray, ratio: float = 2.0) -> np.ndarray:
+    """Mask of readings that leave and come back: outside their two neighbours by more than
+    ``ratio`` times the neighbours differ from each other.
+
+    ``|x_i - (x_{i-1} + x_{i+1}) / 2| > ratio · |x_{i+1} - x_{i-1}|``, with a missing neighbour
+    replaced by the other one. A flood rise, a rounded flood peak or a drawdown step moves the
+    neighbours apart and fails the test; an isolated wrong reading passes it (common practice, no
+    source).
+    """
+    x = np.asarray(values, dtype=float)
+    prev = np.concatenate(([np.nan], x[:-1]))
+    nxt = np.concatenate((x[1:], [np.nan]))
+    prev = np.where(np.isnan(prev), nxt, prev)
+    nxt = np.where(np.isnan(nxt), prev, nxt)
+    with np.errstate(invalid="ignore"):
+        return np.abs(x - 0.5 * (prev + nxt)) > ratio * np.abs(nxt - prev)
+
+
+def step_scale(values: np.ndarray) -> float:
+    """Robust scale of the reading-to-reading changes: 1.4826 · MAD of the first differences."""
+    d = np.diff(np.asarray(values, dtype=float))
+    d = d[np.isfinite(d)]
+    if d.size == 0:
+        return 0.0
+    return float(MAD_TO_SIGMA * np.median(np.abs(d - np.median(d))))
 
 
 def flatlines(values: np.ndarray, min_days: int, tolerance: float = 0.0) -> np.ndarray:

@@ -422,7 +422,7 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
                     _iso(tn[in_group].max()),
                     in_group.sum(),
                     "removed" if remove else "kept, flagged",
-                    "robust z-score above threshold (readings)",
+                    "isolated reading: robust z-score above threshold, back at once",
                 )
             if remove:
                 status[keep[spk]] = _REJECTED
@@ -485,15 +485,17 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
                     index[b - 1].date().isoformat(),
                     b - a,
                     action,
-                    "robust z-score above threshold",
+                    "isolated reading: robust z-score above threshold, back at once",
                 )
             daily = pd.Series(full, index=index, name=key)
 
     # 8. daily checks -------------------------------------------------------------------------
-    missing = np.isnan(full)
-    gap_mask = missing.copy()
-    if low_days.size:
-        gap_mask[low_days - days.min()] = False
+    # gaps: days without any row in the file (days whose rows were rejected are reported by
+    # the rejection findings, low-coverage days by their own)
+    row_days = np.floor_divide(t_ns[~nat], _NS_PER_DAY) - days.min()
+    row_days = row_days[(row_days >= 0) & (row_days < len(index))]
+    gap_mask = np.ones(len(index), dtype=bool)
+    gap_mask[row_days] = False
     for a, b in qa.runs(gap_mask):
         add(
             "gap",
@@ -501,23 +503,26 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
             index[b - 1].date().isoformat(),
             b - a,
             "left missing",
-            "days without a usable reading",
+            "days without any reading in the file",
         )
     if role in qa.STATE_ROLES:
         finite = full[np.isfinite(full)]
         tol = 1e-9 * max(1.0, float(np.median(np.abs(finite)))) if finite.size else 0.0
         for a, b in qa.flatlines(full, site.qa.flatline_days, tol):
-            flags[a:b] = True
+            # the first value of the run is the last good reading; the repeats are doubtful
+            a1 = a + 1
+            flags[a1:b] = True
             row_day = np.floor_divide(r_ns, _NS_PER_DAY) - days.min()
-            rows = keep[(row_day >= a) & (row_day < b)]
+            rows = keep[(row_day >= a1) & (row_day < b)]
             status[rows] = np.where(status[rows] == _USED, _FLAGGED, status[rows])
             add(
                 "flatline",
-                index[a].date().isoformat(),
+                index[a1].date().isoformat(),
                 index[b - 1].date().isoformat(),
-                b - a,
+                b - a1,
                 "kept, flagged",
-                f"{b - a} identical daily values ({full[a]:.6g} {INTERNAL_UNITS[kind]}): stuck sensor?",
+                f"{b - a} identical daily values ({full[a]:.6g} {INTERNAL_UNITS[kind]}) from "
+                f"{index[a].date().isoformat()}: stuck sensor? the repeats are flagged",
             )
     reason = qa.implausible_units(role, full)
     if reason:
