@@ -132,6 +132,9 @@ def lake_evaporation(
             rain_keys = ["rain"]
         if rain_keys:
             rain_m = daily[rain_keys].mean(axis=1, skipna=True)
+            if len(rain_keys) > 1:
+                averaged.append(f"rain is the daily mean of {len(rain_keys)} series")
+                changes["notes"] = (*result.notes, *averaged)
             changes["rain_m3"] = surface_volume_m3(rain_m, area_m2).rename("rain_m3")
     return _dc.replace(result, **changes) if changes else result
 

@@ -184,18 +184,19 @@ def climatology_fill(
 
     Notes
     -----
-    Day of year runs 1-366; 29 February shares day 60's neighbours. The climatology of day d is
-    the mean of all values whose day of year lies within ``half_window_days`` of d (circular);
-    where none does, the column mean. Vectorised with cumulative sums (no loop over days).
+    Days sit on a 365-day circle; 29 February shares the slot of 28 February. The climatology of
+    day d is
+    the mean of all values whose day lies within ``half_window_days`` of d on that circle; where
+    none does, the column mean. Vectorised with cumulative sums (no loop over days).
     """
     values = frame.to_numpy(dtype=float)
     mask = np.isnan(values)
     if not mask.any():
         return frame.copy(), pd.DataFrame(False, index=frame.index, columns=frame.columns)
-    doy = frame.index.dayofyear.to_numpy() - 1  # 0..365
+    doy = _day_of_365(pd.DatetimeIndex(frame.index))
     ok = ~mask
-    sums = np.zeros((366, values.shape[1]))
-    counts = np.zeros((366, values.shape[1]))
+    sums = np.zeros((365, values.shape[1]))
+    counts = np.zeros((365, values.shape[1]))
     np.add.at(sums, doy, np.where(ok, values, 0.0))
     np.add.at(counts, doy, ok.astype(float))
     w = int(half_window_days)
@@ -219,6 +220,13 @@ def climatology_fill(
         pd.DataFrame(filled, index=frame.index, columns=frame.columns),
         pd.DataFrame(filled_mask, index=frame.index, columns=frame.columns),
     )
+
+
+def _day_of_365(index: pd.DatetimeIndex) -> np.ndarray:
+    """0-based day on a 365-day circle (29 February shares 28 February's slot)."""
+    doy = index.dayofyear.to_numpy() - 1
+    late_leap = index.is_leap_year & (doy >= 59)
+    return np.where(late_leap, doy - 1, doy)
 
 
 def _present(weather: pd.DataFrame, role: str) -> bool:
