@@ -20,7 +20,9 @@ applied to a daily mean stage is biased (Jensen's inequality). This module:
    elsewhere estimates it from the daily means, either as the mean of the two adjacent daily means
    (``"adjacent_mean"``, second order) or with the fourth-order interface formula of finite-volume
    reconstruction ``h_{i+1/2} = [7(h̄_i + h̄_{i+1}) − (h̄_{i−1} + h̄_{i+2})]/12`` (``"fourth_order"``,
-   Colella and Woodward, 1984, eq. 1.6);
+   Colella and Woodward, 1984, eq. 1.6), next to the ends of the record and to gaps the one-sided
+   third-order ``(2h̄_i + 5h̄_{i+1} − h̄_{i+2})/6`` or its mirror image (the same reconstruction
+   on three cells); the stage at the outer ends of the record is left unknown;
 2. takes the stage path inside day d as the quadratic in time through the two boundary stages
    whose mean over the day equals the daily mean:
    ``h(τ) = h_s(1 − τ) + h_e τ + 6 (h̄ − (h_s + h_e)/2) τ (1 − τ)``, τ ∈ [0, 1];
@@ -303,15 +305,22 @@ def _boundaries(
     """Boundary stages (days + 1) and a flag of which came from the given sub-daily values."""
     n = stage.size
     b = np.full(n + 1, np.nan)
+    if rule not in ("adjacent_mean", "fourth_order"):
+        raise ValueError(f"unknown boundary_rule {rule!r}")
     if n >= 2:
         b[1:-1] = 0.5 * (stage[:-1] + stage[1:])
-        if rule == "fourth_order" and n >= 4:
-            inner = (7.0 * (stage[1:-2] + stage[2:-1]) - (stage[:-3] + stage[3:])) / 12.0
-            ok = np.isfinite(inner)
-            idx = np.arange(2, n - 1)
-            b[idx[ok]] = inner[ok]
-        elif rule not in ("adjacent_mean", "fourth_order"):
-            raise ValueError(f"unknown boundary_rule {rule!r}")
+    if rule == "fourth_order" and n >= 3:
+        # interface i+1/2 between days i and i+1; the best stencil the record allows:
+        # centred four-point (fourth order), else a one-sided three-point (third order)
+        s = np.r_[np.nan, stage, np.nan, np.nan]  # s[j + 1] = stage[j]
+        i = np.arange(n - 1)
+        m1, c0, p1, p2 = s[i], s[i + 1], s[i + 2], s[i + 3]
+        centred = (7.0 * (c0 + p1) - (m1 + p2)) / 12.0
+        left = (-m1 + 5.0 * c0 + 2.0 * p1) / 6.0
+        right = (2.0 * c0 + 5.0 * p1 - p2) / 6.0
+        best = np.where(np.isfinite(centred), centred, np.where(np.isfinite(right), right, left))
+        ok = np.isfinite(best)
+        b[1:-1][ok] = best[ok]
     from_given = np.zeros(n + 1, dtype=bool)
     if given is not None:
         ok = np.isfinite(given)
