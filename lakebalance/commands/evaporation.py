@@ -8,6 +8,11 @@ from ._common import add_json, add_site
 
 HELP = "lake evaporation: monthly totals of every method the weather allows, side by side"
 
+CAUTION = (
+    "Lake evaporation is an estimate; where it informs public water supply or dam safety, "
+    "defer to local codes and licensed professionals."
+)
+
 _METHODS = ("auto", "given", "pan", "penman", "priestley_taylor", "fao56", "hargreaves")
 
 
@@ -61,6 +66,7 @@ def run(args: argparse.Namespace) -> int:
             "inputs": result.inputs,
             "notes": list(result.notes),
             "warnings": messages,
+            "caution": CAUTION,
         }
         print(dumps(doc))
         return 0
@@ -92,4 +98,5 @@ def run(args: argparse.Namespace) -> int:
         print(f"note: {note}")
     for msg in messages:
         print(f"warning: {msg}")
+    print(CAUTION)
     return 0

@@ -88,8 +88,8 @@ def penman_open_water(
 
     References
     ----------
-    Penman (1948), eq. 16 and the open-water wind function; SI form as in Shuttleworth (1993),
-    Handbook of Hydrology, eq. 4.2.30 (from memory).
+    Penman (1948), the combination equation with the open-water wind function; SI form as in
+    Shuttleworth (1993), Handbook of Hydrology, chapter 4 (from memory).
     """
     t = _arr(tmean_c)
     delta = slope_vapour_pressure_curve(t)
@@ -132,7 +132,7 @@ def priestley_taylor(
 
     References
     ----------
-    Priestley and Taylor (1972), eq. 14.
+    Priestley and Taylor (1972), the equilibrium evaporation scaled by alpha.
     """
     t = _arr(tmean_c)
     delta = slope_vapour_pressure_curve(t)
