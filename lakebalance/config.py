@@ -194,6 +194,10 @@ class UncertaintyOptions:
     stage_resolution: float | None = None  # m, resolution of the stage gauge
     area: float | None = None  # relative error (-) of the storage relation's area
     draws: int = 1000  # Monte Carlo draws
+    systematic: float | None = None  # share (0-1) of a term's error variance lasting a water year
+    boundary_rule: Literal["adjacent_mean", "fourth_order"] = (
+        "adjacent_mean"  # day-boundary stage from daily means where no sub-daily record
+    )
 
 
 @dataclass(frozen=True)
