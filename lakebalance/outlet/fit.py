@@ -250,6 +250,38 @@ class RatingFit:
             for n in self.param_names
         }
 
+    def region_contains(self, values: Mapping[str, float], alpha: float = 0.05) -> bool:
+        """Whether ``values`` lie inside the joint likelihood confidence region of the fit.
+
+        Notes
+        -----
+        The region of Beale (1960) is
+        :math:`S(\\theta) \\le S(\\hat\\theta)\\,[1 + \\tfrac{p}{n-p} F_{p,\\,n-p}(1-\\alpha)]`
+        with :math:`S` the sum of squared residuals over the gaugings used and :math:`p` the free
+        parameters. Unlike the Wald intervals of :meth:`conf_int` it follows the curvature of the
+        model (the C-e-b trade-off of a power law). Fixed parameters keep their fixed value.
+
+        References
+        ----------
+        Beale, E. M. L. (1960). Confidence regions in non-linear estimation. Journal of the Royal
+        Statistical Society B 22(1), 41-88.
+        """
+        from scipy.stats import f as f_dist
+
+        p = [
+            values.get(n, self.params[n]) if free else self.params[n]
+            for n, free in zip(self.param_names, self.free)
+        ]
+        t = self.table[self.table["in_residuals"]]
+        h, q, w = (t[c].to_numpy() for c in ("stage_m", "discharge_m3s", "weight"))
+        model = self.law.discharge(p, h)
+        with np.errstate(divide="ignore"):
+            r = np.log(q) - np.log(model) if self.residuals == "log" else q - model
+        s_theta = float(np.sum(w * r**2))
+        k = int(sum(self.free))
+        s_hat = self.sigma**2 * self.dof
+        return s_theta <= s_hat * (1 + k / self.dof * f_dist.ppf(1 - alpha, k, self.dof))
+
     @property
     def se_percent(self) -> float:
         """Standard error of estimate in percent (ISO 1100-2, 2010, eq. 7; log residuals)."""
