@@ -533,7 +533,7 @@ class StorageCurve:
             _linear_increment(seg["a0"], s, dh, inc)
         # knot volumes summed from the very expression the evaluation uses, so that volume(h_k)
         # returns the knot volume bit for bit
-        v = np.concatenate([[v[0]], v[0] + np.cumsum(inc)])
+        v = np.cumsum(np.concatenate([[v[0]], inc]))  # sequential: v[k+1] = v[k] + inc[k]
         for arr in (h, a, v):
             arr.setflags(write=False)
         object.__setattr__(self, "stage_m", h)
