@@ -38,6 +38,7 @@ import argparse
 import hashlib
 import json
 import math
+import re
 from pathlib import Path
 
 import numpy as np
@@ -483,6 +484,25 @@ def write_xlsx(path: Path, df: pd.DataFrame, sheet: str) -> None:
         props = xw.book.properties
         props.creator = "Marrendale Water Board (invented)"
         props.created = props.modified = dt.datetime(2022, 10, 15, 9, 0, 0)
+    _fix_zip_times(path)
+
+
+def _fix_zip_times(path: Path) -> None:
+    """Rewrite a zip container with fixed entry times, so reruns give identical bytes."""
+    import zipfile
+
+    with zipfile.ZipFile(path) as zin:
+        entries = [(i, zin.read(i.filename)) for i in zin.infolist()]
+    with zipfile.ZipFile(path, "w", zipfile.ZIP_DEFLATED) as zout:
+        for info, data in entries:
+            if info.filename == "docProps/core.xml":  # openpyxl stamps the save time
+                data = re.sub(
+                    rb"(<dcterms:modified[^>]*>)[^<]*", rb"\g<1>2022-10-15T09:00:00Z", data
+                )
+            fixed = zipfile.ZipInfo(info.filename, date_time=(2022, 10, 15, 9, 0, 0))
+            fixed.compress_type = zipfile.ZIP_DEFLATED
+            fixed.external_attr = info.external_attr
+            zout.writestr(fixed, data)
 
 
 def write_contours(path: Path, levels_elev: np.ndarray) -> None:
@@ -502,6 +522,13 @@ def write_contours(path: Path, levels_elev: np.ndarray) -> None:
     if path.exists():
         path.unlink()
     gdf.to_file(path, layer="depth_contours", driver="GPKG", engine="pyogrio")
+    import sqlite3
+
+    con = sqlite3.connect(path)  # fixed time stamps, so reruns give identical bytes
+    con.execute("UPDATE gpkg_contents SET last_change = '2022-10-15T09:00:00.000Z'")
+    con.commit()
+    con.execute("VACUUM")
+    con.close()
 
 
 def sha256(path: Path) -> str:
@@ -686,13 +713,55 @@ def generate(out: Path) -> dict:
     }
     truth = build_truth(days, sim, storage, evap_mm, gauging_info, token_count, stuck_value)
     truth["problems"]["non_numeric"]["dates"] = token_dates
+    truth["daily_mean_timing"] = timing_error(storage, truth_daily)
     truth["files"] = {
         str(p.relative_to(out)): sha256(p)
         for p in sorted(out.rglob("*"))
-        if p.is_file() and p.suffix not in (".py", ".md", ".toml", ".json", ".xlsx", ".gpkg")
+        if p.is_file()
+        and p.suffix not in (".py", ".md", ".toml", ".json")
+        and "__pycache__" not in p.parts
     }
     (out / "truth.json").write_text(json.dumps(truth, indent=2) + "\n", encoding="utf-8")
     return truth
+
+
+def timing_error(storage: pd.DataFrame, td: pd.DataFrame) -> dict:
+    """How well daily means can close the balance at best (true terms, noise-free mean stage).
+
+    The change of storage between two consecutive daily mean stages is compared with the mean of
+    the two days' true net terms. Within-day timing of rain and floods makes the difference; it
+    telescopes over longer periods.
+    """
+    h = td["stage_mean_m"].to_numpy()
+    area = np.interp(h, storage["stage_m"], storage["area_m2"])
+    net = (
+        td["inflow_tamsby_brook_m3"]
+        + td["inflow_wrenholt_creek_m3"]
+        + td["rain_m3"]
+        - td["evaporation_m3"]
+        - td["outflow_sill_m3"]
+        - td["outflow_spillway_m3"]
+        - td["seepage_m3"]
+        - td["withdrawal_m3"]
+        - td["unmetered_withdrawal_m3"]
+    ).to_numpy()
+    dv = np.diff(volume_of(storage, h))
+    err_mm = (dv - (net[:-1] + net[1:]) / 2) / area[:-1] * 1000.0
+    dates = pd.DatetimeIndex(pd.to_datetime(td["date"].iloc[:-1]))
+    monthly = pd.Series(err_mm, index=dates).resample("MS").sum().abs()
+    q = np.abs(err_mm)
+    return {
+        "method": (
+            "V(mean stage of day t+1) - V(mean stage of day t) against the mean of the true net "
+            "terms of days t and t+1, in mm over the lake area"
+        ),
+        "daily_abs_mm": {
+            "median": float(np.median(q)),
+            "p90": float(np.quantile(q, 0.9)),
+            "max": float(q.max()),
+        },
+        "monthly_abs_mm": {"median": float(monthly.median()), "p90": float(monthly.quantile(0.9))},
+    }
 
 
 def make_gaugings(
@@ -734,7 +803,14 @@ def make_gaugings(
             continue
         # spread over distinct days
         cdays = np.unique(cand // 24)
-        pick_days = rng.choice(cdays, min(count, len(cdays)), replace=False)
+        if flood:  # hydrographers go out for the big floods: the highest peaks, then others
+            peak = np.array([stage_hourly[cand[cand // 24 == dd]].max() for dd in cdays])
+            order = cdays[np.argsort(-peak)]
+            rest = order[count - 2 :]
+            extra = rng.choice(rest, min(2, len(rest)), replace=False) if len(rest) else []
+            pick_days = np.concatenate([order[: count - 2], extra]).astype(int)
+        else:
+            pick_days = rng.choice(cdays, min(count, len(cdays)), replace=False)
         for dd in pick_days:
             that_day = cand[cand // 24 == dd]
             hh = that_day[np.argmax(stage_hourly[that_day])] if flood else rng.choice(that_day)
@@ -886,7 +962,10 @@ def build_truth(days, sim, storage, evap_mm, gauging_info, tokens, stuck_value) 
                 "end": STUCK[1],
                 "days": int(((days >= STUCK[0]) & (days <= STUCK[1])).sum()),
                 "value_m": float(stuck_value),
-                "how": "the reading of the day before repeated exactly",
+                "how": (
+                    "the genuine reading of the day before (start - 1 day) repeated exactly, so a "
+                    "flat-line detector sees days + 1 identical values from start - 1 day"
+                ),
             },
             "spikes": [{"date": d, "size_m": s} for d, s in SPIKES.items()],
             "datum_shift": {
