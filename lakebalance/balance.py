@@ -75,6 +75,7 @@ __all__ = [
     "add_uncertainty",
     "water_year_of",
     "day_path",
+    "boundary_stage_from_readings",
     "TERM_SIGNS",
 ]
 
@@ -262,6 +263,49 @@ def water_year_of(index: pd.DatetimeIndex, start_month: int) -> Array:
     if start_month == 1:
         return years
     return years + (index.month.to_numpy() >= start_month).astype(int)
+
+
+def boundary_stage_from_readings(
+    readings_m: pd.Series, days: pd.DatetimeIndex, max_gap_hours: float = 3.0
+) -> pd.Series:
+    """Stage at each midnight (00:00 of every day and the end of the last) from sub-daily readings.
+
+    Parameters
+    ----------
+    readings_m : pandas.Series
+        Stage readings (m) indexed by tz-naive local timestamps, in any order.
+    days : pandas.DatetimeIndex
+        The calendar days of the balance.
+    max_gap_hours : float
+        Largest span (h) between the two readings around a midnight that is bridged by linear
+        interpolation; wider spans leave that midnight unknown.
+
+    Returns
+    -------
+    pandas.Series
+        Stage (m) at each midnight, NaN where unknown; ``len(days) + 1`` values.
+    """
+    r = pd.Series(readings_m, dtype=float).dropna()
+    r = r[~r.index.duplicated(keep="first")].sort_index()
+    mid = days.normalize().append(pd.DatetimeIndex([days[-1].normalize() + pd.Timedelta(days=1)]))
+    out = np.full(len(mid), np.nan)
+    if len(r) == 0:
+        return pd.Series(out, index=mid)
+    t = r.index.asi8.astype(np.int64)
+    v = r.to_numpy()
+    m = mid.asi8.astype(np.int64)
+    j = np.searchsorted(t, m, side="left")  # first reading at or after each midnight
+    exact = (j < t.size) & (t[np.minimum(j, t.size - 1)] == m)
+    out[exact] = v[j[exact]]
+    inside = ~exact & (j > 0) & (j < t.size)
+    jl, jr = j[inside] - 1, j[inside]
+    span = t[jr] - t[jl]
+    ok = span <= max_gap_hours * 3.6e12
+    frac = (m[inside] - t[jl]) / np.where(span > 0, span, 1)
+    vals = v[jl] + frac * (v[jr] - v[jl])
+    idx = np.flatnonzero(inside)
+    out[idx[ok]] = vals[ok]
+    return pd.Series(out, index=mid)
 
 
 def _gauss_legendre(n: int) -> tuple[Array, Array]:
@@ -559,6 +603,11 @@ def close_daily(
     index = pd.DatetimeIndex(stage_s.index, name="date")
     if not index.is_monotonic_increasing or index.has_duplicates:
         raise ValueError("stage_m index must be increasing days without duplicates")
+    valid = np.flatnonzero(stage_s.notna().to_numpy())
+    if valid.size == 0:
+        raise ValueError("stage_m has no value")
+    stage_s = stage_s.iloc[valid[0] : valid[-1] + 1]  # the balance spans the stage record
+    index = pd.DatetimeIndex(stage_s.index, name="date")
     if len(index) > 1:
         full = pd.date_range(index[0], index[-1], freq="D", name="date")
         if len(full) != len(index):
