@@ -32,6 +32,7 @@ __all__ = [
     "DuplicateCheck",
     "order_and_duplicates",
     "out_of_bounds",
+    "rolling_median",
     "robust_z",
     "spikes",
     "returns_to_neighbours",
@@ -199,6 +200,41 @@ def out_of_bounds(role: str, values: np.ndarray) -> tuple[np.ndarray, np.ndarray
     return negative, out_range
 
 
+def rolling_median(values: np.ndarray, window: int) -> np.ndarray:
+    """Centred rolling median of ``values`` over ``window`` readings (NaN skipped).
+
+    At least ``window // 2 + 1`` values are needed in a window, else NaN. Series without NaN are
+    done with a sliding-window view in chunks (fast for millions of readings); others by pandas.
+    """
+    import pandas as pd
+
+    x = np.asarray(values, dtype=float)
+    w = max(int(window), 3)
+    minp = w // 2 + 1
+    n = x.size
+    if w % 2 == 0 or n < 4 * w or np.isnan(x).any():
+        return pd.Series(x).rolling(w, center=True, min_periods=minp).median().to_numpy()
+    from numpy.lib.stride_tricks import sliding_window_view
+
+    h = w // 2
+    out = np.empty(n)
+    view = sliding_window_view(x, w)  # row i is centred on reading i + h
+    chunk = 1 << 18
+    for a in range(0, view.shape[0], chunk):  # loop over chunks of readings, not readings
+        out[h + a : h + min(a + chunk, view.shape[0])] = np.median(view[a : a + chunk], axis=1)
+    head = pd.Series(x[: 2 * w]).rolling(w, center=True, min_periods=minp).median().to_numpy()
+    tail = pd.Series(x[-2 * w :]).rolling(w, center=True, min_periods=minp).median().to_numpy()
+    out[:h] = head[:h]
+    out[n - h :] = tail[-h:]
+    return out
+
+
+def _deviation_and_mad(x: np.ndarray, window: int) -> tuple[np.ndarray, np.ndarray]:
+    med = rolling_median(x, window)
+    dev = np.abs(x - med)
+    return dev, rolling_median(dev, window)
+
+
 def robust_z(values: np.ndarray, window: int, floor: float = 0.0) -> np.ndarray:
     """Robust z-score of each value against its centred rolling median.
 
@@ -211,18 +247,16 @@ def robust_z(values: np.ndarray, window: int, floor: float = 0.0) -> np.ndarray:
     identification", IEEE Trans. Control Syst. Technol. 10(1), eq. 6). ``floor`` keeps a flat
     stretch (zero MAD) from turning a one-resolution-step change into an infinite score.
     """
-    import pandas as pd
+    x = np.asarray(values, dtype=float)
+    dev, mad = _deviation_and_mad(x, window)
+    return _z(dev, mad, floor)
 
-    x = pd.Series(np.asarray(values, dtype=float))
-    w = max(int(window), 3)
-    minp = max(w // 2 + 1, 2)
-    med = x.rolling(w, center=True, min_periods=minp).median()
-    dev = (x - med).abs()
-    mad = dev.rolling(w, center=True, min_periods=minp).median()
-    scale = MAD_TO_SIGMA * np.maximum(mad.to_numpy(), floor)
+
+def _z(dev: np.ndarray, mad: np.ndarray, floor: float) -> np.ndarray:
+    scale = MAD_TO_SIGMA * np.maximum(mad, floor)
     with np.errstate(divide="ignore", invalid="ignore"):
-        z = dev.to_numpy() / scale
-    z[dev.to_numpy() == 0] = 0.0
+        z = dev / scale
+    z[dev == 0] = 0.0
     return z
 
 
@@ -258,26 +292,22 @@ def spikes(
     x = np.asarray(values, dtype=float)
     if np.count_nonzero(~np.isnan(x)) < max(int(window), 3):
         return np.zeros(x.shape, dtype=bool)
-    import pandas as pd
-
-    s = pd.Series(x)
-    w = max(int(window), 3)
-    med = s.rolling(w, center=True, min_periods=w // 2 + 1).median()
-    mad = (s - med).abs().rolling(w, center=True, min_periods=w // 2 + 1).median()
+    dev, mad = _deviation_and_mad(x, window)
     positive = mad[mad > 0]
-    floor = float(positive.median()) if len(positive) else 0.0
+    floor = float(np.median(positive)) if positive.size else 0.0
     if resolution:
         floor = max(floor, float(resolution))
     if floor == 0.0:
         finite = x[np.isfinite(x)]
         floor = 1e-9 * max(float(np.max(np.abs(finite))) if finite.size else 1.0, 1.0)
-    z = robust_z(x, window, floor)
     with np.errstate(invalid="ignore"):
-        hampel = np.nan_to_num(z, nan=0.0) > threshold
-    if not returns:
+        hampel = np.nan_to_num(_z(dev, mad, floor), nan=0.0) > threshold
+    if not returns or not hampel.any():
         return hampel
+    prev = np.concatenate(([np.nan], x[:-1]))
+    nxt = np.concatenate((x[1:], [np.nan]))
     x_dev = np.abs(
-        x - 0.5 * (np.concatenate(([np.nan], x[:-1])) + np.concatenate((x[1:], [np.nan])))
+        x - 0.5 * (np.where(np.isnan(prev), nxt, prev) + np.where(np.isnan(nxt), prev, nxt))
     )
     big = np.nan_to_num(x_dev, nan=np.inf) > threshold * max(step_scale(x), floor)
     return hampel & returns_to_neighbours(x) & big

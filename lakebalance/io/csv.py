@@ -37,7 +37,8 @@ def read_csv_series(spec: SeriesSpec, what: str) -> RawSeries:
         delimiter=delimiter,
         decimal=spec.decimal,
         encoding=spec.encoding,
-        string_columns=("date", "time") if spec.time else ("date",),
+        string_columns=("date", "time") if (spec.time or spec.format) else (),
+        iso_columns=() if (spec.time or spec.format) else ("date",),
     )
     frame = table.frame
     return RawSeries(

@@ -123,7 +123,7 @@ def parse_timestamps(
                             pd.to_datetime(s, dayfirst=dayfirst, errors="coerce", utc=aware)
                         )
     bad = np.asarray(parsed.isna()) & ~empty
-    return to_site_time(parsed, timezone, source_timezone), bad
+    return to_site_time(parsed, timezone, source_timezone).as_unit("ns"), bad
 
 
 def _cell_text(v: object) -> object:
