@@ -90,6 +90,10 @@ def read_layer(path: str | Path, *, layer: str | None = None, what: str) -> gpd.
             "measured; assign one in a GIS (e.g. its EPSG code) and save it again",
             file=path,
         )
+    try:
+        _lonlat_centre(frame)
+    except InputError as exc:
+        raise InputError(f"{what}: {exc.message}", file=path) from None
     return frame
 
 
@@ -110,6 +114,15 @@ def equal_area_crs(frame: gpd.GeoDataFrame) -> pyproj.CRS:
 def _lonlat_centre(frame: gpd.GeoDataFrame) -> tuple[float, float]:
     geo = frame.to_crs("EPSG:4326")
     west, south, east, north = geo.total_bounds
+    if not (
+        np.all(np.isfinite([west, south, east, north]))
+        and -90.0 <= south <= north <= 90.0
+        and -540.0 <= west <= east <= 540.0
+    ):
+        raise InputError(
+            f"the layer's coordinates do not fit its coordinate reference system "
+            f"({frame.crs.name}): they fall outside the globe; is the declared CRS right?"
+        )
     return float(0.5 * (west + east)), float(0.5 * (south + north))
 
 
