@@ -32,6 +32,11 @@ _EXPORTS = {
     "Rating": "lakebalance.outlet",
     "FitOptions": "lakebalance.outlet",
     "fit_rating_curve": "lakebalance.outlet",
+    "load_storage": "lakebalance.api",
+    "lake_location": "lakebalance.api",
+    "StorageCurve": "lakebalance.storage",
+    "storage_from_table": "lakebalance.storage",
+    "storage_from_outline": "lakebalance.storage",
 }
 
 __all__ = ["__version__", *_EXPORTS]
