@@ -61,7 +61,8 @@ def to_numbers(cells: pd.Series, decimal: str = ".") -> tuple[np.ndarray, np.nda
 
     if pd.api.types.is_numeric_dtype(cells) and not pd.api.types.is_bool_dtype(cells):
         values = cells.to_numpy(dtype=float)
-        return values, np.zeros(len(values), dtype=bool)
+        bad = np.isinf(values)
+        return np.where(bad, np.nan, values), bad
     text = cells.astype(object)
     kind = pd.api.types.infer_dtype(text, skipna=True)
     if kind in ("string", "empty"):
