@@ -284,3 +284,319 @@ def lake_location(site: Site) -> tuple[float, float] | None:
     from .io.storage import storage_location
 
     return storage_location(site.storage)
+
+
+# ---- water balance and lake dynamics ---------------------------------------------------------
+if TYPE_CHECKING:  # pragma: no cover
+    import pandas as _pd
+
+    from .balance import Balance, TermErrors
+    from .dynamics import Dynamics
+
+__all__ += ["close_balance", "term_errors", "lake_dynamics"]
+
+
+def term_errors(site: Site, records: Records | None = None) -> TermErrors:
+    """The Monte Carlo term errors of ``site``: ``[uncertainty]`` over the documented defaults.
+
+    The stage resolution comes from ``[uncertainty] stage_resolution`` (m), else from the stage
+    series' ``resolution`` (in its own units), else the default of
+    :class:`~lakebalance.balance.TermErrors`.
+    """
+    import dataclasses as _dc
+
+    from .balance import TermErrors
+    from .units import conversion
+
+    u = site.uncertainty
+    changes = {
+        name: float(getattr(u, name))
+        for name in ("inflow", "rain", "evaporation", "withdrawal", "release", "area", "systematic")
+        if getattr(u, name) is not None
+    }
+    if u.stage_resolution is not None:
+        changes["stage_resolution_m"] = float(u.stage_resolution)
+    else:
+        spec = next(iter(site.series_of("stage")), None)
+        if spec is not None and spec.resolution is not None:
+            changes["stage_resolution_m"] = float(
+                conversion(spec.units, "length", "stage").scale * spec.resolution
+            )
+    try:
+        return _dc.replace(TermErrors(), **changes)
+    except ValueError as exc:
+        from .errors import ConfigError
+
+        raise ConfigError(f"[uncertainty]: {exc}", file=site.path) from None
+
+
+def close_balance(
+    site: Site,
+    *,
+    draws: int | None = None,
+    rng: _np.random.Generator | None = None,
+    records: Records | None = None,
+    storage: StorageCurve | None = None,
+    rating: RatingFit | None = None,
+    evaporation_m: _pd.Series | None = None,
+) -> Balance:
+    """The daily water balance of ``site`` with Monte Carlo bands.
+
+    Parameters
+    ----------
+    site : Site
+        The validated site file: a stage series and ``[storage]`` are required; inflow, rain,
+        withdrawal and release series, the ``[outlet]`` rating and the evaporation inputs are
+        used when given (a term without any record is taken as zero and noted).
+    draws : int, optional
+        Monte Carlo draws (default ``[uncertainty] draws``; 0 skips the bands).
+    rng : numpy.random.Generator, optional
+        Source of the draws (default: seeded from ``[site] seed``, recorded in the result).
+    records, storage, rating : optional
+        Already loaded records, storage relation and fitted rating (loaded from the site when
+        not given).
+    evaporation_m : pandas.Series, optional
+        Daily lake evaporation depth, m per day (default: :func:`lake_evaporation`).
+
+    Returns
+    -------
+    Balance
+        Daily table, ``monthly()`` and ``water_years()`` with 5-95% residual bands; see
+        ``docs/balance.md``.
+
+    Raises
+    ------
+    ConfigError
+        No stage series or no ``[storage]`` section.
+    """
+    import numpy as np
+    import pandas as pd
+
+    from .balance import (
+        ClosureOptions,
+        DailyTerms,
+        OutletParameters,
+        add_uncertainty,
+        boundary_stage_from_readings,
+        close_daily,
+    )
+    from .errors import ConfigError
+
+    if records is None:
+        records = load_records(site)
+    daily = records.daily
+    if "stage" not in daily.columns:
+        raise ConfigError("the water balance needs a stage series ([series.stage])", file=site.path)
+    if storage is None:
+        storage = load_storage(site)
+    if rating is None and site.outlet is not None:
+        rating = fit_rating(site)
+    notes: list[str] = []
+    if evaporation_m is None:
+        from .evaporation.lake import WEATHER_ROLES
+
+        weather = [r for r in WEATHER_ROLES if r != "rain" and records.has(r)]
+        if weather:
+            evap = lake_evaporation(site, records)
+            evaporation_m = evap.depth_m
+            notes.append(f"lake evaporation by the {evap.method} method")
+    info = {s.key: s for s in records.series}
+    inflows = {info[k].name if k in info else k: daily[k] for k in records.keys("inflow")}
+    rain_keys = records.keys("rain")
+    rain = daily[rain_keys].mean(axis=1, skipna=True) if rain_keys else None
+    if len(rain_keys) > 1:
+        notes.append(f"rain is the daily mean of {len(rain_keys)} gauges")
+    terms = DailyTerms(
+        stage_m=daily["stage"],
+        inflow_m3s=inflows,
+        rain_m=rain,
+        evaporation_m=evaporation_m,
+        withdrawal_m3s=records.total("withdrawal") if records.has("withdrawal") else None,
+        release_m3s=records.total("release") if records.has("release") else None,
+        boundary_stage_m=(
+            boundary_stage_from_readings(records.subdaily_stage, pd.DatetimeIndex(daily.index))
+            if records.subdaily_stage is not None
+            else None
+        ),
+    )
+    options = ClosureOptions(
+        boundary_rule=site.uncertainty.boundary_rule,
+        water_year_start=site.site.water_year_start,
+    )
+    outflow = rating.discharge if rating is not None else None
+    balance = close_daily(
+        terms, volume_fn=storage.volume, area_fn=storage.area, outflow_fn=outflow, options=options
+    )
+    n_draws = site.uncertainty.draws if draws is None else int(draws)
+    seed = None
+    if n_draws > 0:
+        if rng is None:
+            seed = site.site.seed
+            rng = np.random.default_rng(seed)
+        outlet = None
+        if rating is not None:
+            cov = np.asarray(rating.cov, dtype=float)
+            if np.all(np.isfinite(cov)):
+                outlet = OutletParameters(
+                    values=np.asarray(rating.vector, dtype=float),
+                    discharge_with=rating.discharge_with,
+                    cov=cov,
+                    names=tuple(rating.param_names),
+                )
+            else:
+                notes.append("rating covariance not finite: rating parameter error left out")
+        balance = add_uncertainty(
+            balance,
+            area_fn=storage.area,
+            outflow_fn=outflow,
+            outlet=outlet,
+            errors=term_errors(site, records),
+            draws=n_draws,
+            rng=rng,
+            seed=seed,
+        )
+    import dataclasses as _dc
+
+    return _dc.replace(balance, notes=(*balance.notes, *notes))
+
+
+def lake_dynamics(
+    site: Site,
+    inflow_m3s: float | None = None,
+    *,
+    outlet: dict[str, float] | None = None,
+    demand_m3s: float | None = None,
+    evaporation_scale: float | None = None,
+    balance: Balance | None = None,
+    use_seepage: bool = True,
+) -> Dynamics:
+    """Residence, response and equilibrium analysis of ``site``, with optional what-ifs.
+
+    Parameters
+    ----------
+    site : Site
+        The validated site file (stage, ``[storage]``; ``[outlet]`` when the lake has one).
+    inflow_m3s : float, optional
+        Sustained inflow, m³/s (default: the mean gauged inflow of the record).
+    outlet : dict, optional
+        What-if: rating parameters changed (``{"sill.e": 9.5}``, SI), e.g. a lowered sill.
+    demand_m3s : float, optional
+        What-if: a changed stage-independent demand (withdrawals and releases), m³/s.
+    evaporation_scale : float, optional
+        What-if: a factor (-) on the mean evaporation depth.
+    balance : Balance, optional
+        An already closed balance (closed without bands when not given).
+    use_seepage : bool
+        Include the net seepage law estimated from the residual, when it can be estimated.
+
+    Returns
+    -------
+    Dynamics
+        See ``docs/balance.md``; ``summary()`` and ``to_dict()``.
+
+    Notes
+    -----
+    Evaporation and rain enter as their record means (m per day) times the area at each stage;
+    demand as the record mean of withdrawals and releases.
+    """
+    import numpy as np
+    import pandas as pd
+
+    from .dynamics import LakeModel, analyse_dynamics, residence_times
+    from .errors import ConfigError, LakebalanceError
+    from .units import SECONDS_PER_DAY
+
+    storage = load_storage(site)
+    rating = fit_rating(site) if site.outlet is not None else None
+    if balance is None:
+        balance = close_balance(site, draws=0, storage=storage, rating=rating)
+    d = balance.daily
+    notes: list[str] = []
+    seepage = None
+    fn = globals().get("estimate_seepage")
+    if use_seepage and fn is not None:
+        try:
+            seepage = fn(site)
+        except LakebalanceError as exc:
+            notes.append(f"seepage left out: {exc.message}")
+    ok = d["area_m2"].notna()
+    area_sum = float(d.loc[ok, "area_m2"].sum())
+
+    def mean_depth(col: str) -> float:
+        sel = ok & d[col].notna()
+        return float(d.loc[sel, col].sum() / d.loc[sel, "area_m2"].sum()) if sel.any() else 0.0
+
+    evap = mean_depth("evaporation_m3") if area_sum > 0 else 0.0
+    rain = mean_depth("rain_m3") if area_sum > 0 else 0.0
+    demand = float((d["withdrawal_m3"] + d["release_m3"]).mean() / SECONDS_PER_DAY)
+    if inflow_m3s is None:
+        inflow_m3s = float(d["inflow_m3"].mean() / SECONDS_PER_DAY)
+        notes.append(f"sustained inflow: the record's mean gauged inflow, {inflow_m3s:.4g} m3/s")
+    levels = dict(site.levels)
+    lo = float(storage.min_stage_m)
+    hi = float(storage.max_stage_m)
+    if storage.above == "extend" and levels:
+        hi = max(hi, *levels.values())  # named levels above the survey: area extended
+    outflow = rating.discharge if rating is not None else None
+    lake = LakeModel(
+        area_fn=storage.area,
+        outflow_fn=outflow,
+        seepage_fn=seepage.rate_m3s if seepage is not None else None,
+        evaporation_m_per_d=evap,
+        rain_m_per_d=rain,
+        demand_m3s=demand,
+        stage_range_m=(lo, hi),
+    )
+    if seepage is not None:
+        notes.append("net seepage law from the residual included in the losses")
+    changes: list[tuple[str, dict]] = []
+    if outlet:
+        if rating is None:
+            raise ConfigError("an outlet what-if needs an [outlet] rating", file=site.path)
+        names = list(rating.param_names)
+        vec = np.asarray(rating.vector, dtype=float).copy()
+        for key, value in outlet.items():
+            if key not in names:
+                from .errors import suggest
+
+                raise ConfigError(
+                    f"unknown rating parameter '{key}'{suggest(key, names)}; parameters are "
+                    + ", ".join(names),
+                    file=site.path,
+                )
+            vec[names.index(key)] = float(value)
+        row = vec[None, :]
+
+        def changed(h, _row=row):
+            h = np.asarray(h, dtype=float)
+            return rating.discharge_with(_row, h[None, ...])[0]
+
+        label = "outlet " + ", ".join(f"{k} = {v:g}" for k, v in outlet.items())
+        changes.append((label, {"outflow_fn": changed}))
+    if demand_m3s is not None:
+        changes.append((f"demand {demand_m3s:g} m3/s", {"demand_m3s": float(demand_m3s)}))
+    if evaporation_scale is not None:
+        changes.append(
+            (f"evaporation x {evaporation_scale:g}", {"evaporation_scale": evaporation_scale})
+        )
+    stage = d["stage_m"].dropna()
+    stages = dict(levels)
+    for q in (10, 50, 90):
+        stages[f"record p{q}"] = float(stage.quantile(q / 100))
+    seep_m3 = (
+        pd.Series(seepage.rate_m3s(d["stage_m"].to_numpy()) * SECONDS_PER_DAY, index=d.index)
+        if seepage is not None
+        else None
+    )
+    residence = residence_times(d, balance.water_year_start, seepage_m3=seep_m3)
+    return analyse_dynamics(
+        lake,
+        inflow_m3s=float(inflow_m3s),
+        today=stage.index[-1].date().isoformat(),
+        today_stage_m=float(stage.iloc[-1]),
+        levels=levels,
+        stages=stages,
+        residence=residence,
+        changes=tuple(changes),
+        notes=tuple(notes),
+    )

@@ -77,10 +77,17 @@ __all__ = [
     "day_path",
     "boundary_stage_from_readings",
     "TERM_SIGNS",
+    "CAUTION",
 ]
 
 Array = np.ndarray
 StageFn = Callable[[Array], Array]
+
+CAUTION = (
+    "The residual collects every unmeasured flow and every measurement error; the bands rest on "
+    "assumed term errors. Where the balance informs public water supply, dam safety or flood "
+    "levels, defer to local codes and a licensed professional."
+)
 
 #: Sign of each measured term in the storage change (+ gain, − loss).
 TERM_SIGNS: dict[str, int] = {

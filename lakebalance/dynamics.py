@@ -29,7 +29,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
@@ -40,6 +40,8 @@ __all__ = [
     "LakeModel",
     "Equilibrium",
     "WhatIf",
+    "Dynamics",
+    "analyse_dynamics",
     "residence_times",
     "CAUTION",
 ]
@@ -415,3 +417,210 @@ def residence_times(
     )
     out.loc["all", "days"] = int(frame["storage"].notna().sum())
     return out
+
+
+@dataclass(frozen=True)
+class Dynamics:
+    """Residence times, response times, equilibria, inflow limits and what-ifs of one lake.
+
+    Attributes
+    ----------
+    residence : pandas.DataFrame
+        :func:`residence_times` (per water year and ``"all"``).
+    response : pandas.DataFrame
+        Per stage (index ``label``): ``stage_m``, ``area_m2``, ``loss_slope_m2s`` (dL/dh),
+        ``response_time_days``.
+    inflow_m3s : float
+        The sustained inflow analysed, m³/s.
+    equilibrium : Equilibrium
+        Its equilibrium.
+    limits : pandas.DataFrame
+        Per named level (index ``level``): ``stage_m`` and ``max_inflow_m3s``, the largest
+        sustained inflow that keeps the lake at or below that level.
+    cease_to_flow_stage_m : float
+        Highest stage at which the outlet does not flow, m.
+    minimum_inflow_to_flow_m3s : float
+        Smallest sustained inflow that keeps the outlet flowing, m³/s.
+    today : str
+        Date of today's state (last stage of the record).
+    today_stage_m : float
+        Today's stage, m.
+    what_if : tuple of WhatIf
+        The base case first (the lake as it is, from today's stage), then each change asked for.
+    rates : dict
+        The stage-independent rates used: evaporation and rain (m/d), demand (m³/s).
+    lake : LakeModel
+        The model (not serialised).
+    notes : tuple of str
+    caution : str
+    """
+
+    residence: pd.DataFrame
+    response: pd.DataFrame
+    inflow_m3s: float
+    equilibrium: Equilibrium
+    limits: pd.DataFrame
+    cease_to_flow_stage_m: float
+    minimum_inflow_to_flow_m3s: float
+    today: str
+    today_stage_m: float
+    what_if: tuple[WhatIf, ...] = ()
+    rates: dict[str, float] = field(default_factory=dict)
+    lake: LakeModel | None = field(default=None, repr=False)
+    notes: tuple[str, ...] = ()
+    caution: str = CAUTION
+
+    def to_dict(self) -> dict:
+        """Plain structure for JSON output."""
+
+        def eq(e: Equilibrium) -> dict:
+            return {
+                "inflow_m3s": e.inflow_m3s,
+                "stage_m": e.stage_m,
+                "status": e.status,
+                "response_time_days": e.response_time_days,
+            }
+
+        return {
+            "inflow_m3s": self.inflow_m3s,
+            "equilibrium": eq(self.equilibrium),
+            "today": self.today,
+            "today_stage_m": self.today_stage_m,
+            "cease_to_flow_stage_m": self.cease_to_flow_stage_m,
+            "minimum_inflow_to_flow_m3s": self.minimum_inflow_to_flow_m3s,
+            "rates": dict(self.rates),
+            "limits": self.limits.reset_index().to_dict(orient="records"),
+            "response": self.response.reset_index().to_dict(orient="records"),
+            "residence": self.residence.reset_index().to_dict(orient="records"),
+            "what_if": [
+                {
+                    "label": w.label,
+                    "equilibrium": eq(w.equilibrium),
+                    "start_stage_m": w.start_stage_m,
+                    "time_to_95_days": w.time_to_95_days,
+                }
+                for w in self.what_if
+            ],
+            "notes": list(self.notes),
+            "caution": self.caution,
+        }
+
+    def summary(self) -> str:
+        """Plain-text summary."""
+        e = self.equilibrium
+        lines = [
+            f"Sustained inflow {self.inflow_m3s:.4g} m3/s: equilibrium stage "
+            + (
+                f"{e.stage_m:.3f} m, response time {e.response_time_days:.1f} d"
+                if e.status == "ok"
+                else {
+                    "above_range": "above the modelled range",
+                    "empties": "none (the lake falls to the bottom of the relations)",
+                }[e.status]  # fmt: skip
+            ),
+            f"today ({self.today}): stage {self.today_stage_m:.3f} m",
+            f"outlet ceases to flow at {self.cease_to_flow_stage_m:.3f} m; smallest inflow that "
+            f"keeps it flowing {self.minimum_inflow_to_flow_m3s:.4g} m3/s",
+            "",
+            "largest sustained inflow that keeps the lake at or below each level:",
+            self.limits.to_string(float_format=lambda v: f"{v:.4g}"),
+            "",
+            "response time tau(h) = A(h) / (dLoss/dh):",
+            self.response.to_string(float_format=lambda v: f"{v:.4g}"),
+            "",
+            "residence time (mean volume / mean outflow; / mean total losses), days:",
+            self.residence[["residence_outflow_days", "residence_losses_days"]].to_string(
+                float_format=lambda v: f"{v:.4g}"
+            ),
+        ]
+        if self.what_if:
+            lines += ["", "what-if (from today's stage):"]
+            for w in self.what_if:
+                st = (
+                    f"equilibrium {w.equilibrium.stage_m:.3f} m, 95% reached in "
+                    f"{w.time_to_95_days:.1f} d"
+                    if w.equilibrium.status == "ok"
+                    else f"no equilibrium in range ({w.equilibrium.status})"
+                )
+                lines.append(f"  {w.label}: {st}")
+        lines += ["", *self.notes, "", self.caution]
+        return "\n".join(lines)
+
+
+def analyse_dynamics(
+    lake: LakeModel,
+    *,
+    inflow_m3s: float,
+    today: str,
+    today_stage_m: float,
+    levels: dict[str, float] | None = None,
+    stages: dict[str, float] | None = None,
+    residence: pd.DataFrame | None = None,
+    changes: tuple[tuple[str, dict], ...] = (),
+    notes: tuple[str, ...] = (),
+) -> Dynamics:
+    """Every dynamics figure of a lake model (see :class:`Dynamics`).
+
+    Parameters
+    ----------
+    lake : LakeModel
+        The lake.
+    inflow_m3s : float
+        Sustained inflow, m³/s.
+    today, today_stage_m : str, float
+        Date and stage (m) of today's state.
+    levels : dict, optional
+        Named stages (m) for the inflow limits.
+    stages : dict, optional
+        Named stages (m) for the response times (default: the levels).
+    residence : pandas.DataFrame, optional
+        From :func:`residence_times`.
+    changes : tuple of (label, dict)
+        What-if cases: keyword arguments of :meth:`LakeModel.what_if` (``outflow_fn``,
+        ``demand_m3s``, ``evaporation_scale``).
+    notes : tuple of str
+    """
+    levels = dict(levels or {})
+    stages = dict(stages if stages is not None else levels)
+    lo, hi = lake.stage_range_m
+    h = np.array(list(stages.values()), dtype=float)
+    response = pd.DataFrame(
+        {
+            "stage_m": h,
+            "area_m2": np.asarray(lake.area_fn(h), dtype=float) if h.size else h,
+            "loss_slope_m2s": lake.loss_derivative(h) if h.size else h,
+            "response_time_days": lake.response_time_s(h) / SECONDS_PER_DAY if h.size else h,
+        },
+        index=pd.Index(list(stages), name="label"),
+    )
+    lv = np.array(list(levels.values()), dtype=float)
+    limits = pd.DataFrame(
+        {
+            "stage_m": lv,
+            "max_inflow_m3s": [lake.inflow_for_stage(x) for x in lv],
+            "within_range": (lv >= lo) & (lv <= hi),
+        },
+        index=pd.Index(list(levels), name="level"),
+    )
+    cases = [lake.what_if(inflow_m3s, today_stage_m, label="as is")]
+    for label, kwargs in changes:
+        cases.append(lake.what_if(inflow_m3s, today_stage_m, label=label, **kwargs))
+    return Dynamics(
+        residence=residence if residence is not None else pd.DataFrame(),
+        response=response,
+        inflow_m3s=float(inflow_m3s),
+        equilibrium=lake.equilibrium(inflow_m3s),
+        limits=limits,
+        cease_to_flow_stage_m=lake.cease_to_flow_stage(),
+        minimum_inflow_to_flow_m3s=lake.minimum_inflow_to_flow(),
+        today=today,
+        today_stage_m=float(today_stage_m),
+        what_if=tuple(cases),
+        rates={
+            "evaporation_m_per_d": lake.evaporation_m_per_d,
+            "rain_m_per_d": lake.rain_m_per_d,
+            "demand_m3s": lake.demand_m3s,
+        },
+        lake=lake,
+        notes=tuple(notes),
+    )

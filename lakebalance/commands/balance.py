@@ -1,0 +1,141 @@
+"""``lakebalance balance``: the daily water balance with monthly and water-year tables and bands."""
+
+from __future__ import annotations
+
+import argparse
+
+from ._common import add_json, add_out, add_seed, add_site
+
+HELP = "close the daily water balance: monthly and water-year tables with 5-95% residual bands"
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    add_site(parser)
+    add_json(parser)
+    add_out(parser)
+    add_seed(parser)
+    parser.add_argument(
+        "--draws",
+        type=int,
+        default=None,
+        metavar="N",
+        help="Monte Carlo draws (default: [uncertainty] draws of the site file; 0 = no bands)",
+    )
+
+
+_ANNUAL = [
+    "complete_days",
+    "storage_start_m3",
+    "storage_end_m3",
+    "storage_change_m3",
+    "inflow_m3",
+    "rain_m3",
+    "evaporation_m3",
+    "outflow_m3",
+    "withdrawal_m3",
+    "release_m3",
+    "residual_m3",
+    "residual_mm",
+    "closure_error_pct",
+]
+_BANDS = ["residual_p05_m3", "residual_p95_m3", "p_gain", "p_nonzero"]
+
+
+def run(args: argparse.Namespace) -> int:
+    import sys
+    import warnings
+
+    import numpy as np
+
+    from .._json import dumps
+    from ..api import close_balance, load_site
+    from ..balance import CAUTION
+    from ..errors import LakebalanceError, LakebalanceWarning
+
+    if args.draws is not None and args.draws < 0:
+        raise LakebalanceError("--draws must be 0 or more")
+    site = load_site(args.site)
+    seed = site.site.seed if args.seed is None else args.seed
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", LakebalanceWarning)
+        balance = close_balance(site, draws=args.draws, rng=np.random.default_rng(seed))
+    messages = list(dict.fromkeys(str(w.message) for w in caught))
+    annual = balance.water_years()
+    monthly = balance.monthly()
+    files = _write_outputs(args.out, balance, annual, monthly, seed) if args.out else []
+
+    if args.json:
+        first, last = balance.period
+        doc = {
+            "site": site.site.name,
+            "period": {"start": first.date(), "end": last.date(), "days": len(balance.daily)},
+            "missing_days": balance.missing_days,
+            "water_year_start": balance.water_year_start,
+            "draws": balance.draws,
+            "seed": seed if balance.draws else None,
+            "errors": balance.errors,
+            "absent_terms": list(balance.absent_terms),
+            "totals_m3": balance.totals,
+            "water_years": annual.reset_index().to_dict(orient="records"),
+            "monthly": monthly.reset_index().to_dict(orient="records"),
+            "notes": list(balance.notes),
+            "warnings": messages,
+            "files": [str(f) for f in files],
+            "caution": CAUTION,
+        }
+        print(dumps(doc))
+        return 0
+
+    first, last = balance.period
+    print(f"{site.site.name}: water balance {first.date()} to {last.date()}")
+    print(
+        f"{len(balance.daily)} days, {balance.missing_days} with a missing term; "
+        f"absent terms: {', '.join(balance.absent_terms) or 'none'}; "
+        + (f"{balance.draws} Monte Carlo draws, seed {seed}" if balance.draws else "no bands")
+    )
+    cols = _ANNUAL + [c for c in _BANDS if c in annual]
+    fmt = {"float_format": lambda v: f"{v:,.5g}"}
+    print()
+    print("water years (m3; residual also in mm over the mean lake area):")
+    print(annual[cols].to_string(**fmt))
+    print()
+    print("months (m3):")
+    mcols = ["complete_days", "storage_change_m3", "inflow_m3", "outflow_m3", "residual_m3"]
+    mcols += [c for c in ("residual_p05_m3", "residual_p95_m3") if c in monthly]
+    view = monthly[mcols].copy()
+    view.index = view.index.strftime("%Y-%m")
+    print(view.to_string(**fmt))
+    print()
+    for note in balance.notes:
+        print(f"note: {note}")
+    for m in messages:
+        print(f"warning: {m}", file=sys.stderr)
+    if files:
+        print(f"wrote {len(files)} files to {args.out}")
+    print(f"caution: {CAUTION}")
+    return 0
+
+
+def _write_outputs(out, balance, annual, monthly, seed) -> list:
+    from ..io.output import write_csv, write_parquet, write_text
+
+    out.mkdir(parents=True, exist_ok=True)
+    daily = balance.daily.copy()
+    files = [
+        write_csv(out / "balance_daily.csv", daily),
+        write_parquet(out / "balance_daily.parquet", daily),
+        write_csv(out / "balance_monthly.csv", monthly),
+        write_csv(out / "balance_water_years.csv", annual),
+    ]
+    from ..balance import CAUTION
+
+    about = [
+        f"seed: {seed if balance.draws else 'none (no Monte Carlo)'}",
+        f"draws: {balance.draws}",
+        *balance.notes,
+        "",
+        CAUTION,
+        "",
+    ]
+    files.append(write_text(out / "balance_notes.txt", "\n".join(about)))
+    return files
