@@ -37,6 +37,19 @@ _EXPORTS = {
     "StorageCurve": "lakebalance.storage",
     "storage_from_table": "lakebalance.storage",
     "storage_from_outline": "lakebalance.storage",
+    "close_balance": "lakebalance.api",
+    "term_errors": "lakebalance.api",
+    "lake_dynamics": "lakebalance.api",
+    "Balance": "lakebalance.balance",
+    "DailyTerms": "lakebalance.balance",
+    "ClosureOptions": "lakebalance.balance",
+    "TermErrors": "lakebalance.balance",
+    "OutletParameters": "lakebalance.balance",
+    "close_daily": "lakebalance.balance",
+    "add_uncertainty": "lakebalance.balance",
+    "LakeModel": "lakebalance.dynamics",
+    "Dynamics": "lakebalance.dynamics",
+    "residence_times": "lakebalance.dynamics",
 }
 
 __all__ = ["__version__", *_EXPORTS]
