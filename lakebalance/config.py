@@ -240,10 +240,12 @@ class FlagOptions:
     change_method: Literal["pelt", "binseg"] = "pelt"  # change-point search
     min_run_days: int = 14  # shortest persistent run or level-shift segment reported (days)
     run_threshold: float = 4.0  # z-score of a run's volume against the residual noise (-)
+    min_run_effect: float = 0.5  # smallest mean departure of a run, in noise sigmas (-)
     cusum_slack: float = 0.5  # CUSUM reference value k, in noise standard deviations (-)
     cusum_threshold: float = 10.0  # CUSUM decision interval h, in noise standard deviations (-)
     drift_min_days: int = 180  # shortest segment tested for a linear drift (days)
     drift_alpha: float = 0.001  # significance level of the drift test (-)
+    shift_stage_z: float = 2.0  # robust z of a mirrored stage step at a level change (-)
 
 
 @dataclass(frozen=True)

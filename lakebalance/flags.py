@@ -43,6 +43,9 @@ __all__ = [
     "MAD_TO_SIGMA",
     "robust_sigma",
     "rolling_robust_z",
+    "noise_scale",
+    "usual_level",
+    "stage_step_anomaly",
     "long_run_variance_ratio",
     "change_points",
     "cusum",
@@ -185,6 +188,185 @@ def long_run_variance_ratio(values: np.ndarray, lags: int | None = None) -> floa
         rho = float(np.dot(x[j:], x[:-j]) / n) / var
         total += (1.0 - j / (lags + 1.0)) * rho
     return max(1.0, 1.0 + 2.0 * total)
+
+
+def noise_scale(
+    deviation_m3: np.ndarray,
+    throughput_m3: np.ndarray | None = None,
+    *,
+    bins: int = 10,
+    window: int = 93,
+) -> np.ndarray:
+    """Day-to-day noise scale (1-σ) of the residual, growing with the flow through the lake.
+
+    Parameters
+    ----------
+    deviation_m3 : ndarray
+        Residual minus its rolling median (m³/d); NaN allowed.
+    throughput_m3 : ndarray, optional
+        Sum of the absolute gauged terms of each day (m³/d): inflows, rain, evaporation, outflow,
+        withdrawals, releases (not the storage change, which a bad stage reading inflates).
+    bins : int
+        Quantile classes of throughput.
+    window : int
+        Rolling window (days) used when no throughput is given.
+
+    Returns
+    -------
+    ndarray
+        Scale (m³/d) of each day, at least a tenth of the record's robust scale.
+
+    Notes
+    -----
+    The errors of the gauged terms are roughly proportional to the terms, so the residual is
+    heteroscedastic: large on flood days, small in dry spells. The scale of a throughput class is
+    1.4826 · median |deviation| of its days (Hampel, 1974); the classes are made non-decreasing in
+    throughput and interpolated linearly between class medians (clamped at the ends). Without a
+    throughput it is the centred rolling MAD scale over ``window`` days. Common practice, no
+    source, for the binning.
+    """
+    d = np.asarray(deviation_m3, dtype=float)
+    overall = robust_sigma(d)
+    if not np.isfinite(overall) or overall <= 0:
+        overall = float(np.nanstd(d)) if np.isfinite(d).any() else 1.0
+        overall = overall if overall > 0 else 1.0
+    out = None
+    if throughput_m3 is not None:
+        g = np.asarray(throughput_m3, dtype=float)
+        ok = np.isfinite(d) & np.isfinite(g)
+        if ok.sum() >= 20 * bins:
+            edges = np.unique(np.quantile(g[ok], np.linspace(0.0, 1.0, bins + 1)))
+            cls = np.clip(np.searchsorted(edges, g[ok], side="right") - 1, 0, len(edges) - 2)
+            centres, scales = [], []
+            for c in range(len(edges) - 1):  # loop over classes
+                members = cls == c
+                if members.sum() >= 10:
+                    centres.append(float(np.median(g[ok][members])))
+                    scales.append(MAD_TO_SIGMA * float(np.median(np.abs(d[ok][members]))))
+            if len(centres) >= 2:
+                scales_arr = np.maximum.accumulate(np.asarray(scales))
+                out = np.interp(g, centres, scales_arr)
+                out = np.where(np.isfinite(out), out, overall)
+    if out is None:
+        _, _, out = rolling_robust_z(d, window)
+        out = np.where(np.isfinite(out), out, overall)
+    return np.maximum(out, 0.1 * overall)
+
+
+def usual_level(
+    residual_m3: np.ndarray, stage_m: np.ndarray | None, scale_m3: np.ndarray
+) -> tuple[np.ndarray, str]:
+    """The residual's usual level on each day: a robust straight line in stage (m³/d).
+
+    Parameters
+    ----------
+    residual_m3 : ndarray
+        Daily residual (m³/d) with flagged days set to NaN.
+    stage_m : ndarray or None
+        Daily stage (m); None gives a constant level.
+    scale_m3 : ndarray
+        Noise scale of each day (m³/d), used as weights.
+
+    Returns
+    -------
+    level : ndarray
+        Usual level (m³/d) of each day (NaN where the stage is missing).
+    note : str
+        The fitted line in words.
+
+    Notes
+    -----
+    A lake that exchanges water with the ground shows a residual of about −k (h − h0) (see
+    :mod:`lakebalance.seepage`), so the usual level is fitted as a + b (h − h̄) by Huber's robust
+    regression (Huber, 1981; statsmodels ``RLM``) of residual / scale on 1 / scale and
+    (h − h̄) / scale. Departures from it, not from a constant, are what the run and shift
+    detectors look for, so that slow stage-driven changes are not flagged.
+    """
+    r = np.asarray(residual_m3, dtype=float)
+    s = np.asarray(scale_m3, dtype=float)
+    ok = np.isfinite(r) & np.isfinite(s) & (s > 0)
+    if stage_m is not None:
+        h = np.asarray(stage_m, dtype=float)
+        ok &= np.isfinite(h)
+    if ok.sum() < 30:
+        med = float(np.nanmedian(r)) if np.isfinite(r).any() else 0.0
+        return np.full(r.shape, med), f"constant {med:,.0f} m³/d"
+    import statsmodels.api as sm
+
+    if stage_m is None or np.ptp(h[ok]) == 0:
+        x = (1.0 / s[ok])[:, None]
+    else:
+        h_mean = float(np.mean(h[ok]))
+        x = np.column_stack([1.0 / s[ok], (h[ok] - h_mean) / s[ok]])
+    fit = sm.RLM(r[ok] / s[ok], x, M=sm.robust.norms.HuberT()).fit()
+    params = np.asarray(fit.params, dtype=float)
+    if params.size == 1:
+        return np.full(r.shape, params[0]), f"constant {params[0]:,.0f} m³/d"
+    level = params[0] + params[1] * (h - h_mean)
+    return level, f"{params[0]:,.0f} {params[1]:+,.0f} (h − {h_mean:.2f} m) m³/d"
+
+
+def stage_step_anomaly(stage_m: np.ndarray, neighbours: int = 3) -> np.ndarray:
+    """Daily stage change minus the median change of the neighbouring days (m).
+
+    Parameters
+    ----------
+    stage_m : ndarray
+        Daily stage (m).
+    neighbours : int
+        Days on each side whose changes make the expected change.
+
+    Returns
+    -------
+    ndarray
+        ``Δh_t − median(Δh_{t−k..t−1}, Δh_{t+1..t+k})`` (m); NaN where Δh_t is unknown.
+
+    Notes
+    -----
+    The local median follows a rise or a recession, so a step of the gauge zero shows as a
+    one-day anomaly of its own size, and a one-day bad reading as a pair of opposite anomalies.
+    Common practice, no source.
+    """
+    h = np.asarray(stage_m, dtype=float)
+    dh = np.diff(h, prepend=np.nan)
+    k = max(1, int(neighbours))
+    padded = np.concatenate([np.full(k, np.nan), dh, np.full(k, np.nan)])
+    windows = np.lib.stride_tricks.sliding_window_view(padded, 2 * k + 1).copy()
+    windows[:, k] = np.nan
+    with _quiet_nan_warnings():
+        expected = np.nanmedian(windows, axis=1)
+    return dh - expected
+
+
+def _stage_steps_near(a: int, z_h: np.ndarray, step: np.ndarray, options: FlagOptions) -> list[int]:
+    """Days of lone stage steps (|z| ≥ ``shift_stage_z``, not undone) near ``a``, nearest first."""
+    span = options.spike_days + 1
+    lo, hi = max(a - span, 0), min(a + span + 1, len(z_h))
+    out = []
+    for j in sorted(range(lo, hi), key=lambda i: abs(i - a)):  # a few days
+        if not np.isfinite(z_h[j]) or abs(z_h[j]) < options.shift_stage_z:
+            continue
+        after = step[j + 1 : j + 1 + options.spike_days]
+        if np.any((np.sign(after) == -np.sign(step[j])) & (np.abs(after) >= 0.5 * abs(step[j]))):
+            continue  # undone by a step back of like size: a bad reading, not a shift
+        out.append(j)
+    return out
+
+
+def _throughput(daily: pd.DataFrame) -> np.ndarray | None:
+    names = [
+        c
+        for c in daily.columns
+        if c in ("inflow_m3", "rain_m3", "evaporation_m3", "outflow_m3", "withdrawal_m3")
+        or c == "release_m3"
+    ]
+    if not names:
+        return None
+    g = np.abs(daily[names].to_numpy(dtype=float)).sum(axis=1)
+    # a day of rising or falling flows carries the timing errors of the day boundaries too
+    change = np.abs(np.diff(g, prepend=np.nan))
+    change_next = np.abs(np.diff(g, append=np.nan))
+    return g + np.nan_to_num(change) + np.nan_to_num(change_next)
 
 
 @dataclass(frozen=True)
@@ -486,6 +668,7 @@ class Flags:
     change_points: tuple[str, ...] = ()
     corrections: tuple[Correction, ...] = ()
     band_source: str = "residual noise"
+    usual_level: str = ""
     options: FlagOptions = field(default_factory=FlagOptions)
 
     def __len__(self) -> int:
@@ -562,6 +745,7 @@ class Flags:
                 None if len(idx) == 0 else idx[-1].date().isoformat(),
             ],
             "baseline_m3_per_day": self.baseline_m3,
+            "usual_level": self.usual_level,
             "noise_m3_per_day": self.noise_m3,
             "long_run_variance_ratio": self.ratio,
             "change_point_penalty": self.penalty,
@@ -614,7 +798,7 @@ class Flags:
         if len(idx):
             out.append(
                 f"Residual flags, {idx[0].date()} to {idx[-1].date()}: {len(self.items)} flag(s); "
-                f"usual residual {self.baseline_m3:,.0f} m³/d, day-to-day noise "
+                f"usual residual {self.usual_level or f'{self.baseline_m3:,.0f} m³/d'}, typical noise "
                 f"{self.noise_m3:,.0f} m³/d; significance against the {self.band_source}."
             )
         for i, f in enumerate(self.items, 1):
@@ -692,6 +876,7 @@ def detect_flags(
     *,
     sigma_m3: pd.Series | np.ndarray | None = None,
     corrections: tuple[Correction, ...] = (),
+    exclude: pd.Series | np.ndarray | None = None,
 ) -> Flags:
     """Flag the unexplained residual and the stage record of a daily balance.
 
@@ -710,6 +895,9 @@ def detect_flags(
     corrections : tuple of Correction
         The corrections of the site file already applied to the records (reported, and used to
         mark matching flags as accepted).
+    exclude : Series or ndarray of bool, optional
+        Days left out of every detector (e.g. a stage flat-line already reported by the checks
+        on the raw series).
 
     Returns
     -------
@@ -746,8 +934,13 @@ def detect_flags(
 
         raise LakebalanceError("the daily balance has no 'residual_m3' column to flag")
     index = daily.index
-    r = daily["residual_m3"].to_numpy(dtype=float)
+    r = daily["residual_m3"].to_numpy(dtype=float).copy()
     n = r.size
+    if exclude is not None:
+        left_out = np.asarray(exclude, dtype=bool)
+        if left_out.shape != r.shape:
+            raise ValueError("exclude must have one value per day of the balance")
+        r[left_out] = np.nan
     stage = _column(daily, "stage_m")
     area = _column(daily, "area_m2")
     inflow = _column(daily, "inflow_m3")
@@ -777,22 +970,26 @@ def detect_flags(
             ar = mean_area
         return float(volume / ar * 1000.0) if np.isfinite(ar) and ar > 0 else float("nan")
 
+    # ---- noise scale of each day (for detection) -------------------------------------------
+    _, med_r, _ = rolling_robust_z(r, options.outlier_window)
+    dev0 = r - med_r
+    scale_m3 = noise_scale(dev0, _throughput(daily), window=3 * options.outlier_window)
+    z_w = dev0 / scale_m3
+    noise = float(np.nanmedian(scale_m3))
+
     # ---- step 1: events --------------------------------------------------------------------
-    z_r, med_r, _ = rolling_robust_z(r, options.outlier_window)
-    noise = robust_sigma(r - med_r)
-    if not np.isfinite(noise) or noise <= 0:
-        noise = robust_sigma(r) if np.isfinite(robust_sigma(r)) and robust_sigma(r) > 0 else 1.0
-    out_r = np.abs(z_r) > options.outlier_threshold
+    out_r = np.abs(z_w) > options.outlier_threshold
+    throughput = _throughput(daily)
     if stage is not None:
-        dh = np.diff(stage, prepend=np.nan)
-        z_h, med_h, _ = rolling_robust_z(dh, options.outlier_window)
-        step = np.where(np.isfinite(dh - med_h), dh - med_h, 0.0)
-        jump = np.abs(z_h) > options.outlier_threshold
+        step = stage_step_anomaly(stage)
+        z_h = step / noise_scale(step, throughput, window=3 * options.outlier_window)
+        step = np.nan_to_num(step)
+        jump = np.abs(np.nan_to_num(z_h)) > options.outlier_threshold
     else:
-        dh = z_h = None
+        z_h = None
         step = np.zeros(n)
         jump = np.zeros(n, dtype=bool)
-    event_mask = out_r | (jump & ~np.isfinite(r))
+    event_mask = out_r | jump
     events = _groups(event_mask, gap=max(0, options.spike_days - 1))
 
     def sigma_of(a: int, b: int, ratio: float) -> float:
@@ -801,8 +998,10 @@ def detect_flags(
             s = s[np.isfinite(s)]
             if s.size:
                 return float(math.sqrt(np.sum(s**2)))
-        days = int(np.isfinite(r[a : b + 1]).sum()) or 1
-        return float(noise * math.sqrt(ratio * days))
+        ok = np.isfinite(r[a : b + 1])
+        if not ok.any():
+            return float(noise * math.sqrt(ratio))
+        return float(math.sqrt(ratio * np.sum(scale_m3[a : b + 1][ok] ** 2)))
 
     flags: list[Flag] = []
     datum_starts: list[int] = []
@@ -812,21 +1011,57 @@ def detect_flags(
         peak = float(cum[np.argmax(np.abs(cum))]) if cum.size else 0.0
         net = float(cum[-1]) if cum.size else 0.0
         stage_jump = bool(jump[a : b + 1].any())
-        first_jump = a + int(np.argmax(jump[a : b + 1])) if stage_jump else a
+        jumps = a + np.flatnonzero(jump[a : b + 1])
+        first_jump = int(jumps[0]) if stage_jump else a
+        last_jump = int(jumps[-1]) if stage_jump else b
         evidence: list[str] = []
+        implied = float("nan")
+        reversed_ = False
         if stage_jump:
             a_area = area[first_jump] if area is not None else float("nan")
             implied = peak * a_area if np.isfinite(a_area) else float("nan")
+            # The shape of the steps: a step away and a step back of like size is a bad reading
+            # (spike); a single step that stays is a shift of the gauge zero.
+            sizes = step[jumps]
+            up, down = sizes[sizes > 0], sizes[sizes < 0]
+            reversed_ = bool(
+                up.size
+                and down.size
+                and min(up.max(), -down.min()) >= 0.5 * max(up.max(), -down.min())
+            )
+            if reversed_:
+                peak = float(sizes[np.argmax(np.abs(sizes))])
+                net = float(np.sum(sizes))
+            else:
+                peak = net = float(np.sum(sizes))
+            a_area = area[first_jump] if area is not None else float("nan")
+            implied = peak * a_area if np.isfinite(a_area) else float("nan")
+            # does the balance see the storage jump the step implies? (running sums over the
+            # event and a day each side: the day-boundary rule spreads a step over two days)
+            lo_i, hi_i = max(a - 1, 0), min(b + 2, n)
+            seen = np.nan_to_num(r[lo_i:hi_i] - med_r[lo_i:hi_i])
+            if np.isfinite(r[a : b + 1]).any() and np.isfinite(implied):
+                c_seen = np.cumsum(seen)
+                if reversed_:
+                    stage_jump = float(np.max(np.abs(c_seen))) >= 0.25 * abs(implied)
+                else:
+                    stage_jump = abs(c_seen[-1] - implied) <= 0.5 * abs(implied)
+        if not stage_jump and not out_r[a : b + 1].any():
+            continue  # a stage step that the flows explain: nothing to flag
+        if stage_jump:
             evidence.append(
                 f"the stage stepped by {peak:+.3f} m on {iso(first_jump)} "
                 f"(robust z {z_h[first_jump]:+.1f} of the daily change)"
             )
             if np.isfinite(implied):
-                evidence.append(f"a storage change of {implied:+,.0f} m³ in the balance")
+                evidence.append(
+                    f"a storage change of {implied:+,.0f} m³ in the balance, which the "
+                    "residual mirrors"
+                )
             flow_note = _flow_note(inflow, rain, first_jump, options.outlier_window, iso)
             if flow_note:
                 evidence.append(flow_note)
-        if stage_jump and abs(net) >= 0.5 * abs(peak):
+        if stage_jump and not reversed_:
             # datum shift: the step stays
             kind: FlagKind = "datum_shift"
             volume = float(np.nansum(anomaly)) if np.isfinite(anomaly).any() else implied
@@ -850,7 +1085,7 @@ def detect_flags(
                 Flag(
                     kind=kind,
                     start=iso(first_jump),
-                    end=iso(first_jump if b == first_jump else b),
+                    end=iso(first_jump),
                     series="stage",
                     volume_m3=volume,
                     depth_mm=depth_mm(volume, a, b),
@@ -872,8 +1107,8 @@ def detect_flags(
             datum_starts.append(first_jump)
         else:
             if stage_jump:
-                # the bad reading appears in the residual as minus the storage jump it implies
-                volume = float(-peak * area[first_jump]) if area is not None else float("nan")
+                # the bad reading appears in the residual as the storage jump it implies
+                volume = float(peak * area[first_jump]) if area is not None else float("nan")
                 if not np.isfinite(volume):
                     volume = float(np.nansum(anomaly))
                 cause = "bad stage reading"
@@ -887,6 +1122,13 @@ def detect_flags(
                 )
                 magnitude: float | None = float(peak)
             else:
+                lo_i, hi_i = max(a - 1, 0), min(b + 2, n)
+                around = r[lo_i:hi_i] - med_r[lo_i:hi_i]
+                biggest = float(np.nanmax(np.abs(around))) if np.isfinite(around).any() else 0.0
+                if abs(float(np.nansum(around))) < 0.5 * biggest:
+                    # a gain at once undone by a loss (or the reverse): water moved between
+                    # days by the day-boundary timing, not a volume; nothing to flag
+                    continue
                 volume = float(np.nansum(anomaly))
                 series = "residual"
                 magnitude = None
@@ -905,16 +1147,21 @@ def detect_flags(
                         + " on a day with no stage step: check the inflow, withdrawal and release "
                         "readings of that day (a spike or a missing decimal)."
                     )
-                zmax = float(np.nanmax(np.abs(z_r[a : b + 1])))
+                zmax = float(np.nanmax(np.abs(z_w[a : b + 1])))
                 evidence.append(f"residual robust z up to {zmax:.1f} with no stage step")
             if not np.isfinite(volume):
                 volume = 0.0
             sig = abs(volume) / sigma_of(a, b, 1.0)
+            if series == "stage":
+                # the bad readings lie between the step away and the step back
+                a_flag, b_flag = first_jump, max(first_jump, last_jump - 1)
+            else:
+                a_flag, b_flag = a, b
             flags.append(
                 Flag(
                     kind="spike",
-                    start=iso(a),
-                    end=iso(b),
+                    start=iso(a_flag),
+                    end=iso(b_flag),
                     series=series,
                     volume_m3=volume,
                     depth_mm=depth_mm(volume, a, b),
@@ -928,36 +1175,112 @@ def detect_flags(
                 )
             )
 
-    # ---- step 2: change points -------------------------------------------------------------
+    # ---- step 2: change points on the standardised residual ---------------------------------
     clean = r.copy()
-    clean[event_mask] = np.nan
     for a, b in events:
         clean[a : b + 1] = np.nan
+    baseline_t, baseline_note = usual_level(clean, stage, scale_m3)
+    dev = clean - baseline_t  # m³/d
+    dev_w = dev / scale_m3  # (-)
     cps = change_points(
-        clean,
+        dev_w,
         penalty=options.penalty,
         min_size=options.min_run_days,
         method=options.change_method,
     )
     ratio = cps.ratio
-    if cps.means:
-        lengths = np.array([b - a + 1 for a, b in cps.segments], dtype=float)
-        baseline = _weighted_median(np.array(cps.means), lengths)
-    else:
-        baseline = float(np.nanmedian(clean)) if np.isfinite(clean).any() else 0.0
-    dev = clean - baseline
+    with _quiet_nan_warnings():
+        means_r = np.array([np.nanmean(clean[a : b + 1]) for a, b in cps.segments])
+    baseline = float(np.nanmedian(baseline_t)) if np.isfinite(baseline_t).any() else 0.0
     covered = np.zeros(n, dtype=bool)
-    for seg_i, ((a, b), mean) in enumerate(zip(cps.segments, cps.means)):
-        days_valid = int(np.isfinite(clean[a : b + 1]).sum())
-        if days_valid < options.min_run_days:
+
+    def strength(a: int, b: int) -> tuple[int, float]:
+        """Days and z-score of a departure; 0 when it is too small to matter."""
+        valid = int(np.isfinite(dev_w[a : b + 1]).sum())
+        if valid == 0:
+            return 0, 0.0
+        total_w = float(np.nansum(dev_w[a : b + 1]))
+        z = abs(total_w) / math.sqrt(ratio * valid)
+        # the same test in m³ (unweighted), and the effect size in noise standard deviations
+        ok = np.isfinite(dev[a : b + 1])
+        z_m3 = abs(float(np.nansum(dev[a : b + 1]))) / math.sqrt(
+            ratio * float(np.sum(scale_m3[a : b + 1][ok] ** 2))
+        )
+        if abs(total_w) / valid < options.min_run_effect:
+            return valid, 0.0
+        return valid, min(z, z_m3)
+
+    aftermath_sign: float | None = None
+    aftermath_of = -1
+    for seg_i, ((a, b), mean) in enumerate(zip(cps.segments, means_r)):
+        days_valid, z_seg = strength(a, b)
+        if days_valid < options.min_run_days or z_seg < options.run_threshold:
             continue
         volume = float(np.nansum(dev[a : b + 1]))
-        sd = noise * math.sqrt(ratio * days_valid)
-        z_seg = abs(volume) / sd
-        if z_seg < options.run_threshold:
-            continue
-        # aftermath of a datum shift?
+        # a smaller step of the gauge zero, seen mainly by its effect on the outflow?
+        j = None
+        seg_sign = float(np.sign(mean - _mean(baseline_t, a, b)))
+        in_chain = aftermath_sign is not None and seg_sign == aftermath_sign
+        for cand in (
+            _stage_steps_near(a, z_h, step, options) if z_h is not None and not in_chain else []
+        ):
+            # the residual must mirror the storage jump of the step (no matching flow)
+            seen = float(np.nansum(dev0[max(cand - 1, 0) : cand + 2]))
+            jump_m3 = float(step[cand] * area[cand]) if area is not None else float("nan")
+            if abs(seen - jump_m3) <= 0.5 * abs(jump_m3):
+                j = cand
+                break
+        if j is not None and not any(abs(j - d) <= options.spike_days + 1 for d in datum_starts):
+            net = float(step[j])
+            corr = Correction(
+                series="stage",
+                kind="offset",
+                start=iso(j),
+                end=None,
+                value=-net,
+                reason=f"gauge datum shift of {net:+.3f} m flagged by lakebalance",
+            )
+            vol_j = float(net * area[j]) if area is not None else float("nan")
+            flags.append(
+                Flag(
+                    kind="datum_shift",
+                    start=iso(j),
+                    end=iso(j),
+                    series="stage",
+                    volume_m3=vol_j,
+                    depth_mm=net * 1000.0,
+                    rate_m3_per_day=vol_j,
+                    significance=abs(float(z_h[j])),
+                    significant=abs(float(z_h[j])) > _Z95,
+                    cause="gauge datum shift",
+                    hint=(
+                        f"The stage stepped by {net:+.3f} m with no matching flow and the "
+                        "residual changed level from that day: check the gauge zero, staff plate "
+                        "or logger and, if confirmed, accept the offset."
+                    ),
+                    evidence=(
+                        f"the stage stepped by {net:+.3f} m on {iso(j)} against the change of "
+                        f"the days around it (robust z {float(z_h[j]):+.1f})",
+                    ),
+                    magnitude_m=net,
+                    correction=corr,
+                    accepted=any(
+                        c.series == "stage" and c.start == corr.start for c in corrections
+                    ),
+                )
+            )
+            datum_starts.append(j)
+        # aftermath of a datum shift: the first departure after it, and later ones of its sign
         after = [d for d in datum_starts if abs(a - d) <= options.spike_days + 1]
+        if (
+            not after
+            and aftermath_sign is not None
+            and np.sign(mean - _mean(baseline_t, a, b)) == aftermath_sign
+        ):
+            after = [aftermath_of]
+        if after and aftermath_sign is None:
+            aftermath_sign = float(np.sign(mean - _mean(baseline_t, a, b)))
+            aftermath_of = after[0]
         if after:
             k = next(
                 i
@@ -966,10 +1289,10 @@ def detect_flags(
             )
             f = flags[k]
             extra = (
-                f"then the residual changed by {mean - baseline:+,.0f} m³/d from {iso(a)} to "
+                f"then the residual changed by {mean - _mean(baseline_t, a, b):+,.0f} m³/d from {iso(a)} to "
                 f"{iso(b)} ({days_valid} d)"
                 + (
-                    " as the outflow is computed from the shifted stage"
+                    ", as the outflow is computed from the shifted stage"
                     if outflow is not None
                     else ""
                 )
@@ -977,17 +1300,16 @@ def detect_flags(
             flags[k] = _replace(f, evidence=(*f.evidence, extra))
             covered[a : b + 1] = True
             continue
-        bounded = seg_i > 0 and seg_i < len(cps.segments) - 1
-        kind = "run" if bounded else "level_shift"
+        bounded = 0 < seg_i < len(cps.segments) - 1
         flags.append(
             _segment_flag(
-                kind,
+                "run" if bounded else "level_shift",
                 a,
                 b,
                 volume,
                 days_valid,
-                baseline,
-                mean,
+                _mean(baseline_t, a, b),
+                float(mean),
                 iso,
                 depth_mm,
                 sigma_of,
@@ -1003,21 +1325,17 @@ def detect_flags(
         covered[a : b + 1] = True
 
     # ---- step 3: CUSUM runs ----------------------------------------------------------------
-    scale = noise * math.sqrt(ratio)
-    z_dev = dev / scale
     for a, b, _sign in cusum_runs(
-        z_dev, slack=options.cusum_slack, threshold=options.cusum_threshold
+        dev_w / math.sqrt(ratio), slack=options.cusum_slack, threshold=options.cusum_threshold
     ):
         if covered[a : b + 1].any() or any(
             abs(a - d) <= options.spike_days + 1 for d in datum_starts
         ):
             continue
-        days_valid = int(np.isfinite(clean[a : b + 1]).sum())
-        if days_valid < options.min_run_days:
+        days_valid, z_run = strength(a, b)
+        if days_valid < options.min_run_days or z_run < options.run_threshold:
             continue
         volume = float(np.nansum(dev[a : b + 1]))
-        if abs(volume) / (noise * math.sqrt(ratio * days_valid)) < options.run_threshold:
-            continue
         with _quiet_nan_warnings():
             mean = float(np.nanmean(clean[a : b + 1]))
         flags.append(
@@ -1027,7 +1345,7 @@ def detect_flags(
                 b,
                 volume,
                 days_valid,
-                baseline,
+                _mean(baseline_t, a, b),
                 mean,
                 iso,
                 depth_mm,
@@ -1093,8 +1411,14 @@ def detect_flags(
         change_points=tuple(iso(i) for i in cps.starts),
         corrections=tuple(corrections),
         band_source=band_source,
+        usual_level=baseline_note,
         options=options,
     )
+
+
+def _mean(x: np.ndarray, a: int, b: int) -> float:
+    with _quiet_nan_warnings():
+        return float(np.nanmean(x[a : b + 1]))
 
 
 def _replace(f: Flag, **changes) -> Flag:
