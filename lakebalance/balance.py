@@ -380,6 +380,17 @@ def _boundaries(
     return b, from_given
 
 
+def _at(fn: StageFn, stage_m: Array) -> Array:
+    """``fn`` evaluated where the stage is known (NaN elsewhere), so that a missing day never
+    reaches a relation whose policy raises outside its range."""
+    h = np.asarray(stage_m, dtype=float)
+    out = np.full(h.shape, np.nan)
+    ok = np.isfinite(h)
+    if ok.any():
+        out[ok] = np.asarray(fn(h[ok]), dtype=float)
+    return out
+
+
 def _series(values: pd.Series | None, index: pd.DatetimeIndex, what: str) -> Array | None:
     if values is None:
         return None
@@ -632,15 +643,12 @@ def close_daily(
     tau, w = _gauss_legendre(options.nodes)
     path = day_path(hs, he, stage, tau)
     ok_stage = np.isfinite(path).all(axis=1)
-    safe = np.where(np.isfinite(path), path, np.nanmean(stage) if np.isfinite(stage).any() else 0)
-    area_nodes = np.asarray(area_fn(safe), dtype=float)
+    area_nodes = _at(area_fn, path)
     area = np.where(ok_stage, area_nodes @ w, np.nan)
-    vs = np.where(np.isfinite(hs), np.asarray(volume_fn(np.nan_to_num(hs)), float), np.nan)
-    ve = np.where(np.isfinite(he), np.asarray(volume_fn(np.nan_to_num(he)), float), np.nan)
-    vmean = np.where(np.isfinite(stage), np.asarray(volume_fn(np.nan_to_num(stage)), float), np.nan)
+    vs, ve, vmean = _at(volume_fn, hs), _at(volume_fn, he), _at(volume_fn, stage)
     dv = ve - vs
     if outflow_fn is not None:
-        q_nodes = np.asarray(outflow_fn(safe), dtype=float)
+        q_nodes = _at(outflow_fn, path)
         outflow = np.where(ok_stage, (q_nodes @ w) * SECONDS_PER_DAY, np.nan)
     else:
         outflow = np.zeros(n)
@@ -853,12 +861,11 @@ def add_uncertainty(
 
     # ---- stage resolution -----------------------------------------------------------------
     res = errors.stage_resolution_m
-    safe = np.where(np.isfinite(path), path, 0.0)
-    a_s = np.asarray(area_fn(np.nan_to_num(hs)), dtype=float)
-    a_e = np.asarray(area_fn(np.nan_to_num(he)), dtype=float)
+    a_s = np.nan_to_num(_at(area_fn, hs))
+    a_e = np.nan_to_num(_at(area_fn, he))
     if outflow_fn is not None:
         eps = 1e-4  # m, central-difference step for dQ/dh
-        dq = (np.asarray(outflow_fn(safe + eps)) - np.asarray(outflow_fn(safe - eps))) / (2 * eps)
+        dq = np.nan_to_num((_at(outflow_fn, path + eps) - _at(outflow_fn, path - eps)) / (2 * eps))
         g_s = (dq * (1 - tau)[None, :]) @ w * SECONDS_PER_DAY
         g_e = (dq * tau[None, :]) @ w * SECONDS_PER_DAY
     else:

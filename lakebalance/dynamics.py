@@ -184,7 +184,7 @@ class LakeModel:
         h = np.asarray(stage_m, dtype=float)
         slope = self.loss_derivative(h)
         area = np.asarray(self.area_fn(h), dtype=float)
-        with np.errstate(divide="ignore", invalid="ignore"):
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             return np.where(slope > 0, area / slope, np.inf)
 
     # -- equilibria ----------------------------------------------------------------------
