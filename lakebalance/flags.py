@@ -50,6 +50,7 @@ __all__ = [
     "change_points",
     "cusum",
     "cusum_runs",
+    "refine_run",
     "detect_flags",
 ]
 
@@ -563,6 +564,53 @@ def cusum_runs(
             if s[peak] > threshold:
                 runs.append((int(a), int(peak), sign))
     return sorted(runs)
+
+
+def refine_run(
+    departure: np.ndarray, first: int, last: int, *, slack: float = 0.5, reach: int = 14
+) -> tuple[int, int]:
+    """Refine the ends of a run found by the segmentation with one-sided CUSUMs.
+
+    Parameters
+    ----------
+    departure : ndarray
+        Standardised departure from the usual level (-); NaN adds nothing.
+    first, last : int
+        Positions of the run's first and last day from the segmentation.
+    slack : float
+        CUSUM reference value k (-).
+    reach : int
+        Days searched before ``first`` and after ``last``.
+
+    Returns
+    -------
+    (int, int)
+        Refined first and last positions.
+
+    Notes
+    -----
+    In the run's direction s = sign(Σ departure), the start is the day after the last zero of
+    the CUSUM S_t = max(0, S_{t−1} + s·x_t − k) run forward from ``first − reach`` to its peak
+    (the CUSUM change-time estimate, Page, 1954; Montgomery, 2009, §9.1.2); the end is found the
+    same way on the reversed series from ``last + reach``.
+    """
+    x = np.asarray(departure, dtype=float)
+    n = x.size
+    sign = 1.0 if np.nansum(x[first : last + 1]) >= 0 else -1.0
+
+    def start_of(seq: np.ndarray) -> int:
+        up, _ = cusum(sign * seq, slack)
+        peak = int(np.argmax(up))
+        zeros = np.flatnonzero(up[: peak + 1] == 0)
+        return int(zeros[-1]) + 1 if zeros.size else 0
+
+    lo = max(0, first - reach)
+    new_first = lo + start_of(x[lo : last + 1])
+    hi = min(n, last + reach + 1)
+    new_last = hi - 1 - start_of(x[new_first:hi][::-1])
+    if new_last - new_first < 1:
+        return first, last
+    return new_first, new_last
 
 
 # --------------------------------------------------------------------------------------------
@@ -1301,6 +1349,12 @@ def detect_flags(
             covered[a : b + 1] = True
             continue
         bounded = 0 < seg_i < len(cps.segments) - 1
+        if bounded:
+            a, b = refine_run(dev_w, a, b, slack=options.cusum_slack, reach=options.min_run_days)
+            volume = float(np.nansum(dev[a : b + 1]))
+            days_valid = int(np.isfinite(dev[a : b + 1]).sum())
+            with _quiet_nan_warnings():
+                mean = float(np.nanmean(clean[a : b + 1]))
         flags.append(
             _segment_flag(
                 "run" if bounded else "level_shift",
