@@ -527,12 +527,15 @@ class Dynamics:
             "",
             "response time tau(h) = A(h) / (dLoss/dh):",
             self.response.to_string(float_format=lambda v: f"{v:.4g}"),
-            "",
-            "residence time (mean volume / mean outflow; / mean total losses), days:",
-            self.residence[["residence_outflow_days", "residence_losses_days"]].to_string(
-                float_format=lambda v: f"{v:.4g}"
-            ),
         ]
+        if "residence_outflow_days" in self.residence:
+            lines += [
+                "",
+                "residence time (mean volume / mean outflow; / mean total losses), days:",
+                self.residence[["residence_outflow_days", "residence_losses_days"]].to_string(
+                    float_format=lambda v: f"{v:.4g}"
+                ),
+            ]
         if self.what_if:
             lines += ["", "what-if (from today's stage):"]
             for w in self.what_if:
