@@ -50,6 +50,15 @@ _EXPORTS = {
     "LakeModel": "lakebalance.dynamics",
     "Dynamics": "lakebalance.dynamics",
     "residence_times": "lakebalance.dynamics",
+    "find_flags": "lakebalance.api",
+    "estimate_seepage": "lakebalance.api",
+    "Flag": "lakebalance.flags",
+    "Flags": "lakebalance.flags",
+    "detect_flags": "lakebalance.flags",
+    "change_points": "lakebalance.flags",
+    "SeepageFit": "lakebalance.seepage",
+    "fit_seepage": "lakebalance.seepage",
+    "select_days": "lakebalance.seepage",
 }
 
 __all__ = ["__version__", *_EXPORTS]

@@ -600,3 +600,146 @@ def lake_dynamics(
         changes=tuple(changes),
         notes=tuple(notes),
     )
+
+
+# ---- residual flags and seepage ---------------------------------------------------------------
+if TYPE_CHECKING:  # pragma: no cover
+    from .flags import Flags
+    from .seepage import SeepageFit
+
+__all__ += ["find_flags", "estimate_seepage"]
+
+
+def _band_sigma_m3(daily: _pd.DataFrame) -> _np.ndarray | None:
+    """1-σ daily residual uncertainty (m³/d) from the balance's 5–95 % band, when present."""
+    if "residual_p05_m3" not in daily.columns or "residual_p95_m3" not in daily.columns:
+        return None
+    from scipy.stats import norm
+
+    width = (daily["residual_p95_m3"] - daily["residual_p05_m3"]).to_numpy(dtype=float)
+    return width / (2.0 * float(norm.ppf(0.95)))
+
+
+def _flatline_days(records: Records, index: _pd.DatetimeIndex) -> _np.ndarray:
+    """Days of a stage flat-line found by the checks on the raw series (already reported)."""
+    import numpy as np
+
+    out = np.zeros(len(index), dtype=bool)
+    for f in records.findings:
+        if f.series == "stage" and f.kind == "flatline" and f.first and f.last:
+            out |= (index >= _pd_timestamp(f.first)) & (index <= _pd_timestamp(f.last))
+    return out
+
+
+def _pd_timestamp(text: str):
+    import pandas as pd
+
+    return pd.Timestamp(text[:10])
+
+
+def find_flags(
+    site: Site,
+    *,
+    balance: Balance | None = None,
+    records: Records | None = None,
+) -> Flags:
+    """Dated, sized and explained flags on the residual of the daily balance of ``site``.
+
+    Parameters
+    ----------
+    site : Site
+        The validated site file (``[flags]`` holds the thresholds).
+    balance : Balance, optional
+        An already closed balance (default: :func:`close_balance`).
+    records : Records, optional
+        Already loaded records (default: loaded from the site).
+
+    Returns
+    -------
+    Flags
+        See :func:`lakebalance.flags.detect_flags` and ``docs/flags-and-seepage.md``. The data
+        are never altered; corrections the site file accepts (``[[correction]]``) are listed.
+    """
+    from .flags import detect_flags
+
+    if records is None:
+        records = load_records(site)
+    if balance is None:
+        balance = close_balance(site, records=records)
+    daily = balance.daily
+    return detect_flags(
+        daily,
+        site.flags,
+        sigma_m3=_band_sigma_m3(daily),
+        corrections=tuple(site.correction),
+        exclude=_flatline_days(records, daily.index),
+    )
+
+
+def estimate_seepage(
+    site: Site,
+    *,
+    balance: Balance | None = None,
+    flags: Flags | None = None,
+    records: Records | None = None,
+) -> SeepageFit:
+    """Net groundwater exchange of ``site`` from the residual of its daily balance.
+
+    Parameters
+    ----------
+    site : Site
+        The validated site file (``[seepage]`` selects the law and the days; ``[levels]`` names
+        the stages at which the rate is reported).
+    balance : Balance, optional
+        An already closed balance (default: :func:`close_balance`).
+    flags : Flags, optional
+        Flags of that balance (default: :func:`find_flags`), left out with ``exclude_flags``.
+    records : Records, optional
+        Already loaded records.
+
+    Returns
+    -------
+    SeepageFit
+        ``k`` (m²/s), ``h0`` (m), ``rate_m3s(stage_m)`` (positive = water leaving the lake),
+        rates by stage in m³/d, L/s and mm/d with 95 % intervals.
+
+    Raises
+    ------
+    FitError
+        Too few days are left after the selection.
+    """
+    from .seepage import fit_seepage, select_days
+
+    if records is None:
+        records = load_records(site)
+    if balance is None:
+        balance = close_balance(site, records=records)
+    options = site.seepage
+    if flags is None and options.exclude_flags:
+        flags = find_flags(site, balance=balance, records=records)
+    daily = balance.daily
+    flagged = None
+    if flags is not None:
+        flagged = flags.mask(daily.index) | _pd_series(
+            _flatline_days(records, daily.index), daily.index
+        )
+    spill = site.levels.get("spill") if site.outlet is None else None
+    mask, counts = select_days(daily, options, flagged=flagged, spill_stage_m=spill)
+    used = daily[mask.to_numpy()]
+    sigma = _band_sigma_m3(daily)
+    return fit_seepage(
+        used["stage_m"],
+        used["residual_m3"],
+        model=options.model,
+        area_stage_m=daily["stage_m"].to_numpy(),
+        area_m2=daily["area_m2"].to_numpy(),
+        levels=dict(site.levels),
+        other_sigma_m3=None if sigma is None else sigma[mask.to_numpy()],
+        selection=counts,
+    )
+
+
+def _pd_series(values, index):
+    import pandas as pd
+
+    return pd.Series(values, index=index)

@@ -1078,7 +1078,7 @@ def detect_flags(
                 and min(up.max(), -down.min()) >= 0.5 * max(up.max(), -down.min())
             )
             if reversed_:
-                peak = float(sizes[np.argmax(np.abs(sizes))])
+                peak = float(step[first_jump])  # the step away from the true stage
                 net = float(np.sum(sizes))
             else:
                 peak = net = float(np.sum(sizes))
@@ -1106,7 +1106,9 @@ def detect_flags(
                     f"a storage change of {implied:+,.0f} m³ in the balance, which the "
                     "residual mirrors"
                 )
-            flow_note = _flow_note(inflow, rain, first_jump, options.outlier_window, iso)
+            flow_note = _flow_note(
+                inflow, rain, first_jump, options.outlier_window, iso, jump_m3=implied
+            )
             if flow_note:
                 evidence.append(flow_note)
         if stage_jump and not reversed_:
@@ -1496,23 +1498,23 @@ def _is_high(x: np.ndarray | None, a: int, b: int, window: int) -> bool:
     return bool(np.isfinite(seg).any() and np.nanmax(seg) > 3.0)
 
 
-def _flow_note(inflow, rain, i: int, window: int, iso) -> str:
+def _flow_note(inflow, rain, i: int, window: int, iso, jump_m3: float = float("nan")) -> str:
+    """Inflow and rain of day ``i`` against their usual values and the storage jump (m³)."""
+    extra = 0.0
     parts = []
     for name, x in (("inflow", inflow), ("rain", rain)):
         if x is None or not np.isfinite(x[i]):
             continue
-        z, med, _ = rolling_robust_z(x, window)
-        if np.isfinite(z[i]) and abs(z[i]) > 3.0:
-            parts.append(f"{name} that day was unusual (robust z {z[i]:+.1f})")
-        else:
-            parts.append(f"{name} that day was ordinary ({x[i]:,.0f} m³, usual {med[i]:,.0f} m³)")
+        _, med, _ = rolling_robust_z(x, window)
+        usual = float(med[i]) if np.isfinite(med[i]) else 0.0
+        extra += float(x[i]) - usual
+        parts.append(f"{name} {x[i]:,.0f} m³ (usual {usual:,.0f} m³)")
     if not parts:
         return ""
-    return (
-        "no matching flow: " + ", ".join(parts)
-        if all("ordinary" in p for p in parts)
-        else ("; ".join(parts))
-    )
+    text = " and ".join(parts) + " that day"
+    if np.isfinite(jump_m3) and abs(extra) < 0.5 * abs(jump_m3):
+        return f"no matching flow: {text}, against a storage jump of {jump_m3:+,.0f} m³"
+    return text
 
 
 def _segment_flag(
