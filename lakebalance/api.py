@@ -485,7 +485,7 @@ def lake_dynamics(
     evaporation_scale : float, optional
         What-if: a factor (-) on the mean evaporation depth.
     balance : Balance, optional
-        An already closed balance (closed without bands when not given).
+        An already closed balance (default: :func:`close_balance`).
     use_seepage : bool
         Include the net seepage law estimated from the residual, when it can be estimated.
 
@@ -508,15 +508,15 @@ def lake_dynamics(
 
     storage = load_storage(site)
     rating = fit_rating(site) if site.outlet is not None else None
+    records = load_records(site)
     if balance is None:
-        balance = close_balance(site, draws=0, storage=storage, rating=rating)
+        balance = close_balance(site, records=records, storage=storage, rating=rating)
     d = balance.daily
     notes: list[str] = []
     seepage = None
-    fn = globals().get("estimate_seepage")
-    if use_seepage and fn is not None:
+    if use_seepage:
         try:
-            seepage = fn(site)
+            seepage = estimate_seepage(site, balance=balance, records=records)
         except LakebalanceError as exc:
             notes.append(f"seepage left out: {exc.message}")
     ok = d["area_m2"].notna()
