@@ -33,7 +33,7 @@ __all__ = [
     "order_and_duplicates",
     "out_of_bounds",
     "rolling_median",
-    "robust_z",
+    "spike_scores",
     "spikes",
     "returns_to_neighbours",
     "step_scale",
@@ -200,64 +200,75 @@ def out_of_bounds(role: str, values: np.ndarray) -> tuple[np.ndarray, np.ndarray
     return negative, out_range
 
 
-def rolling_median(values: np.ndarray, window: int) -> np.ndarray:
-    """Centred rolling median of ``values`` over ``window`` readings (NaN skipped).
-
-    At least ``window // 2 + 1`` values are needed in a window, else NaN. Series without NaN are
-    done with a sliding-window view in chunks (fast for millions of readings); others by pandas.
-    """
-    import pandas as pd
-
-    x = np.asarray(values, dtype=float)
-    w = max(int(window), 3)
-    minp = w // 2 + 1
-    n = x.size
-    if w % 2 == 0 or n < 4 * w or np.isnan(x).any():
-        return pd.Series(x).rolling(w, center=True, min_periods=minp).median().to_numpy()
+def _windows(x: np.ndarray, window: int):
+    """Centred windows of ``window`` values over ``x`` (NaN-padded at the ends), in chunks."""
     from numpy.lib.stride_tricks import sliding_window_view
 
-    h = w // 2
-    out = np.empty(n)
-    view = sliding_window_view(x, w)  # row i is centred on reading i + h
-    chunk = 1 << 18
-    for a in range(0, view.shape[0], chunk):  # loop over chunks of readings, not readings
-        out[h + a : h + min(a + chunk, view.shape[0])] = np.median(view[a : a + chunk], axis=1)
-    head = pd.Series(x[: 2 * w]).rolling(w, center=True, min_periods=minp).median().to_numpy()
-    tail = pd.Series(x[-2 * w :]).rolling(w, center=True, min_periods=minp).median().to_numpy()
-    out[:h] = head[:h]
-    out[n - h :] = tail[-h:]
+    h = window // 2
+    padded = np.concatenate((np.full(h, np.nan), x, np.full(h, np.nan)))
+    view = sliding_window_view(padded, window)  # row i is centred on x[i]
+    chunk = 1 << 17
+    for a in range(0, view.shape[0], chunk):  # a loop over chunks of readings, not readings
+        yield a, view[a : a + chunk]
+
+
+def _centred_window(window: int) -> int:
+    w = max(int(window), 3)
+    return w + 1 if w % 2 == 0 else w  # an even window is widened by one to centre it
+
+
+def rolling_median(values: np.ndarray, window: int) -> np.ndarray:
+    """Centred rolling median over ``window`` readings (NaN skipped; see :func:`hampel_parts`)."""
+    import warnings
+
+    x = np.asarray(values, dtype=float)
+    w = _centred_window(window)
+    out = np.full(x.size, np.nan)
+    for a, v in _windows(x, w):
+        nan = np.isnan(v)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            m = np.nanmedian(v, axis=1) if nan.any() else np.median(v, axis=1)
+        m[(~nan).sum(axis=1) < w // 2 + 1] = np.nan
+        out[a : a + len(v)] = m
     return out
 
 
-def _deviation_and_mad(x: np.ndarray, window: int) -> tuple[np.ndarray, np.ndarray]:
-    med = rolling_median(x, window)
-    dev = np.abs(x - med)
-    return dev, rolling_median(dev, window)
+def spike_scores(
+    values: np.ndarray, window: int = 7, resolution: float | None = None
+) -> np.ndarray:
+    """Robust z-score of each reading against its centred rolling median.
 
-
-def robust_z(values: np.ndarray, window: int, floor: float = 0.0) -> np.ndarray:
-    """Robust z-score of each value against its centred rolling median.
-
-    ``z = |x - median_w(x)| / (1.4826 · max(median_w(|x - median_w(x)|), floor))`` with centred
-    windows of ``window`` values (NaN skipped; at least half a window needed).
+    ``z_i = min(|x_i - med_i|, |x_i - (x_{i-1} + x_{i+1}) / 2|) / s`` with ``med_i`` the median
+    of the centred window of ``window`` readings and ``s = 1.4826 · MAD(x_{j+1} - x_j)`` the
+    robust scale of the reading-to-reading changes of the whole series (:func:`step_scale`),
+    floored at half the median non-zero change and at the gauge ``resolution``. A reading must stand out both from its window's median
+    and from its two neighbours: a rounded flood peak is far from the window median but close to
+    its neighbours.
 
     Notes
     -----
-    The Hampel identifier (Hampel, 1974; Pearson, 2002, "Outliers in process modeling and
-    identification", IEEE Trans. Control Syst. Technol. 10(1), eq. 6). ``floor`` keeps a flat
-    stretch (zero MAD) from turning a one-resolution-step change into an infinite score.
+    A rolling-median (Hampel) identifier (Hampel, 1974; Pearson, 2002, IEEE Trans. Control Syst.
+    Technol. 10(1), eq. 6) whose scale is the MAD of the changes rather than of the levels inside
+    the window: a lake that rises for days has a large spread of levels in a window but its
+    day-to-day changes stay small, and an isolated wrong reading stands out against those changes
+    (common practice, no source). MAD-to-sigma factor 1/Φ⁻¹(3/4) (Rousseeuw and Croux, 1993).
     """
     x = np.asarray(values, dtype=float)
-    dev, mad = _deviation_and_mad(x, window)
-    return _z(dev, mad, floor)
-
-
-def _z(dev: np.ndarray, mad: np.ndarray, floor: float) -> np.ndarray:
-    scale = MAD_TO_SIGMA * np.maximum(mad, floor)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        z = dev / scale
-    z[dev == 0] = 0.0
-    return z
+    d = np.abs(np.diff(x))
+    d = d[np.isfinite(d) & (d > 0)]
+    typical = float(np.median(d)) if d.size else 0.0
+    # quantised or steadily trending series have a MAD of changes near zero: half the typical
+    # non-zero change is the least scale (common practice, no source)
+    scale = max(step_scale(x), 0.5 * typical, float(resolution or 0.0))
+    if scale == 0.0:
+        return np.zeros(x.shape)
+    prev = np.concatenate(([np.nan], x[:-1]))
+    nxt = np.concatenate((x[1:], [np.nan]))
+    neighbours = 0.5 * (np.where(np.isnan(prev), nxt, prev) + np.where(np.isnan(nxt), prev, nxt))
+    with np.errstate(invalid="ignore"):
+        dev = np.fmin(np.abs(x - rolling_median(x, window)), np.abs(x - neighbours))
+        return np.nan_to_num(dev / scale, nan=0.0)
 
 
 def spikes(
@@ -267,7 +278,7 @@ def spikes(
     resolution: float | None = None,
     returns: bool = True,
 ) -> np.ndarray:
-    """Mask of spikes: readings whose robust z-score (:func:`robust_z`) exceeds ``threshold``
+    """Mask of spikes: readings whose robust z-score (:func:`spike_scores`) exceeds ``threshold``
     and (with ``returns``) that come back at once (:func:`returns_to_neighbours`).
 
     Parameters
@@ -275,42 +286,23 @@ def spikes(
     values : numpy.ndarray
         Readings in time order (NaN allowed), any unit.
     window : int
-        Readings in the centred rolling window.
+        Readings in the centred rolling-median window (an even number is widened by one).
     threshold : float
         Robust z-score above which a reading is a spike (-).
     resolution : float, optional
-        Gauge resolution in the unit of ``values``. The local MAD is floored at the larger of
-        the resolution and the series' typical (median non-zero) rolling MAD, so that flat or
-        quantised stretches do not turn one-step changes into spikes (common practice, no
-        source).
+        Gauge resolution in the unit of ``values``: the z-score's scale is never below it, so
+        that one resolution step on a flat stretch is not a spike.
     returns : bool
-        Also require the reading to come back at once (:func:`returns_to_neighbours`) and to
-        stand out from its neighbours by more than ``threshold`` times the series' typical
-        reading-to-reading change (:func:`step_scale`), so that fast but real rises and peaks of
-        a lake (a flood) are not called spikes.
+        Also require the reading to come back at once: a fast but real rise of a lake (a flood)
+        moves the neighbours apart and is not a spike.
     """
     x = np.asarray(values, dtype=float)
     if np.count_nonzero(~np.isnan(x)) < max(int(window), 3):
         return np.zeros(x.shape, dtype=bool)
-    dev, mad = _deviation_and_mad(x, window)
-    positive = mad[mad > 0]
-    floor = float(np.median(positive)) if positive.size else 0.0
-    if resolution:
-        floor = max(floor, float(resolution))
-    if floor == 0.0:
-        finite = x[np.isfinite(x)]
-        floor = 1e-9 * max(float(np.max(np.abs(finite))) if finite.size else 1.0, 1.0)
-    with np.errstate(invalid="ignore"):
-        hampel = np.nan_to_num(_z(dev, mad, floor), nan=0.0) > threshold
-    if not returns or not hampel.any():
-        return hampel
-    prev = np.concatenate(([np.nan], x[:-1]))
-    nxt = np.concatenate((x[1:], [np.nan]))
-    x_dev = np.abs(
-        x - 0.5 * (np.where(np.isnan(prev), nxt, prev) + np.where(np.isnan(nxt), prev, nxt))
-    )
-    big = np.nan_to_num(x_dev, nan=np.inf) > threshold * max(step_scale(x), floor)
-    return hampel & returns_to_neighbours(x) & big
+    found = spike_scores(x, window, resolution) > threshold
+    if returns and found.any():
+        found &= returns_to_neighbours(x)
+    return found
 
 
 def returns_to_neighbours(values: np.ndarray, ratio: float = 2.0) -> np.ndarray:
