@@ -469,6 +469,7 @@ def lake_dynamics(
     evaporation_scale: float | None = None,
     balance: Balance | None = None,
     use_seepage: bool = True,
+    stages: dict[str, float] | None = None,
 ) -> Dynamics:
     """Residence, response and equilibrium analysis of ``site``, with optional what-ifs.
 
@@ -488,6 +489,9 @@ def lake_dynamics(
         An already closed balance (default: :func:`close_balance`).
     use_seepage : bool
         Include the net seepage law estimated from the residual, when it can be estimated.
+    stages : dict, optional
+        Named stages (m) for the response times, added to the levels and the record's 10th,
+        50th and 90th percentile stages.
 
     Returns
     -------
@@ -580,9 +584,10 @@ def lake_dynamics(
             (f"evaporation x {evaporation_scale:g}", {"evaporation_scale": evaporation_scale})
         )
     stage = d["stage_m"].dropna()
-    stages = dict(levels)
+    chosen = dict(levels)
     for q in (10, 50, 90):
-        stages[f"record p{q}"] = float(stage.quantile(q / 100))
+        chosen[f"record p{q}"] = float(stage.quantile(q / 100))
+    chosen.update(stages or {})
     seep_m3 = (
         pd.Series(seepage.rate_m3s(d["stage_m"].to_numpy()) * SECONDS_PER_DAY, index=d.index)
         if seepage is not None
@@ -595,7 +600,7 @@ def lake_dynamics(
         today=stage.index[-1].date().isoformat(),
         today_stage_m=float(stage.iloc[-1]),
         levels=levels,
-        stages=stages,
+        stages=chosen,
         residence=residence,
         changes=tuple(changes),
         notes=tuple(notes),

@@ -250,3 +250,28 @@ def test_balance_command_reports_a_missing_storage_section(write, tmp_path, caps
     )
     assert main(["balance", str(path)]) == 2
     assert "storage" in capsys.readouterr().err
+
+
+def test_sub_daily_stage_gives_the_day_boundaries(write, tmp_path):
+    """Stage logged every 15 min from Torricelli's law on a vertical-walled basin,
+    sqrt(h − e) = sqrt(h0 − e) − K t / (2A) (analytic): the midnight readings become the day
+    boundaries, so ΔV = A (h(t_e) − h(t_s)) exactly."""
+    area, K, e, h0 = 2.0e5, 1.0, 0.5, 3.0
+    times = pd.date_range("2023-01-01", "2023-01-11", freq="15min", inclusive="left")
+    t = (times - times[0]).total_seconds().to_numpy()
+    stage = e + (math.sqrt(h0 - e) - K * t / (2 * area)) ** 2
+    write("stage.csv", "date,value\n" + "".join(
+        f"{a},{b:.12f}\n" for a, b in zip(times.strftime("%Y-%m-%d %H:%M"), stage, strict=True)))  # fmt: skip
+    write("survey.csv", "stage,area\n0,200000\n10,200000\n")
+    path = write(
+        "site.toml",
+        '[site]\nname = "logged pond (invented)"\n[storage]\nfile = "survey.csv"\n'
+        '[series.stage]\nfile = "stage.csv"\nunits = "m"\n',
+    )
+    bal = close_balance(load_site(path), draws=0)
+    assert bal.notes[0].startswith("day-boundary stage: 10 of 11 from the sub-daily record")
+    d = bal.daily.iloc[:-1]
+    days = np.arange(len(d) + 1) * T
+    h_mid = e + (math.sqrt(h0 - e) - K * days / (2 * area)) ** 2
+    np.testing.assert_allclose(d["stage_start_m"], h_mid[:-1], atol=1e-9)
+    np.testing.assert_allclose(d["storage_change_m3"], area * np.diff(h_mid), rtol=1e-9)

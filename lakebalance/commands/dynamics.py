@@ -40,6 +40,14 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         help="what-if: a changed withdrawal demand, m3/s or with a unit",
     )
     parser.add_argument(
+        "--stage",
+        type=float,
+        action="append",
+        default=[],
+        metavar="H",
+        help="also give the response time at this stage, m (repeatable)",
+    )
+    parser.add_argument(
         "--evaporation-scale",
         type=float,
         default=None,
@@ -83,6 +91,7 @@ def run(args: argparse.Namespace) -> int:
             outlet=outlet or None,
             demand_m3s=_flow(args.demand, "--demand"),
             evaporation_scale=args.evaporation_scale,
+            stages={f"{h:g} m": h for h in args.stage} or None,
         )
     messages = list(dict.fromkeys(str(w.message) for w in caught))
     if args.json:
