@@ -6,7 +6,9 @@ import argparse
 
 from ._common import add_json, add_out, add_seed, add_site
 
-HELP = "close the daily water balance: monthly and water-year tables with 5-95% residual bands"
+HELP = (
+    "close the daily water balance: monthly and water-year tables with 5-95 percent residual bands"
+)
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
