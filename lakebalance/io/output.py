@@ -34,12 +34,19 @@ def atomic_path(path: str | Path) -> Iterator[Path]:
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
     os.close(fd)
     tmp_path = Path(tmp)
+    os.chmod(tmp_path, 0o666 & ~_umask())  # mkstemp makes 0600; outputs get the usual mode
     try:
         yield tmp_path
         os.replace(tmp_path, path)
     finally:
         if tmp_path.exists():
             tmp_path.unlink()
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
 
 
 def _write_with(path: str | Path, writer: Callable[[Path], Any]) -> Path:

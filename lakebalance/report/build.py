@@ -1,0 +1,1063 @@
+"""The annual report of one site: every step run once, then HTML, CSV/XLSX tables and a JSON summary.
+
+Every number shown in the HTML comes from the same rounded tables that are written to CSV, XLSX and
+``summary.json``, so that the three always agree. A step that cannot run for this site (no outlet
+gaugings, no weather for computed evaporation) is said in the report with its reason; the other
+steps go on.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+import warnings
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+import pandas as pd
+
+from ..errors import LakebalanceError
+
+if TYPE_CHECKING:  # pragma: no cover
+    from ..config import Site
+
+__all__ = ["Table", "Figure", "Section", "SiteRun", "ReportResult", "run_site", "make_report"]
+
+
+# --------------------------------------------------------------------------------------------
+# Building blocks
+# --------------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class Table:
+    """A table as shown: the first column labels the rows; numbers already rounded."""
+
+    id: str
+    title: str
+    frame: pd.DataFrame
+    note: str = ""
+    decimals: dict[str, int] = field(default_factory=dict)
+
+    def cell(self, column: str, value: Any) -> str:
+        """The text of one cell, as the HTML shows it."""
+        if value is None or (isinstance(value, float) and not math.isfinite(value)):
+            return "–"
+        if isinstance(value, bool | np.bool_):
+            return "yes" if value else "no"
+        if isinstance(value, float | np.floating):
+            d = self.decimals.get(column, 0)
+            return f"{float(value):.{d}f}"
+        if isinstance(value, pd.Timestamp):
+            return value.strftime("%Y-%m-%d")
+        return str(value)
+
+    def rows(self) -> list[list[str]]:
+        """All rows as text."""
+        cols = list(self.frame.columns)
+        return [[self.cell(c, v) for c, v in zip(cols, row, strict=True)] for row in self.frame.itertuples(index=False)]
+
+    def to_json(self) -> dict[str, Any]:
+        """Columns and rows with the same (rounded) values, numbers as numbers."""
+        rows = []
+        for row in self.frame.itertuples(index=False):
+            out = []
+            for v in row:
+                if isinstance(v, float | np.floating):
+                    out.append(None if not math.isfinite(float(v)) else float(v))
+                elif isinstance(v, np.integer):
+                    out.append(int(v))
+                elif isinstance(v, bool | np.bool_):
+                    out.append(bool(v))
+                elif isinstance(v, pd.Timestamp):
+                    out.append(v.strftime("%Y-%m-%d"))
+                else:
+                    out.append(v)
+            rows.append(out)
+        return {"title": self.title, "columns": list(self.frame.columns), "rows": rows}
+
+
+def table(id: str, title: str, frame: pd.DataFrame, decimals: dict[str, int] | int = 0,
+          note: str = "") -> Table:
+    """A :class:`Table` whose float columns are rounded to ``decimals`` (per column or one for all)."""
+    frame = frame.copy()
+    if isinstance(decimals, int):
+        decimals = {c: decimals for c in frame.columns}
+    for c in frame.columns:
+        if pd.api.types.is_float_dtype(frame[c]):
+            frame[c] = frame[c].round(decimals.get(c, 0))
+        elif pd.api.types.is_datetime64_any_dtype(frame[c]):
+            frame[c] = frame[c].dt.strftime("%Y-%m-%d")
+    return Table(id=id, title=title, frame=frame.reset_index(drop=True), note=note,
+                 decimals=dict(decimals))
+
+
+@dataclass(frozen=True)
+class Figure:
+    """A figure as PNG bytes, with caption and alternative text."""
+
+    id: str
+    caption: str
+    png: bytes
+    alt: str
+
+
+@dataclass(frozen=True)
+class Section:
+    """One section of the report."""
+
+    id: str
+    title: str
+    paragraphs: tuple[str, ...] = ()
+    tables: tuple[Table, ...] = ()
+    figures: tuple[Figure, ...] = ()
+    missing: tuple[str, ...] = ()
+
+
+def _png(fig: Any) -> bytes:
+    import io
+
+    import matplotlib.pyplot as plt
+
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=110, metadata={"Software": None})
+    plt.close(fig)
+    return buf.getvalue()
+
+
+def _fmt(x: float, decimals: int = 0) -> str:
+    return "–" if x is None or not math.isfinite(x) else f"{x:,.{decimals}f}"
+
+
+# --------------------------------------------------------------------------------------------
+# Running every step once
+# --------------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class SiteRun:
+    """Every result of one site, each None with a reason in ``unavailable`` when its step could not run."""
+
+    site: Site
+    seed: int
+    records: Any
+    storage: Any = None
+    rating: Any = None
+    evaporation: Any = None
+    balance: Any = None
+    flags: Any = None
+    seepage: Any = None
+    dynamics: Any = None
+    forecast: Any = None
+    unavailable: dict[str, str] = field(default_factory=dict)
+    warnings: tuple[str, ...] = ()
+
+
+def _step(name: str, fn: Any, unavailable: dict[str, str]) -> Any:
+    try:
+        return fn()
+    except LakebalanceError as exc:
+        unavailable[name] = exc.one_line().removeprefix("error: ")
+    except (KeyError, ValueError) as exc:  # an input this step needs is absent
+        unavailable[name] = f"{type(exc).__name__}: {exc}"
+    return None
+
+
+def run_site(
+    site: Site,
+    *,
+    seed: int | None = None,
+    draws: int | None = None,
+    members: int | None = None,
+    forecast_start: str | None = None,
+    progress: bool = False,
+) -> SiteRun:
+    """Run every step of the job on ``site`` once, passing each result on to the next.
+
+    Parameters
+    ----------
+    site : Site
+        The validated site file.
+    seed : int, optional
+        Seed of every random draw (default: ``[site] seed``).
+    draws : int, optional
+        Monte Carlo draws of the balance (default: ``[uncertainty] draws``).
+    members : int, optional
+        Ensemble members of the drawdown forecast (default: ``[drawdown] members``).
+    forecast_start : str, optional
+        ISO date the forecast starts from (default: the last day of the record).
+    progress : bool
+        Show progress bars on stderr.
+    """
+    from .. import api
+
+    seed = int(site.site.seed if seed is None else seed)
+    unavailable: dict[str, str] = {}
+    caught: list[str] = []
+    with warnings.catch_warnings(record=True) as seen:
+        warnings.simplefilter("always")
+        records = api.load_records(site, progress=progress)
+        storage = _step("storage", lambda: api.load_storage(site), unavailable)
+        rating = _step("rating", lambda: api.fit_rating(site), unavailable)
+        evaporation = _step(
+            "evaporation", lambda: api.lake_evaporation(site, records, storage), unavailable
+        )
+        balance = None
+        if storage is not None:
+            balance = _step(
+                "balance",
+                lambda: api.close_balance(
+                    site,
+                    records=records,
+                    storage=storage,
+                    rating=rating,
+                    evaporation_m=None if evaporation is None else evaporation.depth_m,
+                    draws=draws,
+                    rng=np.random.default_rng(seed),
+                ),
+                unavailable,
+            )
+        else:
+            unavailable["balance"] = "needs the storage relation"
+        flags = seepage = dynamics = forecast = None
+        if balance is not None:
+            flags = _step("flags", lambda: api.find_flags(site, balance=balance,
+                                                           records=records), unavailable)
+            seepage = _step(
+                "seepage",
+                lambda: api.estimate_seepage(site, balance=balance, flags=flags, records=records),
+                unavailable,
+            )
+        if balance is not None:
+            dynamics = _step(
+                "dynamics",
+                lambda: api.lake_dynamics(site, balance=balance),
+                unavailable,
+            )
+            forecast = _step(
+                "drawdown",
+                lambda: api.forecast_drawdown(
+                    site,
+                    start=forecast_start,
+                    members=members,
+                    rng=np.random.default_rng(seed + 1),
+                    records=records,
+                    storage=storage,
+                    rating=rating,
+                    seepage=seepage,
+                    evaporation=evaporation,
+                    progress=progress,
+                ),
+                unavailable,
+            )
+    for w in seen:
+        text = f"{w.category.__name__}: {w.message}"
+        if text not in caught:
+            caught.append(text)
+    return SiteRun(
+        site=site,
+        seed=seed,
+        records=records,
+        storage=storage,
+        rating=rating,
+        evaporation=evaporation,
+        balance=balance,
+        flags=flags,
+        seepage=seepage,
+        dynamics=dynamics,
+        forecast=forecast,
+        unavailable=unavailable,
+        warnings=tuple(caught),
+    )
+
+
+# --------------------------------------------------------------------------------------------
+# Choosing the year
+# --------------------------------------------------------------------------------------------
+def _water_year_label(index: pd.DatetimeIndex, start_month: int) -> np.ndarray:
+    """Water year of each day, named by the calendar year in which it ends."""
+    years = index.year.to_numpy()
+    if start_month == 1:
+        return years
+    return years + (index.month.to_numpy() >= start_month)
+
+
+def choose_year(daily_index: pd.DatetimeIndex, start_month: int, year: int | None) -> int:
+    """The water year to report: ``year`` when the record covers it, else the last complete one."""
+    labels = _water_year_label(daily_index, start_month)
+    present = sorted(set(labels.tolist()))
+    if year is not None:
+        if year not in present:
+            raise LakebalanceError(
+                f"water year {year} is not in the record ({present[0]}–{present[-1]})"
+            )
+        return year
+    counts = pd.Series(labels).value_counts()
+    complete = [y for y in present if counts[y] >= 365]
+    return complete[-1] if complete else present[-1]
+
+
+# --------------------------------------------------------------------------------------------
+# Sections
+# --------------------------------------------------------------------------------------------
+_TERM_LABELS = {
+    "inflow_m3": "gauged inflow",
+    "rain_m3": "rain on the lake",
+    "evaporation_m3": "evaporation",
+    "outflow_m3": "outlet outflow",
+    "withdrawal_m3": "withdrawals",
+    "release_m3": "releases",
+    "storage_change_m3": "storage change",
+    "residual_m3": "residual (unexplained)",
+}
+
+
+def _qa_section(run: SiteRun, year_days: pd.DatetimeIndex) -> Section:
+    rec = run.records
+    per_series = pd.DataFrame(
+        [
+            {
+                "series": s.key,
+                "file": Path(s.file).name,
+                "units": s.declared_units,
+                "first": s.first,
+                "last": s.last,
+                "days": s.days,
+                "missing": s.missing,
+                "flagged": s.flagged,
+                "rejected": s.rejected,
+            }
+            for s in rec.series
+        ]
+    )
+    accounting = pd.DataFrame(
+        [
+            {
+                "file": Path(a.file).name,
+                "series": a.series,
+                "rows read": a.read,
+                "used": a.used,
+                "flagged": a.flagged,
+                "rejected": a.rejected,
+            }
+            for a in rec.accounting
+        ]
+    )
+    lo, hi = year_days[0].strftime("%Y-%m-%d"), year_days[-1].strftime("%Y-%m-%d")
+    findings = [
+        f for f in rec.findings if f.first is None or (f.first[:10] <= hi and (f.last or f.first)[:10] >= lo)
+    ]
+    finding_frame = pd.DataFrame(
+        [
+            {
+                "series": f.series,
+                "kind": f.kind,
+                "first": (f.first or "")[:10],
+                "last": (f.last or "")[:10],
+                "count": f.count,
+                "action": f.action,
+                "detail": f.detail,
+            }
+            for f in findings
+        ],
+        columns=["series", "kind", "first", "last", "count", "action", "detail"],
+    )
+    tables = [
+        table("qa-series", "Series loaded (whole record)", per_series),
+        table("qa-accounting", "Row accounting: rows read = used + flagged + rejected", accounting),
+    ]
+    if len(finding_frame):
+        tables.append(table("qa-findings", f"Data findings touching {lo} to {hi}", finding_frame))
+    paragraphs = (
+        f"{len(rec.series)} series were read; {len(rec.findings)} findings over the whole record, "
+        f"{len(findings)} of them in the reported year. Flagged values are kept and marked; "
+        "rejected rows are counted above and never silently dropped.",
+    )
+    return Section("qa", "Data quality", paragraphs=paragraphs, tables=tuple(tables))
+
+
+def _provenance_dict(run: SiteRun) -> dict[str, Any]:
+    from .provenance import provenance
+
+    return provenance(run.site, {"balance": run.seed, "drawdown": run.seed + 1}).to_dict()
+
+
+def _missing(run: SiteRun, *steps: str) -> tuple[str, ...]:
+    return tuple(
+        f"The {s} step could not run for this site: {run.unavailable[s]}"
+        for s in steps
+        if s in run.unavailable
+    )
+
+
+def _simulated_storage(daily: pd.DataFrame) -> pd.Series:
+    """Storage (m³) from the measured terms alone, restarted from the observed storage after each
+    day with a missing term: what the lake would have done if the residual were zero."""
+    complete = daily["complete"].to_numpy(bool)
+    measured = (daily["storage_change_m3"] - daily["residual_m3"]).to_numpy(float)
+    start = daily["storage_start_m3"].to_numpy(float)
+    out = np.full(len(daily), np.nan)
+    # segments of consecutive complete days; each starts at the observed storage
+    seg = np.cumsum(~complete)
+    frame = pd.DataFrame({"seg": seg, "d": np.where(complete, measured, np.nan), "s0": start})
+    frame = frame[complete]
+    if len(frame):
+        first = frame.groupby("seg")["s0"].transform("first")
+        out[complete] = first.to_numpy() + frame.groupby("seg")["d"].cumsum().to_numpy()
+    return pd.Series(out, index=daily.index)
+
+
+def _stage_figure(run: SiteRun, days: pd.DatetimeIndex) -> Figure:
+    from .style import PALETTE, new_figure, shade_periods
+
+    d = run.balance.daily.loc[days[0] : days[-1]]
+    sim_v = _simulated_storage(d)
+    sim_h = pd.Series(np.asarray(run.storage.stage(sim_v.to_numpy()), float), index=d.index)
+    sim_h[sim_v.isna()] = np.nan
+    fig, ax = new_figure(height=3.4)
+    ax.plot(d.index, d["stage_end_m"], color=PALETTE["observed"], label="observed (end of day)")
+    ax.plot(d.index, sim_h, color=PALETTE["simulated"], ls="--",
+            label="from measured terms only (residual = 0)")
+    periods = []
+    if run.flags is not None:
+        for f in run.flags.items:
+            s, e = pd.Timestamp(f.start), pd.Timestamp(f.end)
+            if e >= d.index[0] and s <= d.index[-1]:
+                periods.append((s, e + pd.Timedelta(days=1)))
+    shade_periods(ax, periods, label="flagged residual")
+    for name, level in sorted(run.site.levels.items(), key=lambda kv: kv[1]):
+        lo, hi = np.nanmin(d["stage_end_m"]), np.nanmax(d["stage_end_m"])
+        if lo - 1.0 <= level <= hi + 1.0:
+            ax.axhline(level, color="#555555", lw=0.7, ls=":")
+            ax.annotate(name, (d.index[0], level), fontsize=7, va="bottom")
+    ax.set_ylabel("stage (m, gauge datum)")
+    ax.set_xlabel("date")
+    ax.legend(loc="best")
+    return Figure(
+        "stage",
+        "Observed stage and the stage the measured terms alone would give (each stretch of "
+        "complete days starts from the observed storage). Shaded: flagged residuals.",
+        _png(fig),
+        "Line chart of observed and simulated stage over the water year",
+    )
+
+
+def _components_figure(monthly: pd.DataFrame) -> Figure:
+    from .style import PALETTE, new_figure
+
+    fig, ax = new_figure(height=3.6)
+    x = np.arange(len(monthly))
+    gains = [("inflow_m3", "inflow", "//"), ("rain_m3", "rain", "..")]
+    losses = [
+        ("evaporation_m3", "evaporation", "\\\\"),
+        ("outflow_m3", "outflow", "xx"),
+        ("withdrawal_m3", "withdrawal", "--"),
+        ("release_m3", "release", "++"),
+    ]
+    bottom = np.zeros(len(monthly))
+    for col, key, hatch in gains:
+        v = monthly[col].fillna(0).to_numpy() / 1e3
+        ax.bar(x, v, bottom=bottom, color=PALETTE[key], hatch=hatch, edgecolor="black",
+               lw=0.3, label=key)
+        bottom += v
+    bottom = np.zeros(len(monthly))
+    for col, key, hatch in losses:
+        v = -monthly[col].fillna(0).to_numpy() / 1e3
+        ax.bar(x, v, bottom=bottom, color=PALETTE[key], hatch=hatch, edgecolor="black",
+               lw=0.3, label=key)
+        bottom += v
+    ax.plot(x, monthly["storage_change_m3"].to_numpy() / 1e3, "k-o", ms=3,
+            label="storage change")
+    ax.plot(x, monthly["residual_m3"].to_numpy() / 1e3, color=PALETTE["residual"], ls="--",
+            marker="s", ms=3, label="residual")
+    ax.axhline(0, color="black", lw=0.6)
+    ax.set_xticks(x, [m.strftime("%b %Y") for m in monthly.index], rotation=45, ha="right")
+    ax.set_ylabel("volume (10³ m³ per month)")
+    ax.legend(ncols=4, loc="upper center", bbox_to_anchor=(0.5, -0.3))
+    return Figure(
+        "components",
+        "Monthly balance: gains above zero, losses below, storage change and residual as lines.",
+        _png(fig),
+        "Stacked bar chart of the monthly water-balance terms",
+    )
+
+
+def _cumulative_figure(run: SiteRun, days: pd.DatetimeIndex) -> Figure | None:
+    from .style import PALETTE, new_figure
+
+    bal = run.balance
+    cum = getattr(bal, "cumulative_bands", None)
+    d = bal.daily.loc[days[0] : days[-1]]
+    res = d["residual_m3"].where(d["complete"], 0.0).cumsum() / 1e3
+    fig, ax = new_figure(height=3.2)
+    if callable(cum):
+        band = cum(days[0], days[-1])
+        ax.fill_between(band.index, band["p05_m3"] / 1e3, band["p95_m3"] / 1e3,
+                        color=PALETTE["band"], alpha=0.4, hatch="...", label="5–95 % band")
+    ax.plot(res.index, res, color=PALETTE["residual"], label="cumulative residual")
+    ax.axhline(0, color="black", lw=0.6)
+    ax.set_ylabel("cumulative residual (10³ m³)")
+    ax.set_xlabel("date")
+    ax.legend(loc="best")
+    return Figure(
+        "cumulative",
+        "Cumulative unexplained residual over the water year (positive = unexplained gain), "
+        "with its Monte Carlo band where computed.",
+        _png(fig),
+        "Line chart of the cumulative residual",
+    )
+
+
+def _storage_section(run: SiteRun) -> Section:
+    if run.storage is None:
+        return Section("storage", "Stage–area–storage relation", missing=_missing(run, "storage"))
+    from .figures_storage import storage_figure
+
+    curve = run.storage
+    span = curve.max_stage_m - curve.min_stage_m
+    step = max(0.1, round(span / 25, 1))
+    tab = curve.table(step).copy()
+    tab["area_ha"] = tab.pop("area_m2") / 1e4
+    tab["volume_1e3_m3"] = tab.pop("volume_m3") / 1e3
+    fig = storage_figure(curve, levels=dict(run.site.levels))
+    paragraphs = [
+        f"Built from the {curve.source or 'survey'} with {curve.stage_m.size} surveyed levels, "
+        f"stage {curve.min_stage_m:.2f} to {curve.max_stage_m:.2f} m; "
+        f"below the range: {curve.below}, above: {curve.above}."
+    ]
+    if getattr(curve, "check", None) is not None:
+        paragraphs.append(curve.check.summary())
+    return Section(
+        "storage",
+        "Stage–area–storage relation",
+        paragraphs=tuple(paragraphs),
+        tables=(
+            table("storage", f"Area and volume at {step:g} m steps", tab,
+                  {"stage_m": 2, "area_ha": 2, "volume_1e3_m3": 1}),
+        ),
+        figures=(Figure("storage", "Area and volume against stage; named levels dashed.",
+                        _png(fig), "Area and volume curves against stage"),),
+    )
+
+
+def _rating_section(run: SiteRun, year_stage: pd.Series) -> Section:
+    if run.rating is None:
+        return Section("rating", "Outlet rating", missing=_missing(run, "rating"))
+    from .figures_rating import rating_figure
+
+    fit = run.rating
+    rows = []
+    for name, p in fit.parameter_table().items():
+        rows.append({"parameter": name, "value": p["value"], "stderr": p["stderr"],
+                     "ci95_low": p["ci95"][0], "ci95_high": p["ci95"][1],
+                     "fixed": "fixed" if p["fixed"] else "fitted"})
+    params = pd.DataFrame(rows)
+    lo, hi = fit.gauged_range
+    h = year_stage.dropna().to_numpy()
+    above = float(np.mean(h > hi)) * 100 if h.size else math.nan
+    below = float(np.mean(h < lo)) * 100 if h.size else math.nan
+    stage_max = float(np.nanmax(h)) if h.size else None
+    fig = rating_figure(fit, stage_max)
+    paragraphs = (
+        f"Form {fit.form}, fitted to {fit.n} gaugings between {lo:.2f} and {hi:.2f} m; residual "
+        f"standard error {fit.se_percent:.1f} %.",
+        f"In the reported year the stage was above the highest gauging on {above:.1f} % of days "
+        f"and below the lowest on {below:.1f} %; outflows there are extrapolated.",
+    )
+    return Section(
+        "rating",
+        "Outlet rating",
+        paragraphs=paragraphs,
+        tables=(table("rating", "Rating parameters (SI) with 95 % confidence intervals", params,
+                      {"value": 4, "stderr": 4, "ci95_low": 4, "ci95_high": 4}),),
+        figures=(Figure("rating", "Gaugings, fitted rating and its 95 % confidence and "
+                        "prediction bands, on linear and log axes.", _png(fig),
+                        "Rating curve with gaugings"),),
+    )
+
+
+def _evaporation_section(run: SiteRun, days: pd.DatetimeIndex) -> Section:
+    if run.evaporation is None:
+        return Section("evaporation", "Evaporation", missing=_missing(run, "evaporation"))
+    ev = run.evaporation
+    monthly = ev.monthly("mm")
+    monthly = monthly[(monthly.index.start_time >= days[0]) & (monthly.index.start_time <= days[-1])]
+    frame = monthly.copy()
+    frame.insert(0, "month", [p.strftime("%Y-%m") for p in frame.index])
+    methods = [c for c in ev.by_method.columns]
+    frame = frame[["month", *methods, "days", "filled_days"]]
+    frame.columns = ["month", *[f"{m}_mm" for m in methods], "days", "filled_days"]
+    paragraphs = [f"Lake evaporation in the balance: {ev.method}. Every method the weather allows "
+                  "is shown beside it (monthly totals, mm)."]
+    paragraphs += list(ev.notes)
+    return Section(
+        "evaporation",
+        "Evaporation",
+        paragraphs=tuple(paragraphs),
+        tables=(table("evaporation", "Monthly lake evaporation by method (mm)", frame, 1),),
+    )
+
+
+def _balance_tables(run: SiteRun, year: int) -> tuple[Table, Table, pd.DataFrame]:
+    bal = run.balance
+    wy = bal.water_years().reset_index()
+    cols = ["water_year", "complete_days", "inflow_m3", "rain_m3", "evaporation_m3",
+            "outflow_m3", "withdrawal_m3", "release_m3", "storage_change_m3", "residual_m3"]
+    band_cols = [c for c in ("residual_p05_m3", "residual_p95_m3") if c in wy]
+    annual = wy[cols + band_cols].copy()
+    for c in cols[2:] + band_cols:
+        annual[c.replace("_m3", "_1e3_m3")] = annual.pop(c) / 1e3
+    annual["residual_mm"] = wy["residual_mm"]
+    annual["closure_pct"] = wy["closure_error_pct"]
+    if "p_nonzero" in wy:
+        annual["p_nonzero"] = wy["p_nonzero"]
+    dec = {c: 1 for c in annual.columns}
+    dec.update({"water_year": 0, "complete_days": 0, "closure_pct": 1, "p_nonzero": 2})
+    annual_t = table(
+        "annual",
+        "Water-year balance (10³ m³; residual also in mm over the mean lake area)",
+        annual,
+        dec,
+        note="Residual = observed storage change minus the sum of the measured terms; positive "
+        "is an unexplained gain. p_nonzero: confidence that the residual differs from zero. "
+        "Totals over complete days only.",
+    )
+    m = bal.monthly()
+    keys = _water_year_label(m.index, bal.water_year_start)
+    m = m[keys == year]
+    monthly = pd.DataFrame({"month": [t.strftime("%Y-%m") for t in m.index]})
+    monthly["complete_days"] = m["complete_days"].to_numpy()
+    for c in cols[2:] + [c for c in ("residual_p05_m3", "residual_p95_m3") if c in m]:
+        monthly[c.replace("_m3", "_1e3_m3")] = m[c].to_numpy() / 1e3
+    monthly["residual_mm"] = m["residual_mm"].to_numpy()
+    mdec = {c: 1 for c in monthly.columns}
+    mdec["complete_days"] = 0
+    monthly_t = table("monthly", f"Monthly balance, water year {year} (10³ m³)", monthly, mdec)
+    return annual_t, monthly_t, m
+
+
+def _balance_section(run: SiteRun, year: int, days: pd.DatetimeIndex) -> Section:
+    if run.balance is None:
+        return Section("balance", "Water balance", missing=_missing(run, "balance"))
+    annual_t, monthly_t, m = _balance_tables(run, year)
+    figures = [_stage_figure(run, days), _components_figure(m)]
+    cum = _cumulative_figure(run, days)
+    if cum is not None:
+        figures.append(cum)
+    paragraphs = list(run.balance.notes)
+    if run.balance.absent_terms:
+        paragraphs.append("Terms with no record, taken as zero: "
+                          + ", ".join(run.balance.absent_terms) + ".")
+    return Section("balance", "Water balance", paragraphs=tuple(paragraphs),
+                   tables=(annual_t, monthly_t), figures=tuple(figures))
+
+
+def _flags_section(run: SiteRun, days: pd.DatetimeIndex) -> Section:
+    if run.flags is None:
+        return Section("flags", "Unexplained residuals", missing=_missing(run, "flags", "balance"))
+    lo, hi = days[0].strftime("%Y-%m-%d"), days[-1].strftime("%Y-%m-%d")
+    items = [f for f in run.flags.items if f.start <= hi and f.end >= lo]
+    frame = pd.DataFrame(
+        [
+            {
+                "start": f.start,
+                "end": f.end,
+                "kind": f.kind,
+                "volume_1e3_m3": f.volume_m3 / 1e3,
+                "depth_mm": f.depth_mm,
+                "significance": f.significance,
+                "likely cause": f.cause,
+                "accepted correction": "yes" if f.accepted else "no",
+            }
+            for f in items
+        ],
+        columns=["start", "end", "kind", "volume_1e3_m3", "depth_mm", "significance",
+                 "likely cause", "accepted correction"],
+    )
+    paragraphs = [
+        f"{len(run.flags.items)} flags over the whole record, {len(items)} touching the reported "
+        "year. Flags never change the data; a correction is applied only when it is accepted in "
+        "the site file."
+    ]
+    paragraphs += [f"{f.start} to {f.end}: {f.hint}" for f in items if f.significant][:12]
+    if run.flags.corrections:
+        paragraphs.append(
+            "Corrections accepted in the site file and applied: "
+            + "; ".join(f"{c.series} {c.value:+g} from {c.start} ({c.reason or 'no reason given'})"
+                        for c in run.flags.corrections)
+        )
+    tables = ()
+    if len(frame):
+        tables = (table("flags", f"Flags touching water year ({lo} to {hi})", frame,
+                        {"volume_1e3_m3": 1, "depth_mm": 1, "significance": 1}),)
+    return Section("flags", "Unexplained residuals", paragraphs=tuple(paragraphs), tables=tables)
+
+
+def _seepage_section(run: SiteRun) -> Section:
+    if run.seepage is None:
+        return Section("seepage", "Seepage", missing=_missing(run, "seepage", "balance"))
+    s = run.seepage
+    rates = s.rate_table(levels=dict(run.site.levels))
+    keep = ["name", "stage_m", "m3_per_day", "m3_per_day_low", "m3_per_day_high", "L_per_s",
+            "mm_per_day", "within_fitted_stages"]
+    rates = rates[keep].copy()
+    rates["within_fitted_stages"] = np.where(rates["within_fitted_stages"], "yes", "no")
+    ci = s.conf_int()
+    params = pd.DataFrame(
+        [{"parameter": n, "value": s.params[n], "stderr": s.stderr[n], "ci95_low": ci[n][0],
+          "ci95_high": ci[n][1]} for n in s.param_names]
+    )
+    paragraphs = [
+        f"Seepage (net loss to the ground; positive leaves the lake), model {s.model}, from "
+        f"{s.n} days selected from the residual; regression with Newey–West (HAC) errors, "
+        f"Durbin–Watson {s.durbin_watson:.2f}.",
+    ]
+    if not s.distinguishable_from_zero:
+        paragraphs.append("The estimate cannot be told from zero at the 95 % level.")
+    paragraphs += list(s.notes)
+    return Section(
+        "seepage",
+        "Seepage",
+        paragraphs=tuple(paragraphs),
+        tables=(
+            table("seepage-params", "Seepage law parameters (SI: k in m²/s, h0 in m)", params,
+                  {"value": 6, "stderr": 6, "ci95_low": 6, "ci95_high": 6}),
+            table("seepage-rates", "Seepage at the mean and named stages, with 95 % CI", rates,
+                  {"stage_m": 2, "m3_per_day": 0, "m3_per_day_low": 0, "m3_per_day_high": 0,
+                   "L_per_s": 1, "mm_per_day": 2}),
+        ),
+    )
+
+
+# --------------------------------------------------------------------------------------------
+# The year in plain words
+# --------------------------------------------------------------------------------------------
+def _headline(run: SiteRun, year: int, days: pd.DatetimeIndex) -> dict[str, Any]:
+    """Headline numbers of the year (rounded as shown)."""
+    out: dict[str, Any] = {"water_year": year, "first_day": days[0].strftime("%Y-%m-%d"),
+                           "last_day": days[-1].strftime("%Y-%m-%d")}
+    if run.balance is not None:
+        wy = run.balance.water_years()
+        if year in wy.index:
+            row = wy.loc[year]
+            out["closure_percent"] = _r(row.get("closure_error_pct"), 1)
+            out["residual_m3"] = _r(row.get("residual_m3"), 0)
+            out["residual_mm"] = _r(row.get("residual_mm"), 1)
+            out["inflow_m3"] = _r(row.get("inflow_m3"), 0)
+            out["storage_change_m3"] = _r(row.get("storage_change_m3"), 0)
+            out["complete_days"] = int(row.get("complete_days", 0))
+            if "residual_p05_m3" in row:
+                out["residual_p05_m3"] = _r(row["residual_p05_m3"], 0)
+                out["residual_p95_m3"] = _r(row["residual_p95_m3"], 0)
+            if "p_nonzero" in row:
+                out["p_nonzero"] = _r(row["p_nonzero"], 2)
+        d = run.balance.daily.loc[days[0] : days[-1], "stage_end_m"].dropna()
+        if len(d):
+            out["stage_end_m"] = _r(float(d.iloc[-1]), 3)
+    if run.seepage is not None:
+        rate = float(np.asarray(run.seepage.rate_m3s(run.seepage.mean_stage_m)))
+        out["seepage_m3_per_day"] = _r(rate * 86400.0, 0)
+    return out
+
+
+def _r(value: Any, decimals: int) -> float | None:
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        return None
+    return round(v, decimals) if math.isfinite(v) else None
+
+
+def _year_in_words(run: SiteRun, head: dict[str, Any], previous: dict[str, Any]) -> list[str]:
+    name = run.site.site.name
+    out = [f"This report covers water year {head['water_year']} of {name}, "
+           f"{head['first_day']} to {head['last_day']}."]
+    if run.balance is None:
+        out.append("The water balance could not be closed for this site; see the sections below.")
+        return out
+    res = head.get("residual_m3")
+    pct = head.get("closure_percent")
+    if res is not None:
+        sign = "an unexplained gain" if res > 0 else "an unexplained loss"
+        text = (f"The balance closed with {sign} of {_fmt(abs(res) / 1e3, 1)} thousand m³ "
+                f"({_fmt(head.get('residual_mm') or math.nan, 1)} mm over the lake)")
+        if pct is not None:
+            text += f", {abs(pct):.1f} % of the measured gains (gauged inflow and rain)"
+        if "residual_p05_m3" in head and head["residual_p05_m3"] is not None:
+            text += (f"; the 5–95 % band of the residual is {_fmt(head['residual_p05_m3'] / 1e3, 1)}"
+                     f" to {_fmt(head['residual_p95_m3'] / 1e3, 1)} thousand m³")
+            lo, hi = head["residual_p05_m3"], head["residual_p95_m3"]
+            text += (", so the measured terms cannot explain it" if lo > 0 or hi < 0
+                     else ", so it cannot be told from zero")
+        out.append(text + ".")
+    if head.get("complete_days") is not None:
+        out.append(f"{head['complete_days']} days had every term measured; the others are left "
+                   "out of the totals, never counted as zero.")
+    if previous.get("residual_m3") is not None and res is not None:
+        change = res - previous["residual_m3"]
+        out.append(f"Compared with water year {previous['water_year']}, the residual changed by "
+                   f"{_fmt(change / 1e3, 1)} thousand m³.")
+    if head.get("stage_end_m") is not None:
+        out.append(f"The year ended at stage {head['stage_end_m']:.2f} m on the gauge datum.")
+    if head.get("seepage_m3_per_day") is not None:
+        out.append(f"Estimated seepage at the mean stage: {_fmt(head['seepage_m3_per_day'])} m³/d "
+                   "(net loss to the ground).")
+    return out
+
+
+_KEY_NUMBERS = [
+    ("closure_percent", "closure error", "% of gains", 1),
+    ("residual_m3", "residual", "m³", 0),
+    ("residual_mm", "residual depth", "mm", 1),
+    ("inflow_m3", "gauged inflow", "m³", 0),
+    ("storage_change_m3", "storage change", "m³", 0),
+    ("stage_end_m", "stage at year end", "m", 3),
+    ("seepage_m3_per_day", "seepage at mean stage", "m³/d", 0),
+]
+
+
+# --------------------------------------------------------------------------------------------
+# Writing
+# --------------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class ReportResult:
+    """Where a report went and what it says in a few numbers."""
+
+    name: str
+    folder: Path
+    html: Path
+    json: Path
+    xlsx: Path
+    csv: dict[str, Path]
+    headline: dict[str, Any]
+    latitude: float | None = None
+    longitude: float | None = None
+    messages: tuple[str, ...] = ()
+
+
+def _safe_name(text: str) -> str:
+    return re.sub(r"[^A-Za-z0-9_.-]+", "_", text).strip("_") or "site"
+
+
+def build_sections(run: SiteRun, year: int) -> tuple[list[Section], dict[str, Any], list[str]]:
+    """The sections, the headline numbers and the plain-words summary of ``year``."""
+    from ..balance import water_year_of
+
+    index = run.records.daily.index
+    keys = water_year_of(index, run.site.site.water_year_start)
+    days = index[keys == year]
+    stage = (run.records.daily["stage"].loc[days[0] : days[-1]]
+             if "stage" in run.records.daily else pd.Series(dtype=float))
+    sections = [
+        _balance_section(run, year, days),
+        _flags_section(run, days),
+        _seepage_section(run),
+        _dynamics_section(run),
+        _drawdown_section(run),
+        _rating_section(run, stage),
+        _storage_section(run),
+        _evaporation_section(run, days),
+        _qa_section(run, days),
+    ]
+    head = _headline(run, year, days)
+    previous: dict[str, Any] = {}
+    if run.balance is not None:
+        earlier = index[keys == year - 1]
+        if len(earlier):
+            previous = _headline(run, year - 1, earlier)
+    if run.dynamics is not None:
+        head.update(_dynamics_headline(run))
+    summary = _year_in_words(run, head, previous)
+    if run.forecast is not None:
+        summary += list(_forecast_sentences(run))[:3]
+    return sections, head, summary
+
+
+def make_report(
+    site_file: str | Path,
+    out_dir: str | Path,
+    *,
+    year: int | None = None,
+    seed: int | None = None,
+    draws: int | None = None,
+    members: int | None = None,
+    progress: bool = False,
+) -> ReportResult:
+    """Run every step on one site and write its report to ``out_dir/<site>/``.
+
+    Writes ``report.html`` (self-contained: figures embedded, no network needed), ``summary.json``
+    (headline numbers, every table, provenance), ``tables.xlsx`` and one CSV per table. The same
+    rounded values stand in all of them.
+
+    Parameters
+    ----------
+    site_file : path
+        The site file.
+    out_dir : path
+        Folder for the report (created).
+    year : int, optional
+        Water year to report, named by the calendar year it ends in (default: the last complete
+        one in the record).
+    seed : int, optional
+        Seed of every random draw (default: ``[site] seed``); written into the report.
+    draws, members : int, optional
+        Monte Carlo draws of the balance and ensemble members of the forecast.
+    progress : bool
+        Show progress on stderr.
+    """
+    from .. import __version__, api
+    from .._json import dumps
+    from ..io.output import write_csv, write_text, write_xlsx
+    from .html import CAUTIONS, png_base64, render
+
+    site = api.load_site(site_file)
+    run = run_site(site, seed=seed, draws=draws, members=members, progress=progress)
+    from ..balance import water_year_of
+
+    keys = water_year_of(run.records.daily.index, site.site.water_year_start)
+    present = sorted(set(np.asarray(keys).tolist()))
+    if year is not None and year not in present:
+        raise LakebalanceError(
+            f"water year {year} is not in the record ({present[0]} to {present[-1]})",
+            file=site.path,
+        )
+    if year is None:
+        counts = pd.Series(keys).value_counts()
+        complete = [y for y in present if counts[y] >= 365]
+        year = complete[-1] if complete else present[-1]
+    sections, head, summary = build_sections(run, int(year))
+    prov = _provenance_dict(run)
+
+    folder = Path(out_dir)
+    folder.mkdir(parents=True, exist_ok=True)
+    tables = [t for s in sections for t in s.tables]
+    csv_paths = {}
+    for t in tables:
+        csv_paths[t.id] = write_csv(folder / f"{t.id}.csv", t.frame, index=False)
+    xlsx = write_xlsx(folder / "tables.xlsx", {t.id: t.frame for t in tables})
+    key_numbers = [
+        {"key": k, "label": label, "unit": unit,
+         "text": f"{head[k]:.{d}f}"}
+        for k, label, unit, d in _KEY_NUMBERS
+        if head.get(k) is not None
+    ]
+    location = api.lake_location(site)
+    messages = [f"{step} not available: {why}" for step, why in run.unavailable.items()]
+    document = {
+        "tool": "lakebalance",
+        "version": __version__,
+        "site": site.site.name,
+        "water_year": int(year),
+        "headline": head,
+        "summary": summary,
+        "tables": {t.id: t.to_json() for t in tables},
+        "unavailable": run.unavailable,
+        "warnings": list(run.warnings),
+        "cautions": list(CAUTIONS),
+        "provenance": prov,
+    }
+    json_path = write_text(folder / "summary.json", dumps(document))
+    title = site.report.title or f"{site.site.name}: water balance"
+    html = render(
+        "report.html",
+        title=title,
+        subtitle=f"Water year {year} ({head['first_day']} to {head['last_day']}) · "
+        f"lakebalance {__version__}",
+        summary=summary,
+        key_numbers=key_numbers,
+        sections=[
+            {
+                "id": s.id,
+                "title": s.title,
+                "paragraphs": s.paragraphs,
+                "missing": s.missing,
+                "figures": [{"id": f.id, "caption": f.caption, "alt": f.alt,
+                             "png": png_base64(f.png)} for f in s.figures],
+                "tables": [{"id": t.id, "title": t.title, "columns": list(t.frame.columns),
+                            "rows": t.rows(), "note": t.note} for t in s.tables],
+            }
+            for s in sections
+        ],
+        provenance=prov,
+    )
+    html_path = write_text(folder / "report.html", html)
+    return ReportResult(
+        name=site.site.name,
+        folder=folder,
+        html=html_path,
+        json=json_path,
+        xlsx=xlsx,
+        csv=csv_paths,
+        headline=head,
+        latitude=None if location is None else location[0],
+        longitude=None if location is None else location[1],
+        messages=tuple(messages),
+    )
+
+
+def _dynamics_headline(run: SiteRun) -> dict[str, Any]:
+    dyn = run.dynamics
+    out: dict[str, Any] = {}
+    res = dyn.residence
+    if "all" in res.index:
+        out["residence_days"] = _r(res.loc["all", "residence_losses_days"], 0)
+    out["equilibrium_stage_m"] = _r(dyn.equilibrium.stage_m, 2)
+    return out
+
+
+def _dynamics_section(run: SiteRun) -> Section:
+    if run.dynamics is None:
+        return Section("dynamics", "Residence, response and equilibrium",
+                       missing=_missing(run, "dynamics"))
+    dyn = run.dynamics
+    res = dyn.residence.reset_index()
+    res["water_year"] = res["water_year"].astype(str)
+    res = res[["water_year", "mean_storage_m3", "residence_outflow_days",
+               "residence_losses_days"]].copy()
+    res["mean_storage_1e3_m3"] = res.pop("mean_storage_m3") / 1e3
+    resp = dyn.response.reset_index()
+    resp = resp.rename(columns={resp.columns[0]: "stage"})
+    resp = resp[["stage", "stage_m", "response_time_days"]]
+    limits = dyn.limits.reset_index()
+    limits = limits.rename(columns={limits.columns[0]: "level"})
+    eq = dyn.equilibrium
+    paragraphs = [
+        f"For a sustained inflow of {dyn.inflow_m3s:.3f} m³/s the lake settles at "
+        + (f"{eq.stage_m:.2f} m" if math.isfinite(eq.stage_m) else f"no stage in range ({eq.status})")
+        + (f", with a response time of {eq.response_time_days:.0f} days there"
+           if math.isfinite(eq.response_time_s) else "")
+        + ". The steady state depends on the outlet law, the losses and the inflow; the lake's "
+        "area sets how long it takes to get there.",
+        f"The outlet stops flowing below {dyn.cease_to_flow_stage_m:.2f} m; a sustained inflow of "
+        f"at least {dyn.minimum_inflow_to_flow_m3s:.3f} m³/s keeps it flowing.",
+    ]
+    for w in dyn.what_if:
+        if math.isfinite(w.equilibrium.stage_m):
+            paragraphs.append(
+                f"{w.label}: equilibrium {w.equilibrium.stage_m:.2f} m, 95 % of the way there "
+                f"from {w.start_stage_m:.2f} m in {w.time_to_95_days:.0f} days."
+            )
+    paragraphs += list(dyn.notes)
+    return Section(
+        "dynamics",
+        "Residence, response and equilibrium",
+        paragraphs=tuple(paragraphs),
+        tables=(
+            table("residence", "Residence time by water year (days)", res,
+                  {"residence_outflow_days": 0, "residence_losses_days": 0,
+                   "mean_storage_1e3_m3": 1},
+                  note="Mean volume over mean outlet outflow, and over mean total losses."),
+            table("response", "Response (e-folding) time at chosen stages", resp,
+                  {"stage_m": 2, "response_time_days": 1}),
+            table("limits", "Largest sustained inflow that keeps the lake at or below each level",
+                  limits, {"stage_m": 2, "max_inflow_m3s": 3}),
+        ),
+    )
+
+
+def _drawdown_section(run: SiteRun) -> Section:
+    if run.forecast is None:
+        return Section("drawdown", "Drought drawdown outlook", missing=_missing(run, "drawdown"))
+    return Section("drawdown", "Drought drawdown outlook")
+
+
+def _forecast_sentences(run: SiteRun) -> tuple[str, ...]:
+    return ()
