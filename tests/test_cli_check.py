@@ -162,3 +162,13 @@ def test_installed_command_prints_no_traceback(tmp_path):
     )
     assert proc.returncode == 2
     assert proc.stderr.count("\n") == 1 and proc.stderr.startswith("error: ")
+
+
+def test_stage_above_the_storage_relation_is_reported(tmp_path, capsys):
+    (tmp_path / "st.csv").write_text("stage,area\n0,0\n1,1000\n2,3000\n", encoding="utf-8")
+    data = "date,stage_m\n2021-01-01,1.5\n2021-01-02,2.5\n2021-01-03,2.6\n2021-01-04,1.9\n"
+    site = SITE.format(units="m", extra="") + '\n[storage]\nfile = "st.csv"\n'
+    code, out, _ = run(capsys, make(tmp_path, data, site=site), "--json")
+    assert code == 0
+    found = [f for f in json.loads(out)["series"][0]["findings"] if f["kind"] == "outside_storage"]
+    assert [(f["first"], f["last"], f["count"]) for f in found] == [("2021-01-02", "2021-01-03", 2)]
