@@ -172,3 +172,10 @@ def test_stage_above_the_storage_relation_is_reported(tmp_path, capsys):
     assert code == 0
     found = [f for f in json.loads(out)["series"][0]["findings"] if f["kind"] == "outside_storage"]
     assert [(f["first"], f["last"], f["count"]) for f in found] == [("2021-01-02", "2021-01-03", 2)]
+
+
+def test_unknown_time_zone_names_the_site_file_line(tmp_path, capsys):
+    site = SITE.format(units="m", extra="").replace('timezone = "UTC"', 'timezone = "Mars/Base"')
+    code, _, err = run(capsys, make(tmp_path, site=site))
+    assert code == 2
+    assert re.search(r"site\.toml:3: 'timezone' = 'Mars/Base' is not a time zone", one_error(err))

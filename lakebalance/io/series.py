@@ -179,6 +179,35 @@ def _site_line(site: Site, spec: SeriesSpec, key: str) -> int | None:
     return None
 
 
+def check_zone(name: str, site: Site, spec: SeriesSpec | None = None) -> None:
+    """Raise a :class:`ConfigError` naming the site-file line when ``name`` is no IANA zone."""
+    import zoneinfo
+
+    try:
+        zoneinfo.ZoneInfo(name)
+        return
+    except (zoneinfo.ZoneInfoNotFoundError, ValueError, TypeError):
+        pass
+    if spec is not None:
+        line, key = _site_line(site, spec, "source_timezone"), "source_timezone"
+    else:
+        key, line = "timezone", None
+        try:
+            text = site.path.read_text(encoding="utf-8-sig").splitlines()
+        except OSError:
+            text = []
+        for i, ln in enumerate(text):
+            if re.match(r"^\s*timezone\s*=", ln):
+                line = i + 1
+                break
+    raise ConfigError(
+        f"'{key}' = {name!r} is not a time zone; use an IANA name such as 'Europe/Vienna' or "
+        "'Etc/GMT-1' (UTC+1)",
+        file=site.path,
+        line=line,
+    )
+
+
 def _resolve_units(site: Site, spec: SeriesSpec, raw: RawSeries, kind: str, what: str) -> str:
     """The unit of the readings: the site file's, or the document's when the site says "file";
     both must agree when both are given."""
@@ -269,6 +298,10 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
 
     # 2. timestamps --------------------------------------------------------------------------
     from .dates import parse_timestamps
+
+    check_zone(site.site.timezone, site)
+    if spec.source_timezone:
+        check_zone(spec.source_timezone, site, spec)
 
     stamps, bad_date = parse_timestamps(
         raw.dates,
