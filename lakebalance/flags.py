@@ -1238,6 +1238,28 @@ def detect_flags(
         min_size=options.min_run_days,
         method=options.change_method,
     )
+    # a run lowers (or raises) the stage too: refit the usual level without the segments that
+    # depart from it, so that the stage term does not absorb them, and segment again
+    calm = clean.copy()
+    for (a, b), m in zip(cps.segments, cps.means):
+        valid = int(np.isfinite(dev_w[a : b + 1]).sum())
+        if valid and abs(m) * math.sqrt(valid / cps.ratio) >= options.run_threshold:
+            calm[a : b + 1] = np.nan
+    if (
+        np.isfinite(calm).sum() >= max(30, n // 4)
+        and np.isfinite(calm).sum() < np.isfinite(clean).sum()
+    ):
+        level_t, note = usual_level(calm, stage, scale_m3)
+        if np.isfinite(level_t).any():
+            baseline_t, baseline_note = level_t, note
+            dev = clean - baseline_t
+            dev_w = dev / scale_m3
+            cps = change_points(
+                dev_w,
+                penalty=options.penalty,
+                min_size=options.min_run_days,
+                method=options.change_method,
+            )
     ratio = cps.ratio
     with _quiet_nan_warnings():
         means_r = np.array([np.nanmean(clean[a : b + 1]) for a, b in cps.segments])
