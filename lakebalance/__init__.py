@@ -59,6 +59,8 @@ _EXPORTS = {
     "SeepageFit": "lakebalance.seepage",
     "fit_seepage": "lakebalance.seepage",
     "select_days": "lakebalance.seepage",
+    "read_table": "lakebalance.io.tables",
+    "SeriesInfo": "lakebalance.records",
 }
 
 __all__ = ["__version__", *_EXPORTS]
