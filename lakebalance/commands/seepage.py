@@ -6,7 +6,7 @@ import argparse
 
 from ._common import add_json, add_out, add_seed, add_site
 
-HELP = "estimate seepage (net loss to the ground) from the residual, with 95% intervals"
+HELP = "estimate seepage (net loss to the ground) from the residual, with 95 per cent intervals"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
