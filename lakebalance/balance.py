@@ -905,9 +905,11 @@ def add_uncertainty(
             e += u[:, :-1] * c_prev[a:b].astype(np.float32)
             e += u[:, 1:] * c_next[a:b].astype(np.float32)
         e += base[a:b].astype(np.float32)
-        part = np.partition(e, (k5, k95), axis=0)
-        lo[a:b] = part[k5]
-        hi[a:b] = part[k95]
+        # order statistics per day: numpy's vectorised sort along contiguous rows is several
+        # times faster than a two-index partition
+        ranked = np.sort(np.ascontiguousarray(e.T), axis=1)
+        lo[a:b] = ranked[:, k5]
+        hi[a:b] = ranked[:, k95]
         mk = month_key[a:b]
         mstarts = np.flatnonzero(np.r_[True, mk[1:] != mk[:-1]])
         month_draws.append(np.add.reduceat(e, mstarts, axis=1, dtype=np.float64))
