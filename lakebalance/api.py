@@ -335,6 +335,7 @@ def close_balance(
     *,
     draws: int | None = None,
     rng: _np.random.Generator | None = None,
+    seed: int | None = None,
     records: Records | None = None,
     storage: StorageCurve | None = None,
     rating: RatingFit | None = None,
@@ -351,7 +352,10 @@ def close_balance(
     draws : int, optional
         Monte Carlo draws (default ``[uncertainty] draws``; 0 skips the bands).
     rng : numpy.random.Generator, optional
-        Source of the draws (default: seeded from ``[site] seed``, recorded in the result).
+        Source of the draws (default: seeded with ``seed``).
+    seed : int, optional
+        Seed of the draws when no ``rng`` is given (default ``[site] seed``); recorded in the
+        result.
     records, storage, rating : optional
         Already loaded records, storage relation and fitted rating (loaded from the site when
         not given).
@@ -428,11 +432,12 @@ def close_balance(
         terms, volume_fn=storage.volume, area_fn=storage.area, outflow_fn=outflow, options=options
     )
     n_draws = site.uncertainty.draws if draws is None else int(draws)
-    seed = None
     if n_draws > 0:
         if rng is None:
-            seed = site.site.seed
+            seed = site.site.seed if seed is None else int(seed)
             rng = np.random.default_rng(seed)
+        else:
+            seed = None  # unknown: the caller's generator
         outlet = None
         if rating is not None:
             cov = np.asarray(rating.cov, dtype=float)

@@ -239,6 +239,13 @@ def test_balance_command_writes_tables(write, tmp_path, capsys):
     assert main(["balance", str(path), "--draws", "0"]) == 0
     text = capsys.readouterr().out
     assert "water years" in text and "no bands" in text
+    bands = []
+    for seed in ("5", "5", "6"):
+        assert main(["balance", str(path), "--json", "--draws", "50", "--seed", seed]) == 0
+        doc = json.loads(capsys.readouterr().out)
+        assert doc["seed"] == int(seed)
+        bands.append(doc["water_years"][0]["residual_p95_m3"])
+    assert bands[0] == bands[1] != bands[2]
 
 
 def test_balance_command_reports_a_missing_storage_section(write, tmp_path, capsys):

@@ -47,8 +47,6 @@ def run(args: argparse.Namespace) -> int:
     import sys
     import warnings
 
-    import numpy as np
-
     from .._json import dumps
     from ..api import close_balance, load_site
     from ..balance import CAUTION
@@ -60,7 +58,7 @@ def run(args: argparse.Namespace) -> int:
     seed = site.site.seed if args.seed is None else args.seed
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", LakebalanceWarning)
-        balance = close_balance(site, draws=args.draws, rng=np.random.default_rng(seed))
+        balance = close_balance(site, draws=args.draws, seed=seed)
     messages = list(dict.fromkeys(str(w.message) for w in caught))
     annual = balance.water_years()
     monthly = balance.monthly()
