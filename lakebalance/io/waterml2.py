@@ -144,14 +144,17 @@ def read_waterml2_series(spec: SeriesSpec, what: str) -> RawSeries:
         for v in value_els
     ]
     lines = np.array([p.sourceline or 0 for p in tvps], dtype=np.int64)
-    for p in tvps:
-        own = p.find("wml2:metadata/wml2:TVPMeasurementMetadata/wml2:uom", NS)
-        if own is not None and own.get("code") and ucum_to_unit(own.get("code")) != units:
+    own_uoms = ts.xpath(
+        "wml2:point/wml2:MeasurementTVP/wml2:metadata/wml2:TVPMeasurementMetadata/wml2:uom",
+        namespaces=NS,
+    )
+    for own in own_uoms:  # point-level units are rare: only those are visited
+        if own.get("code") and ucum_to_unit(own.get("code")) != units:
             raise InputError(
                 f"{what}: a point is in {own.get('code')!r}, the series in {units!r}; "
                 "one unit per series is supported",
                 file=file,
-                line=p.sourceline,
+                line=own.sourceline,
             )
     return RawSeries(
         file=file,
