@@ -463,6 +463,7 @@ class Balance:
     monthly_bands: pd.DataFrame | None = field(default=None, repr=False)
     annual_bands: pd.DataFrame | None = field(default=None, repr=False)
     errors: TermErrors | None = None
+    nodes: int = 3
 
     # -- properties ----------------------------------------------------------------------
     @property
@@ -730,6 +731,7 @@ def close_daily(
         absent_terms=tuple(absent),
         water_year_start=options.water_year_start,
         notes=tuple(notes),
+        nodes=options.nodes,
     )
 
 
@@ -744,7 +746,7 @@ def _rating_jacobian(
     k = v.size
     days, nodes = path.shape
     h = np.where(np.isfinite(path), path, 0.0)
-    step = np.maximum(np.abs(v) * 1e-6, 1e-9)
+    step = np.maximum(np.abs(v) * 1e-6, 1e-7)
     params = np.vstack([v + np.diag(step), v - np.diag(step)])  # (2k, k)
     stacked = np.broadcast_to(h, (2 * k, days, nodes))
     q = np.asarray(outlet.discharge_with(params, stacked), dtype=float)
@@ -764,7 +766,7 @@ def add_uncertainty(
     draws: int = 1000,
     rng: np.random.Generator,
     seed: int | None = None,
-    nodes: int = 3,
+    nodes: int | None = None,
 ) -> Balance:
     """Monte Carlo bands of the residual (daily, monthly, water-year) and P(residual ≠ 0).
 
@@ -786,8 +788,8 @@ def add_uncertainty(
         Source of randomness.
     seed : int, optional
         Recorded in the result.
-    nodes : int
-        Gauss–Legendre nodes (as in the closure).
+    nodes : int, optional
+        Gauss–Legendre nodes (default: those of the closure).
 
     Returns
     -------
@@ -818,7 +820,7 @@ def add_uncertainty(
     complete = d["complete"].to_numpy()
     residual = d["residual_m3"].to_numpy()
     rho = errors.systematic
-    tau, w = _gauss_legendre(nodes)
+    tau, w = _gauss_legendre(balance.nodes if nodes is None else nodes)
     hs = d["stage_start_m"].to_numpy()
     he = d["stage_end_m"].to_numpy()
     path = day_path(hs, he, d["stage_m"].to_numpy(), tau)
