@@ -256,6 +256,7 @@ class SeepageOptions:
     start: str | None = None  # ISO date, first day used
     end: str | None = None  # ISO date, last day used
     max_rain: float = 0.0005  # m/d, days with more rain are not used
+    rain_buffer: int = 1  # days before and after a rainy day also left out (-)
     exclude_spill: bool = True  # leave out days when the outlet spills
     exclude_flags: bool = True  # leave out flagged days
 

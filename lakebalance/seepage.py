@@ -412,7 +412,18 @@ def select_days(
     if "rain_m3" in daily.columns and "area_m2" in daily.columns:
         depth = daily["rain_m3"].to_numpy(float) / daily["area_m2"].to_numpy(float)
         with np.errstate(invalid="ignore"):
-            drop("rain", ~(np.nan_to_num(depth, nan=0.0) <= options.max_rain))
+            rainy = ~(np.nan_to_num(depth, nan=0.0) <= options.max_rain)
+        drop("rain", rainy)
+        if options.rain_buffer > 0:
+            # A day's storage change comes from boundary stages estimated from the neighbouring
+            # daily means, so a rise spreads into the days either side of the rain.
+            near = (
+                pd.Series(rainy)
+                .rolling(2 * options.rain_buffer + 1, center=True, min_periods=1)
+                .max()
+                .to_numpy(bool)
+            )
+            drop("next to a rainy day", near)
     if options.exclude_spill:
         spilling = np.zeros(len(idx), dtype=bool)
         if "outflow_m3" in daily.columns:

@@ -110,7 +110,8 @@ def test_select_days_counts_each_reason():
         index=idx,
     )
     flagged = pd.Series(idx == "2020-01-06", index=idx)
-    mask, counts = select_days(daily, SeepageOptions(end="2020-01-09"), flagged=flagged)
+    options = SeepageOptions(end="2020-01-09", rain_buffer=0)
+    mask, counts = select_days(daily, options, flagged=flagged)
     assert counts == {
         "considered": 10,
         "no residual or stage": 1,
@@ -120,3 +121,10 @@ def test_select_days_counts_each_reason():
         "flagged": 1,
     }
     assert mask.sum() == 6
+    # The default also leaves out the day either side of a rainy day (its storage change comes
+    # from boundary stages estimated from the neighbouring daily means).
+    mask, counts = select_days(daily, SeepageOptions(end="2020-01-09"), flagged=flagged)
+    assert counts["next to a rainy day"] == 2
+    assert counts["outlet spilling"] == 0  # day 4 already left out as next to the rain
+    assert mask.sum() == 5
+    assert not mask.iloc[1] and not mask.iloc[3]
