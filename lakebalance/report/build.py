@@ -932,7 +932,10 @@ def make_report(
     csv_paths = {}
     for t in tables:
         csv_paths[t.id] = write_csv(folder / f"{t.id}.csv", t.frame, index=False)
-    xlsx = write_xlsx(folder / "tables.xlsx", {t.id: t.frame for t in tables})
+    # first column as the index, so the sheets carry no extra 0..n row-number column
+    xlsx = write_xlsx(
+        folder / "tables.xlsx", {t.id: t.frame.set_index(t.frame.columns[0]) for t in tables}
+    )
     key_numbers = [
         {"key": k, "label": label, "unit": unit,
          "text": f"{head[k]:.{d}f}"}
