@@ -438,7 +438,8 @@ class Balance:
         mean), ``stage_start_m``/``stage_end_m`` (boundaries), ``area_m2`` (mean over the day),
         ``storage_m3`` (at the daily mean stage), ``storage_start_m3``/``storage_end_m3`` and
         ``complete`` (bool). After :func:`add_uncertainty`, ``residual_p05_m3`` and
-        ``residual_p95_m3``.
+        ``residual_p95_m3``, and ``cumulative_residual_p05_m3``/``..._p95_m3``: the band of the
+        residual summed over complete days since the start of the water year.
     inflow_names : tuple of str
         Tributary names, in the order of the ``inflow:<name>_m3`` columns.
     absent_terms : tuple of str
@@ -883,6 +884,8 @@ def add_uncertainty(
     lo = np.full(n, np.nan)
     hi = np.full(n, np.nan)
     k5, k95 = _order_indices(draws)
+    cum_lo = np.full(n, np.nan)
+    cum_hi = np.full(n, np.nan)
     month_draws: list[Array] = []
     month_labels: list[pd.Timestamp] = []
     year_draws: list[Array] = []
@@ -912,6 +915,10 @@ def add_uncertainty(
         ranked = np.sort(np.ascontiguousarray(e.T), axis=1)
         lo[a:b] = ranked[:, k5]
         hi[a:b] = ranked[:, k95]
+        # the residual accumulated since the start of the water year, for cumulative bands
+        ranked = np.sort(np.ascontiguousarray(np.cumsum(e, axis=1, dtype=np.float64).T), axis=1)
+        cum_lo[a:b] = ranked[:, k5]
+        cum_hi[a:b] = ranked[:, k95]
         mk = month_key[a:b]
         mstarts = np.flatnonzero(np.r_[True, mk[1:] != mk[:-1]])
         month_draws.append(np.add.reduceat(e, mstarts, axis=1, dtype=np.float64))
@@ -930,6 +937,8 @@ def add_uncertainty(
     daily = d.copy()
     daily["residual_p05_m3"] = lo
     daily["residual_p95_m3"] = hi
+    daily["cumulative_residual_p05_m3"] = cum_lo
+    daily["cumulative_residual_p95_m3"] = cum_hi
     notes.append(
         f"Monte Carlo: {draws} draws; 5-95% bands; relative errors inflow {errors.inflow:g}, "
         f"rain {errors.rain:g}, evaporation {errors.evaporation:g}, withdrawal "

@@ -55,7 +55,10 @@ class Table:
     def rows(self) -> list[list[str]]:
         """All rows as text."""
         cols = list(self.frame.columns)
-        return [[self.cell(c, v) for c, v in zip(cols, row, strict=True)] for row in self.frame.itertuples(index=False)]
+        return [
+            [self.cell(c, v) for c, v in zip(cols, row, strict=True)]
+            for row in self.frame.itertuples(index=False)
+        ]
 
     def to_json(self) -> dict[str, Any]:
         """Columns and rows with the same (rounded) values, numbers as numbers."""
@@ -77,8 +80,9 @@ class Table:
         return {"title": self.title, "columns": list(self.frame.columns), "rows": rows}
 
 
-def table(id: str, title: str, frame: pd.DataFrame, decimals: dict[str, int] | int = 0,
-          note: str = "") -> Table:
+def table(
+    id: str, title: str, frame: pd.DataFrame, decimals: dict[str, int] | int = 0, note: str = ""
+) -> Table:
     """A :class:`Table` whose float columns are rounded to ``decimals`` (per column or one for all)."""
     frame = frame.copy()
     if isinstance(decimals, int):
@@ -88,8 +92,9 @@ def table(id: str, title: str, frame: pd.DataFrame, decimals: dict[str, int] | i
             frame[c] = frame[c].round(decimals.get(c, 0))
         elif pd.api.types.is_datetime64_any_dtype(frame[c]):
             frame[c] = frame[c].dt.strftime("%Y-%m-%d")
-    return Table(id=id, title=title, frame=frame.reset_index(drop=True), note=note,
-                 decimals=dict(decimals))
+    return Table(
+        id=id, title=title, frame=frame.reset_index(drop=True), note=note, decimals=dict(decimals)
+    )
 
 
 @dataclass(frozen=True)
@@ -219,8 +224,9 @@ def run_site(
             unavailable["balance"] = "needs the storage relation"
         flags = seepage = dynamics = forecast = None
         if balance is not None:
-            flags = _step("flags", lambda: api.find_flags(site, balance=balance,
-                                                           records=records), unavailable)
+            flags = _step(
+                "flags", lambda: api.find_flags(site, balance=balance, records=records), unavailable
+            )
             seepage = _step(
                 "seepage",
                 lambda: api.estimate_seepage(site, balance=balance, flags=flags, records=records),
@@ -343,7 +349,9 @@ def _qa_section(run: SiteRun, year_days: pd.DatetimeIndex) -> Section:
     )
     lo, hi = year_days[0].strftime("%Y-%m-%d"), year_days[-1].strftime("%Y-%m-%d")
     findings = [
-        f for f in rec.findings if f.first is None or (f.first[:10] <= hi and (f.last or f.first)[:10] >= lo)
+        f
+        for f in rec.findings
+        if f.first is None or (f.first[:10] <= hi and (f.last or f.first)[:10] >= lo)
     ]
     finding_frame = pd.DataFrame(
         [
@@ -414,8 +422,13 @@ def _stage_figure(run: SiteRun, days: pd.DatetimeIndex) -> Figure:
     sim_h[sim_v.isna()] = np.nan
     fig, ax = new_figure(height=3.4)
     ax.plot(d.index, d["stage_end_m"], color=PALETTE["observed"], label="observed (end of day)")
-    ax.plot(d.index, sim_h, color=PALETTE["simulated"], ls="--",
-            label="from measured terms only (residual = 0)")
+    ax.plot(
+        d.index,
+        sim_h,
+        color=PALETTE["simulated"],
+        ls="--",
+        label="from measured terms only (residual = 0)",
+    )
     periods = []
     if run.flags is not None:
         for f in run.flags.items:
@@ -455,19 +468,41 @@ def _components_figure(monthly: pd.DataFrame) -> Figure:
     bottom = np.zeros(len(monthly))
     for col, key, hatch in gains:
         v = monthly[col].fillna(0).to_numpy() / 1e3
-        ax.bar(x, v, bottom=bottom, color=PALETTE[key], hatch=hatch, edgecolor="black",
-               lw=0.3, label=key)
+        ax.bar(
+            x,
+            v,
+            bottom=bottom,
+            color=PALETTE[key],
+            hatch=hatch,
+            edgecolor="black",
+            lw=0.3,
+            label=key,
+        )
         bottom += v
     bottom = np.zeros(len(monthly))
     for col, key, hatch in losses:
         v = -monthly[col].fillna(0).to_numpy() / 1e3
-        ax.bar(x, v, bottom=bottom, color=PALETTE[key], hatch=hatch, edgecolor="black",
-               lw=0.3, label=key)
+        ax.bar(
+            x,
+            v,
+            bottom=bottom,
+            color=PALETTE[key],
+            hatch=hatch,
+            edgecolor="black",
+            lw=0.3,
+            label=key,
+        )
         bottom += v
-    ax.plot(x, monthly["storage_change_m3"].to_numpy() / 1e3, "k-o", ms=3,
-            label="storage change")
-    ax.plot(x, monthly["residual_m3"].to_numpy() / 1e3, color=PALETTE["residual"], ls="--",
-            marker="s", ms=3, label="residual")
+    ax.plot(x, monthly["storage_change_m3"].to_numpy() / 1e3, "k-o", ms=3, label="storage change")
+    ax.plot(
+        x,
+        monthly["residual_m3"].to_numpy() / 1e3,
+        color=PALETTE["residual"],
+        ls="--",
+        marker="s",
+        ms=3,
+        label="residual",
+    )
     ax.axhline(0, color="black", lw=0.6)
     ax.set_xticks(x, [m.strftime("%b %Y") for m in monthly.index], rotation=45, ha="right")
     ax.set_ylabel("volume (10³ m³ per month)")
@@ -484,14 +519,21 @@ def _cumulative_figure(run: SiteRun, days: pd.DatetimeIndex) -> Figure | None:
     from .style import PALETTE, new_figure
 
     bal = run.balance
-    cum = getattr(bal, "cumulative_bands", None)
     d = bal.daily.loc[days[0] : days[-1]]
     res = d["residual_m3"].where(d["complete"], 0.0).cumsum() / 1e3
     fig, ax = new_figure(height=3.2)
-    if callable(cum):
-        band = cum(days[0], days[-1])
-        ax.fill_between(band.index, band["p05_m3"] / 1e3, band["p95_m3"] / 1e3,
-                        color=PALETTE["band"], alpha=0.4, hatch="...", label="5–95 % band")
+    if "cumulative_residual_p05_m3" in d:
+        ax.fill_between(
+            d.index,
+            d["cumulative_residual_p05_m3"] / 1e3,
+            d["cumulative_residual_p95_m3"] / 1e3,
+            color=PALETTE["band"],
+            alpha=0.4,
+            hatch="...",
+            edgecolor="#666666",
+            lw=0,
+            label="5–95 % band",
+        )
     ax.plot(res.index, res, color=PALETTE["residual"], label="cumulative residual")
     ax.axhline(0, color="black", lw=0.6)
     ax.set_ylabel("cumulative residual (10³ m³)")
@@ -530,11 +572,21 @@ def _storage_section(run: SiteRun) -> Section:
         "Stage–area–storage relation",
         paragraphs=tuple(paragraphs),
         tables=(
-            table("storage", f"Area and volume at {step:g} m steps", tab,
-                  {"stage_m": 2, "area_ha": 2, "volume_1e3_m3": 1}),
+            table(
+                "storage",
+                f"Area and volume at {step:g} m steps",
+                tab,
+                {"stage_m": 2, "area_ha": 2, "volume_1e3_m3": 1},
+            ),
         ),
-        figures=(Figure("storage", "Area and volume against stage; named levels dashed.",
-                        _png(fig), "Area and volume curves against stage"),),
+        figures=(
+            Figure(
+                "storage",
+                "Area and volume against stage; named levels dashed.",
+                _png(fig),
+                "Area and volume curves against stage",
+            ),
+        ),
     )
 
 
@@ -546,9 +598,16 @@ def _rating_section(run: SiteRun, year_stage: pd.Series) -> Section:
     fit = run.rating
     rows = []
     for name, p in fit.parameter_table().items():
-        rows.append({"parameter": name, "value": p["value"], "stderr": p["stderr"],
-                     "ci95_low": p["ci95"][0], "ci95_high": p["ci95"][1],
-                     "fixed": "fixed" if p["fixed"] else "fitted"})
+        rows.append(
+            {
+                "parameter": name,
+                "value": p["value"],
+                "stderr": p["stderr"],
+                "ci95_low": p["ci95"][0],
+                "ci95_high": p["ci95"][1],
+                "fixed": "fixed" if p["fixed"] else "fitted",
+            }
+        )
     params = pd.DataFrame(rows)
     lo, hi = fit.gauged_range
     h = year_stage.dropna().to_numpy()
@@ -566,11 +625,23 @@ def _rating_section(run: SiteRun, year_stage: pd.Series) -> Section:
         "rating",
         "Outlet rating",
         paragraphs=paragraphs,
-        tables=(table("rating", "Rating parameters (SI) with 95 % confidence intervals", params,
-                      {"value": 4, "stderr": 4, "ci95_low": 4, "ci95_high": 4}),),
-        figures=(Figure("rating", "Gaugings, fitted rating and its 95 % confidence and "
-                        "prediction bands, on linear and log axes.", _png(fig),
-                        "Rating curve with gaugings"),),
+        tables=(
+            table(
+                "rating",
+                "Rating parameters (SI) with 95 % confidence intervals",
+                params,
+                {"value": 4, "stderr": 4, "ci95_low": 4, "ci95_high": 4},
+            ),
+        ),
+        figures=(
+            Figure(
+                "rating",
+                "Gaugings, fitted rating and its 95 % confidence and "
+                "prediction bands, on linear and log axes.",
+                _png(fig),
+                "Rating curve with gaugings",
+            ),
+        ),
     )
 
 
@@ -579,14 +650,18 @@ def _evaporation_section(run: SiteRun, days: pd.DatetimeIndex) -> Section:
         return Section("evaporation", "Evaporation", missing=_missing(run, "evaporation"))
     ev = run.evaporation
     monthly = ev.monthly("mm")
-    monthly = monthly[(monthly.index.start_time >= days[0]) & (monthly.index.start_time <= days[-1])]
+    monthly = monthly[
+        (monthly.index.start_time >= days[0]) & (monthly.index.start_time <= days[-1])
+    ]
     frame = monthly.copy()
     frame.insert(0, "month", [p.strftime("%Y-%m") for p in frame.index])
     methods = [c for c in ev.by_method.columns]
     frame = frame[["month", *methods, "days", "filled_days"]]
     frame.columns = ["month", *[f"{m}_mm" for m in methods], "days", "filled_days"]
-    paragraphs = [f"Lake evaporation in the balance: {ev.method}. Every method the weather allows "
-                  "is shown beside it (monthly totals, mm)."]
+    paragraphs = [
+        f"Lake evaporation in the balance: {ev.method}. Every method the weather allows "
+        "is shown beside it (monthly totals, mm)."
+    ]
     paragraphs += list(ev.notes)
     return Section(
         "evaporation",
@@ -599,8 +674,18 @@ def _evaporation_section(run: SiteRun, days: pd.DatetimeIndex) -> Section:
 def _balance_tables(run: SiteRun, year: int) -> tuple[Table, Table, pd.DataFrame]:
     bal = run.balance
     wy = bal.water_years().reset_index()
-    cols = ["water_year", "complete_days", "inflow_m3", "rain_m3", "evaporation_m3",
-            "outflow_m3", "withdrawal_m3", "release_m3", "storage_change_m3", "residual_m3"]
+    cols = [
+        "water_year",
+        "complete_days",
+        "inflow_m3",
+        "rain_m3",
+        "evaporation_m3",
+        "outflow_m3",
+        "withdrawal_m3",
+        "release_m3",
+        "storage_change_m3",
+        "residual_m3",
+    ]
     band_cols = [c for c in ("residual_p05_m3", "residual_p95_m3") if c in wy]
     annual = wy[cols + band_cols].copy()
     for c in cols[2:] + band_cols:
@@ -644,10 +729,16 @@ def _balance_section(run: SiteRun, year: int, days: pd.DatetimeIndex) -> Section
         figures.append(cum)
     paragraphs = list(run.balance.notes)
     if run.balance.absent_terms:
-        paragraphs.append("Terms with no record, taken as zero: "
-                          + ", ".join(run.balance.absent_terms) + ".")
-    return Section("balance", "Water balance", paragraphs=tuple(paragraphs),
-                   tables=(annual_t, monthly_t), figures=tuple(figures))
+        paragraphs.append(
+            "Terms with no record, taken as zero: " + ", ".join(run.balance.absent_terms) + "."
+        )
+    return Section(
+        "balance",
+        "Water balance",
+        paragraphs=tuple(paragraphs),
+        tables=(annual_t, monthly_t),
+        figures=tuple(figures),
+    )
 
 
 def _flags_section(run: SiteRun, days: pd.DatetimeIndex) -> Section:
@@ -669,8 +760,16 @@ def _flags_section(run: SiteRun, days: pd.DatetimeIndex) -> Section:
             }
             for f in items
         ],
-        columns=["start", "end", "kind", "volume_1e3_m3", "depth_mm", "significance",
-                 "likely cause", "accepted correction"],
+        columns=[
+            "start",
+            "end",
+            "kind",
+            "volume_1e3_m3",
+            "depth_mm",
+            "significance",
+            "likely cause",
+            "accepted correction",
+        ],
     )
     paragraphs = [
         f"{len(run.flags.items)} flags over the whole record, {len(items)} touching the reported "
@@ -681,13 +780,21 @@ def _flags_section(run: SiteRun, days: pd.DatetimeIndex) -> Section:
     if run.flags.corrections:
         paragraphs.append(
             "Corrections accepted in the site file and applied: "
-            + "; ".join(f"{c.series} {c.value:+g} from {c.start} ({c.reason or 'no reason given'})"
-                        for c in run.flags.corrections)
+            + "; ".join(
+                f"{c.series} {c.value:+g} from {c.start} ({c.reason or 'no reason given'})"
+                for c in run.flags.corrections
+            )
         )
     tables = ()
     if len(frame):
-        tables = (table("flags", f"Flags touching water year ({lo} to {hi})", frame,
-                        {"volume_1e3_m3": 1, "depth_mm": 1, "significance": 1}),)
+        tables = (
+            table(
+                "flags",
+                f"Flags touching water year ({lo} to {hi})",
+                frame,
+                {"volume_1e3_m3": 1, "depth_mm": 1, "significance": 1},
+            ),
+        )
     return Section("flags", "Unexplained residuals", paragraphs=tuple(paragraphs), tables=tables)
 
 
@@ -696,14 +803,30 @@ def _seepage_section(run: SiteRun) -> Section:
         return Section("seepage", "Seepage", missing=_missing(run, "seepage", "balance"))
     s = run.seepage
     rates = s.rate_table(levels=dict(run.site.levels))
-    keep = ["name", "stage_m", "m3_per_day", "m3_per_day_low", "m3_per_day_high", "L_per_s",
-            "mm_per_day", "within_fitted_stages"]
+    keep = [
+        "name",
+        "stage_m",
+        "m3_per_day",
+        "m3_per_day_low",
+        "m3_per_day_high",
+        "L_per_s",
+        "mm_per_day",
+        "within_fitted_stages",
+    ]
     rates = rates[keep].copy()
     rates["within_fitted_stages"] = np.where(rates["within_fitted_stages"], "yes", "no")
     ci = s.conf_int()
     params = pd.DataFrame(
-        [{"parameter": n, "value": s.params[n], "stderr": s.stderr[n], "ci95_low": ci[n][0],
-          "ci95_high": ci[n][1]} for n in s.param_names]
+        [
+            {
+                "parameter": n,
+                "value": s.params[n],
+                "stderr": s.stderr[n],
+                "ci95_low": ci[n][0],
+                "ci95_high": ci[n][1],
+            }
+            for n in s.param_names
+        ]
     )
     paragraphs = [
         f"Seepage (net loss to the ground; positive leaves the lake), model {s.model}, from "
@@ -718,11 +841,25 @@ def _seepage_section(run: SiteRun) -> Section:
         "Seepage",
         paragraphs=tuple(paragraphs),
         tables=(
-            table("seepage-params", "Seepage law parameters (SI: k in m²/s, h0 in m)", params,
-                  {"value": 6, "stderr": 6, "ci95_low": 6, "ci95_high": 6}),
-            table("seepage-rates", "Seepage at the mean and named stages, with 95 % CI", rates,
-                  {"stage_m": 2, "m3_per_day": 0, "m3_per_day_low": 0, "m3_per_day_high": 0,
-                   "L_per_s": 1, "mm_per_day": 2}),
+            table(
+                "seepage-params",
+                "Seepage law parameters (SI: k in m²/s, h0 in m)",
+                params,
+                {"value": 6, "stderr": 6, "ci95_low": 6, "ci95_high": 6},
+            ),
+            table(
+                "seepage-rates",
+                "Seepage at the mean and named stages, with 95 % CI",
+                rates,
+                {
+                    "stage_m": 2,
+                    "m3_per_day": 0,
+                    "m3_per_day_low": 0,
+                    "m3_per_day_high": 0,
+                    "L_per_s": 1,
+                    "mm_per_day": 2,
+                },
+            ),
         ),
     )
 
@@ -732,8 +869,11 @@ def _seepage_section(run: SiteRun) -> Section:
 # --------------------------------------------------------------------------------------------
 def _headline(run: SiteRun, year: int, days: pd.DatetimeIndex) -> dict[str, Any]:
     """Headline numbers of the year (rounded as shown)."""
-    out: dict[str, Any] = {"water_year": year, "first_day": days[0].strftime("%Y-%m-%d"),
-                           "last_day": days[-1].strftime("%Y-%m-%d")}
+    out: dict[str, Any] = {
+        "water_year": year,
+        "first_day": days[0].strftime("%Y-%m-%d"),
+        "last_day": days[-1].strftime("%Y-%m-%d"),
+    }
     if run.balance is not None:
         wy = run.balance.water_years()
         if year in wy.index:
@@ -768,8 +908,10 @@ def _r(value: Any, decimals: int) -> float | None:
 
 def _year_in_words(run: SiteRun, head: dict[str, Any], previous: dict[str, Any]) -> list[str]:
     name = run.site.site.name
-    out = [f"This report covers water year {head['water_year']} of {name}, "
-           f"{head['first_day']} to {head['last_day']}."]
+    out = [
+        f"This report covers water year {head['water_year']} of {name}, "
+        f"{head['first_day']} to {head['last_day']}."
+    ]
     if run.balance is None:
         out.append("The water balance could not be closed for this site; see the sections below.")
         return out
@@ -777,29 +919,42 @@ def _year_in_words(run: SiteRun, head: dict[str, Any], previous: dict[str, Any])
     pct = head.get("closure_percent")
     if res is not None:
         sign = "an unexplained gain" if res > 0 else "an unexplained loss"
-        text = (f"The balance closed with {sign} of {_fmt(abs(res) / 1e3, 1)} thousand m³ "
-                f"({_fmt(head.get('residual_mm') or math.nan, 1)} mm over the lake)")
+        text = (
+            f"The balance closed with {sign} of {_fmt(abs(res) / 1e3, 1)} thousand m³ "
+            f"({_fmt(head.get('residual_mm') or math.nan, 1)} mm over the lake)"
+        )
         if pct is not None:
             text += f", {abs(pct):.1f} % of the measured gains (gauged inflow and rain)"
         if "residual_p05_m3" in head and head["residual_p05_m3"] is not None:
-            text += (f"; the 5–95 % band of the residual is {_fmt(head['residual_p05_m3'] / 1e3, 1)}"
-                     f" to {_fmt(head['residual_p95_m3'] / 1e3, 1)} thousand m³")
+            text += (
+                f"; the 5–95 % band of the residual is {_fmt(head['residual_p05_m3'] / 1e3, 1)}"
+                f" to {_fmt(head['residual_p95_m3'] / 1e3, 1)} thousand m³"
+            )
             lo, hi = head["residual_p05_m3"], head["residual_p95_m3"]
-            text += (", so the measured terms cannot explain it" if lo > 0 or hi < 0
-                     else ", so it cannot be told from zero")
+            text += (
+                ", so the measured terms cannot explain it"
+                if lo > 0 or hi < 0
+                else ", so it cannot be told from zero"
+            )
         out.append(text + ".")
     if head.get("complete_days") is not None:
-        out.append(f"{head['complete_days']} days had every term measured; the others are left "
-                   "out of the totals, never counted as zero.")
+        out.append(
+            f"{head['complete_days']} days had every term measured; the others are left "
+            "out of the totals, never counted as zero."
+        )
     if previous.get("residual_m3") is not None and res is not None:
         change = res - previous["residual_m3"]
-        out.append(f"Compared with water year {previous['water_year']}, the residual changed by "
-                   f"{_fmt(change / 1e3, 1)} thousand m³.")
+        out.append(
+            f"Compared with water year {previous['water_year']}, the residual changed by "
+            f"{_fmt(change / 1e3, 1)} thousand m³."
+        )
     if head.get("stage_end_m") is not None:
         out.append(f"The year ended at stage {head['stage_end_m']:.2f} m on the gauge datum.")
     if head.get("seepage_m3_per_day") is not None:
-        out.append(f"Estimated seepage at the mean stage: {_fmt(head['seepage_m3_per_day'])} m³/d "
-                   "(net loss to the ground).")
+        out.append(
+            f"Estimated seepage at the mean stage: {_fmt(head['seepage_m3_per_day'])} m³/d "
+            "(net loss to the ground)."
+        )
     return out
 
 
@@ -844,8 +999,11 @@ def build_sections(run: SiteRun, year: int) -> tuple[list[Section], dict[str, An
     index = run.records.daily.index
     keys = water_year_of(index, run.site.site.water_year_start)
     days = index[keys == year]
-    stage = (run.records.daily["stage"].loc[days[0] : days[-1]]
-             if "stage" in run.records.daily else pd.Series(dtype=float))
+    stage = (
+        run.records.daily["stage"].loc[days[0] : days[-1]]
+        if "stage" in run.records.daily
+        else pd.Series(dtype=float)
+    )
     sections = [
         _balance_section(run, year, days),
         _flags_section(run, days),
@@ -937,8 +1095,7 @@ def make_report(
         folder / "tables.xlsx", {t.id: t.frame.set_index(t.frame.columns[0]) for t in tables}
     )
     key_numbers = [
-        {"key": k, "label": label, "unit": unit,
-         "text": f"{head[k]:.{d}f}"}
+        {"key": k, "label": label, "unit": unit, "text": f"{head[k]:.{d}f}"}
         for k, label, unit, d in _KEY_NUMBERS
         if head.get(k) is not None
     ]
@@ -972,10 +1129,20 @@ def make_report(
                 "title": s.title,
                 "paragraphs": s.paragraphs,
                 "missing": s.missing,
-                "figures": [{"id": f.id, "caption": f.caption, "alt": f.alt,
-                             "png": png_base64(f.png)} for f in s.figures],
-                "tables": [{"id": t.id, "title": t.title, "columns": list(t.frame.columns),
-                            "rows": t.rows(), "note": t.note} for t in s.tables],
+                "figures": [
+                    {"id": f.id, "caption": f.caption, "alt": f.alt, "png": png_base64(f.png)}
+                    for f in s.figures
+                ],
+                "tables": [
+                    {
+                        "id": t.id,
+                        "title": t.title,
+                        "columns": list(t.frame.columns),
+                        "rows": t.rows(),
+                        "note": t.note,
+                    }
+                    for t in s.tables
+                ],
             }
             for s in sections
         ],
@@ -1008,13 +1175,15 @@ def _dynamics_headline(run: SiteRun) -> dict[str, Any]:
 
 def _dynamics_section(run: SiteRun) -> Section:
     if run.dynamics is None:
-        return Section("dynamics", "Residence, response and equilibrium",
-                       missing=_missing(run, "dynamics"))
+        return Section(
+            "dynamics", "Residence, response and equilibrium", missing=_missing(run, "dynamics")
+        )
     dyn = run.dynamics
     res = dyn.residence.reset_index()
     res["water_year"] = res["water_year"].astype(str)
-    res = res[["water_year", "mean_storage_m3", "residence_outflow_days",
-               "residence_losses_days"]].copy()
+    res = res[
+        ["water_year", "mean_storage_m3", "residence_outflow_days", "residence_losses_days"]
+    ].copy()
     res["mean_storage_1e3_m3"] = res.pop("mean_storage_m3") / 1e3
     resp = dyn.response.reset_index()
     resp = resp.rename(columns={resp.columns[0]: "stage"})
@@ -1024,9 +1193,16 @@ def _dynamics_section(run: SiteRun) -> Section:
     eq = dyn.equilibrium
     paragraphs = [
         f"For a sustained inflow of {dyn.inflow_m3s:.3f} m³/s the lake settles at "
-        + (f"{eq.stage_m:.2f} m" if math.isfinite(eq.stage_m) else f"no stage in range ({eq.status})")
-        + (f", with a response time of {eq.response_time_days:.0f} days there"
-           if math.isfinite(eq.response_time_s) else "")
+        + (
+            f"{eq.stage_m:.2f} m"
+            if math.isfinite(eq.stage_m)
+            else f"no stage in range ({eq.status})"
+        )
+        + (
+            f", with a response time of {eq.response_time_days:.0f} days there"
+            if math.isfinite(eq.response_time_s)
+            else ""
+        )
         + ". The steady state depends on the outlet law, the losses and the inflow; the lake's "
         "area sets how long it takes to get there.",
         f"The outlet stops flowing below {dyn.cease_to_flow_stage_m:.2f} m; a sustained inflow of "
@@ -1044,14 +1220,25 @@ def _dynamics_section(run: SiteRun) -> Section:
         "Residence, response and equilibrium",
         paragraphs=tuple(paragraphs),
         tables=(
-            table("residence", "Residence time by water year (days)", res,
-                  {"residence_outflow_days": 0, "residence_losses_days": 0,
-                   "mean_storage_1e3_m3": 1},
-                  note="Mean volume over mean outlet outflow, and over mean total losses."),
-            table("response", "Response (e-folding) time at chosen stages", resp,
-                  {"stage_m": 2, "response_time_days": 1}),
-            table("limits", "Largest sustained inflow that keeps the lake at or below each level",
-                  limits, {"stage_m": 2, "max_inflow_m3s": 3}),
+            table(
+                "residence",
+                "Residence time by water year (days)",
+                res,
+                {"residence_outflow_days": 0, "residence_losses_days": 0, "mean_storage_1e3_m3": 1},
+                note="Mean volume over mean outlet outflow, and over mean total losses.",
+            ),
+            table(
+                "response",
+                "Response (e-folding) time at chosen stages",
+                resp,
+                {"stage_m": 2, "response_time_days": 1},
+            ),
+            table(
+                "limits",
+                "Largest sustained inflow that keeps the lake at or below each level",
+                limits,
+                {"stage_m": 2, "max_inflow_m3s": 3},
+            ),
         ),
     )
 
