@@ -475,6 +475,10 @@ def lake_dynamics(
     balance: Balance | None = None,
     use_seepage: bool = True,
     stages: dict[str, float] | None = None,
+    records: Records | None = None,
+    storage: StorageCurve | None = None,
+    rating: RatingFit | None = None,
+    seepage: SeepageFit | None = None,
 ) -> Dynamics:
     """Residence, response and equilibrium analysis of ``site``, with optional what-ifs.
 
@@ -498,6 +502,9 @@ def lake_dynamics(
         Named stages (m) for the response times, added to the levels and the record's 10th,
         50th and 90th percentile stages.
 
+    records, storage, rating, seepage : optional
+        Results already at hand (default: loaded, fitted or estimated from the site).
+
     Returns
     -------
     Dynamics
@@ -515,15 +522,19 @@ def lake_dynamics(
     from .errors import ConfigError, LakebalanceError
     from .units import SECONDS_PER_DAY
 
-    storage = load_storage(site)
-    rating = fit_rating(site) if site.outlet is not None else None
-    records = load_records(site)
+    if storage is None:
+        storage = load_storage(site)
+    if rating is None and site.outlet is not None:
+        rating = fit_rating(site)
+    if records is None:
+        records = load_records(site)
     if balance is None:
         balance = close_balance(site, records=records, storage=storage, rating=rating)
     d = balance.daily
     notes: list[str] = []
-    seepage = None
-    if use_seepage:
+    if not use_seepage:
+        seepage = None
+    elif seepage is None:
         try:
             seepage = estimate_seepage(site, balance=balance, records=records)
         except LakebalanceError as exc:

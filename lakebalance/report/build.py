@@ -235,7 +235,15 @@ def run_site(
         if balance is not None:
             dynamics = _step(
                 "dynamics",
-                lambda: api.lake_dynamics(site, balance=balance),
+                lambda: api.lake_dynamics(
+                    site,
+                    balance=balance,
+                    records=records,
+                    storage=storage,
+                    rating=rating,
+                    seepage=seepage,
+                    use_seepage=seepage is not None,
+                ),
                 unavailable,
             )
             forecast = _step(
