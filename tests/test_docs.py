@@ -6,8 +6,8 @@ import dataclasses
 import re
 
 import pytest
-
 from conftest import ROOT
+
 from lakebalance import config
 
 SECTIONS = {
