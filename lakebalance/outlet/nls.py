@@ -19,8 +19,8 @@ computed from the singular value decomposition of :math:`J` for numerical stabil
 References
 ----------
 Bates, D. M. and Watts, D. G. (1988). Nonlinear Regression Analysis and Its Applications. Wiley.
-Moré, J. J. (1978). The Levenberg-Marquardt algorithm: implementation and theory. Lecture Notes in
-Mathematics 630, Springer, 105-116.
+Moré, J. J. (1978). The Levenberg-Marquardt algorithm: implementation and theory. In: Watson,
+G. A. (ed.), Numerical Analysis (LNM 630), Springer, 105-116.
 """
 
 from __future__ import annotations
