@@ -19,6 +19,7 @@ from __future__ import annotations
 
 import argparse
 import importlib.util
+import json
 import os
 import re
 import shutil
@@ -99,8 +100,10 @@ def bench_one(tmp: Path, args: argparse.Namespace) -> None:
     result = make_report(site, tmp / "one_warm", **_options(args))
     warm = time.perf_counter() - t0
     years = result.headline.get("water_year")
+    annual = json.loads(result.json.read_text(encoding="utf-8"))["tables"]["annual"]["rows"]
     print(
-        f"one site, 20 water years (reported year {years}), full report"
+        f"one site, {len(annual)} water years {annual[0][0]}-{annual[-1][0]} (reported {years}), "
+        "full report"
         f"{' ' + str(_options(args)) if _options(args) else ' (site-file draws and members)'}:"
     )
     print(f"  command in a fresh process: {cold:6.2f} s   (target <= {TARGET_ONE_S:.0f} s)")
