@@ -199,6 +199,7 @@ class _Eval:
     def __init__(self, t: LakeTables, variant: np.ndarray) -> None:
         self.lo = t.stage0_m
         self.inv_step = 1.0 / t.step_m
+        self.step_m = t.step_m
         self.nmax = t.size - 2
         self.offset = np.asarray(variant, dtype=np.intp) * t.size
         self.inv = t._inv_area
@@ -254,12 +255,12 @@ def _update(
     inflow: np.ndarray,
     demand: np.ndarray,
     dt: float | np.ndarray,
-) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """The fixed-point map at ``c``: the exact solution over ``dt`` of the equation linearised
     about ``c``.
 
     Returns (new stage, linear model at ``h0`` i.e. ``g(c) + g'(c)(h0 - c)``, draw at ``c``,
-    weight ``E phi`` of the remainder ``g(h0)`` minus that linear model).
+    weight ``E phi`` of the remainder ``g(h0)`` minus that linear model, ``z = g'(c) dt``).
     """
     g, dg, draw = ev(c, a, inflow, demand)
     z = dg * dt
@@ -271,7 +272,7 @@ def _update(
     # E phi weights the remainder by how long the path stays away from c: ~dt for a slow lake,
     # ~0 for a stiff one that reaches c early in the step.
     weight = e * phi
-    return new, g + dg * (h0 - c), draw, weight
+    return new, g + dg * (h0 - c), draw, weight, z
 
 
 def _day_step(
@@ -292,31 +293,46 @@ def _day_step(
     than ``tol_m`` go on with a safeguarded iteration (bracketing, bisection fallback). The error
     estimate is the remainder of the linear model at ``h0`` times the weight ``E phi``.
     """
-    g0, _, draw = ev(h0, a, inflow, demand)
-    c, lin0, draw, weight = _update(ev, h0, h0, a, inflow, demand, dt)
+    c, g0, draw, weight, zc = _update(ev, h0, h0, a, inflow, demand, dt)
+    lin0 = g0
     prev = h0
     for _ in range(iterations):
         prev = c
-        c, lin0, draw, weight = _update(ev, h0, c, a, inflow, demand, dt)
+        c, lin0, draw, weight, zc = _update(ev, h0, c, a, inflow, demand, dt)
     bad = ~(np.abs(c - prev) <= tol_m)
     if bad.any():
         idx = np.flatnonzero(bad)
-        c_b, lin_b, draw_b, w_b = _safeguarded(
-            ev.subset(idx),
-            h0[idx],
-            g0[idx],
-            c[idx],
-            a[idx],
-            inflow[idx],
-            demand[idx],
-            _pick(dt, idx),
-            tol_m,
-            span_m,
-        )
         c, lin0, draw, weight = c.copy(), lin0.copy(), draw.copy(), weight.copy()
-        c[idx], lin0[idx], draw[idx], weight[idx] = c_b, lin_b, draw_b, w_b
+        zc = zc.copy()
+        sub = ev.subset(idx)
+        h0_b, a_b, in_b, dem_b, dt_b = h0[idx], a[idx], inflow[idx], demand[idx], _pick(dt, idx)
+        c_b = c[idx]
+        for _ in range(6):  # plain iterations go on for the members still moving
+            new, lin_b, draw_b, w_b, z_b = _update(sub, h0_b, c_b, a_b, in_b, dem_b, dt_b)
+            moved = np.abs(new - c_b)
+            c_b = new
+            c[idx], lin0[idx], draw[idx], weight[idx], zc[idx] = c_b, lin_b, draw_b, w_b, z_b
+            keep = ~(moved <= tol_m)
+            if not keep.any():
+                break
+            idx, sub = idx[keep], sub.subset(np.flatnonzero(keep))
+            h0_b, a_b, in_b, dem_b = h0_b[keep], a_b[keep], in_b[keep], dem_b[keep]
+            dt_b, c_b = _pick(dt_b, np.flatnonzero(keep)), c_b[keep]
+        else:
+            c_s, lin_s, draw_s, w_s, z_s = _safeguarded(
+                sub, h0_b, g0[idx], c_b, a_b, in_b, dem_b, dt_b, tol_m, span_m
+            )
+            c[idx], lin0[idx], draw[idx], weight[idx], zc[idx] = c_s, lin_s, draw_s, w_s, z_s
     # the remainder falls off as the square of the distance to c along the path: a third of it
-    est = np.abs((g0 - lin0) * weight) / 3.0
+    rem = np.abs(g0 - lin0)
+    est = rem * weight / 3.0
+    # a path that starts much slower than the linear model (rising from a slow regime into a
+    # stiff one) arrives late and has not relaxed by the end: the move times the relative
+    # remainder, damped by the relaxation left after the estimated arrival time
+    move = np.abs(c - h0)
+    speed = np.abs(g0) + np.abs(lin0) + 1e-300
+    late = np.maximum(1.0 - move / (np.abs(g0) + 1e-300) / dt, 0.0)
+    est = np.maximum(est, move * (rem / speed) * np.exp(np.maximum(zc, -700.0) * late))
     return c, draw, est
 
 
@@ -332,7 +348,7 @@ def _safeguarded(
     tol_m: float,
     span_m: float,
     max_iter: int = 60,
-) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """Fixed-point iteration kept inside a bracket of the step-end stage.
 
     In the coordinate ``x = s (h - h0)`` (``s`` the sign of ``g(h0)``) the end stage lies in
@@ -346,7 +362,7 @@ def _safeguarded(
     for _ in range(max_iter):
         cc = h0 + s * x
         g, _, _ = ev(cc, a, inflow, demand)
-        new, _, _, _ = _update(ev, h0, cc, a, inflow, demand, dt)
+        new, _, _, _, _ = _update(ev, h0, cc, a, inflow, demand, dt)
         past = s * g < 0.0
         short = (s * (new - cc) > 0.0) & ~past
         lo = np.where(short, np.maximum(lo, x), lo)
@@ -359,8 +375,8 @@ def _safeguarded(
         if done.all():
             break
     c = h0 + s * x
-    _, lin0, draw, weight = _update(ev, h0, c, a, inflow, demand, dt)
-    return c, lin0, draw, weight
+    _, lin0, draw, weight, z = _update(ev, h0, c, a, inflow, demand, dt)
+    return c, lin0, draw, weight, z
 
 
 def _refine(
@@ -441,17 +457,23 @@ def _adaptive(
             break
         dtm = np.minimum(step[ids], rem[ids])
         c, draw, est = _day_step(
-            ev.subset(ids), h[ids], a[ids], inflow[ids], demand[ids], dtm, iterations, tol_m, span_m
+            ev.subset(ids), h[ids], a[ids], inflow[ids], demand[ids], dtm, 1, tol_m, span_m
         )
         # budget: a share of err_m in proportion to the step, plus 1e-4 of the move (the tables'
-        # piecewise-linear slopes put a floor under the estimate of very short steps)
-        ok = (est <= err_m * dtm / total_s + 1e-4 * np.abs(c - h[ids])) | (dtm <= min_step_s)
+        # piecewise-linear slopes put a floor under the estimate of very short steps); a step
+        # that moves less than a few grid cells is at the tables' own resolution
+        move = np.abs(c - h[ids])
+        budget = err_m * dtm / total_s + 1e-4 * move
+        ok = (est <= budget) | (dtm <= min_step_s) | (move <= 4.0 * ev.step_m)
+        # step-size control: the estimate grows as the cube of the step on smooth stretches
+        with np.errstate(divide="ignore"):
+            factor = np.clip(0.9 * np.cbrt(budget / est), 0.2, 5.0)
         acc = ids[ok]
         h[acc] = np.maximum(c[ok], bottom_m)
         rem[acc] = np.where(rem[acc] - dtm[ok] <= 1e-9 * total_s, 0.0, rem[acc] - dtm[ok])
         drawn[acc] += draw[ok] * dtm[ok]
-        step[acc] = 2.0 * dtm[ok]
-        step[ids[~ok]] = 0.5 * dtm[~ok]
+        step[acc] = dtm[ok] * factor[ok]
+        step[ids[~ok]] = dtm[~ok] * np.minimum(factor[~ok], 0.5)
     return h, drawn / total_s
 
 
@@ -494,8 +516,8 @@ def simulate(
     levels: dict[str, float] | None = None,
     substeps: int = 1,
     iterations: int = 2,
-    tol_m: float = 1e-7,
-    err_m: float = 1e-5,
+    tol_m: float = 1e-5,
+    err_m: float = 1e-4,
     day_s: float = SECONDS_PER_DAY,
     progress: Callable[[int], None] | None = None,
 ) -> EngineResult:
@@ -581,7 +603,7 @@ def simulate(
             rough = est > err_m / substeps
             if rough.any():
                 idx = np.flatnonzero(rough)
-                h_r, draw_r = _refine(
+                h_r, draw_r = _adaptive(
                     ev.subset(idx),
                     h_prev[idx],
                     a[idx],
