@@ -113,6 +113,29 @@ def bench_one(tmp: Path, args: argparse.Namespace) -> None:
         print(f"  note: {line}")
 
 
+def _burn(n: int) -> int:
+    total = 0
+    for i in range(n):
+        total += i * i
+    return total
+
+
+def free_core_ratio(n: int = 4_000_000) -> float:
+    """Control: the same pure-Python job twice on 2 processes over once in this one (about 1.0
+    when two cores are free, about 2.0 when other work holds one of them)."""
+    from concurrent.futures import ProcessPoolExecutor
+
+    t0 = time.perf_counter()
+    _burn(n)
+    one = time.perf_counter() - t0
+    with ProcessPoolExecutor(2) as pool:
+        pool.submit(_burn, 10).result()  # start the workers before timing
+        t0 = time.perf_counter()
+        list(pool.map(_burn, [n, n]))
+        two = time.perf_counter() - t0
+    return two / one
+
+
 def _cpu() -> float:
     t = os.times()
     return t.user + t.system + t.children_user + t.children_system
@@ -123,6 +146,7 @@ def bench_batch(tmp: Path, args: argparse.Namespace) -> None:
 
     sites = make_sites(tmp / "sites", args.sites)
     opts = _options(args)
+    control_before = free_core_ratio()
     c0, t0 = _cpu(), time.perf_counter()
     serial = run_batch(sites, tmp / "serial", workers=1, options=opts)
     t_serial = time.perf_counter() - t0
@@ -133,6 +157,7 @@ def bench_batch(tmp: Path, args: argparse.Namespace) -> None:
     t_parallel = time.perf_counter() - t0
     cpu_parallel = _cpu() - c0
     load_parallel = os.getloadavg()[0]
+    control_after = free_core_ratio()
     bad = len(serial.failed) + len(parallel.failed)
     same = all(
         a.headline == b.headline for a, b in zip(serial.outcomes, parallel.outcomes, strict=True)
@@ -152,6 +177,10 @@ def bench_batch(tmp: Path, args: argparse.Namespace) -> None:
     print(
         f"  cores: {os.cpu_count()}; 1-minute load average after each run: "
         f"{load_serial:.1f}, {load_parallel:.1f}"
+    )
+    print(
+        "  control, a pure-Python job twice on 2 processes / once on 1 (1.0 = two free cores, "
+        f"2.0 = one): {control_before:.2f} before, {control_after:.2f} after"
     )
 
 
