@@ -350,9 +350,9 @@ NOTE = (
 
 
 def _z(alpha: float) -> float:
-    from scipy.stats import norm
+    from scipy.special import ndtri as _ndtri  # standard normal quantile; lighter than scipy.stats
 
-    return float(norm.ppf(1.0 - alpha / 2.0))
+    return float(_ndtri(1.0 - alpha / 2.0))
 
 
 # --------------------------------------------------------------------------------------------
