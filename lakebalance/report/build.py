@@ -426,7 +426,15 @@ def _stage_figure(run: SiteRun, days: pd.DatetimeIndex) -> Figure:
 
     d = run.balance.daily.loc[days[0] : days[-1]]
     sim_v = _simulated_storage(d)
-    sim_h = pd.Series(np.asarray(run.storage.stage(sim_v.to_numpy()), float), index=d.index)
+    with warnings.catch_warnings(record=True) as outside:
+        warnings.simplefilter("always")
+        sim_h = pd.Series(np.asarray(run.storage.stage(sim_v.to_numpy()), float), index=d.index)
+    note = (
+        " The simulated storage left the storage relation's range on some days; there its stage "
+        f"follows the relation's '{run.storage.below}'/'{run.storage.above}' policy."
+        if outside
+        else ""
+    )
     sim_h[sim_v.isna()] = np.nan
     fig, ax = new_figure(height=3.4)
     ax.plot(d.index, d["stage_end_m"], color=PALETTE["observed"], label="observed (end of day)")
@@ -455,7 +463,7 @@ def _stage_figure(run: SiteRun, days: pd.DatetimeIndex) -> Figure:
     return Figure(
         "stage",
         "Observed stage and the stage the measured terms alone would give (each stretch of "
-        "complete days starts from the observed storage). Shaded: flagged residuals.",
+        "complete days starts from the observed storage). Shaded: flagged residuals." + note,
         _png(fig),
         "Line chart of observed and simulated stage over the water year",
     )
@@ -1047,7 +1055,7 @@ def make_report(
     members: int | None = None,
     progress: bool = False,
 ) -> ReportResult:
-    """Run every step on one site and write its report to ``out_dir/<site>/``.
+    """Run every step on one site and write its report into the folder ``out_dir``.
 
     Writes ``report.html`` (self-contained: figures embedded, no network needed), ``summary.json``
     (headline numbers, every table, provenance), ``tables.xlsx`` and one CSV per table. The same
