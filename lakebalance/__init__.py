@@ -61,6 +61,12 @@ _EXPORTS = {
     "select_days": "lakebalance.seepage",
     "read_table": "lakebalance.io.tables",
     "SeriesInfo": "lakebalance.records",
+    "forecast_drawdown": "lakebalance.api",
+    "drawdown_history": "lakebalance.api",
+    "Forecast": "lakebalance.drawdown",
+    "LevelOdds": "lakebalance.drawdown",
+    "run_forecast": "lakebalance.drawdown",
+    "build_forcing": "lakebalance.drawdown",
 }
 
 __all__ = ["__version__", *_EXPORTS]

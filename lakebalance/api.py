@@ -428,8 +428,9 @@ def close_balance(
         water_year_start=site.site.water_year_start,
     )
     outflow = rating.discharge if rating is not None else None
+    volume_fn, area_fn = _storage_for_stage(site, storage, daily["stage"])
     balance = close_daily(
-        terms, volume_fn=storage.volume, area_fn=storage.area, outflow_fn=outflow, options=options
+        terms, volume_fn=volume_fn, area_fn=area_fn, outflow_fn=outflow, options=options
     )
     n_draws = site.uncertainty.draws if draws is None else int(draws)
     if n_draws > 0:
@@ -452,7 +453,7 @@ def close_balance(
                 notes.append("rating covariance not finite: rating parameter error left out")
         balance = add_uncertainty(
             balance,
-            area_fn=storage.area,
+            area_fn=area_fn,
             outflow_fn=outflow,
             outlet=outlet,
             errors=term_errors(site, records),
@@ -764,3 +765,321 @@ def _pd_series(values, index):
     import pandas as pd
 
     return pd.Series(values, index=index)
+
+
+def _storage_for_stage(site: Site, storage: StorageCurve, stage_m: _pd.Series):
+    """The storage relation's volume and area functions for the balance of ``stage_m`` (m).
+
+    The stage record is checked against the relation once: a record that lies wholly outside it
+    is a :class:`~lakebalance.errors.RangeError` (the two are not on one datum, or the stage is
+    in the wrong unit), and days outside it give one
+    :class:`~lakebalance.errors.ExtrapolationWarning` counted in days (or the relation's
+    ``"error"`` policy raises). The functions returned do not warn again, so that the many
+    evaluations of one day (boundaries, quadrature nodes, Monte Carlo) are not each reported.
+    """
+    import numpy as np
+
+    from .errors import RangeError
+
+    h = stage_m.to_numpy(dtype=float)
+    h = h[np.isfinite(h)]
+    lo, hi = float(storage.min_stage_m), float(storage.max_stage_m)
+    if h.size and not np.any((h >= lo) & (h <= hi)):
+        where = site.storage.file if site.storage is not None and site.storage.file else site.path
+        raise RangeError(
+            f"the stage record ({h.min():.4g} to {h.max():.4g} m) lies wholly outside the storage "
+            f"relation ({lo:.6g} to {hi:.6g} m): are both on the gauge datum (a table's stage "
+            "column is taken as stage, not elevation) and is the stage series in its declared "
+            "unit?",
+            file=where,
+        )
+    if h.size:
+        storage.area(h)  # one warning (or the "error" policy) for the days outside
+
+    def volume_fn(x):
+        return storage.volume(x, warn=False)
+
+    def area_fn(x):
+        return storage.area(x, warn=False)
+
+    return volume_fn, area_fn
+
+
+# ---- drawdown ---------------------------------------------------------------------------------
+if TYPE_CHECKING:  # pragma: no cover
+    from .drawdown import Forecast
+
+__all__ += ["forecast_drawdown", "drawdown_history"]
+
+
+def drawdown_history(
+    site: Site, records: Records, evaporation_m: _pd.Series | None = None
+) -> _pd.DataFrame:
+    """The daily history the drawdown scenarios draw from (SI).
+
+    Columns ``inflow_m3s`` (sum of the tributaries, m³/s), ``rain_m`` (mean of the gauges, m per
+    day), ``evaporation_m`` (lake evaporation, m per day: ``evaporation_m`` when given, else
+    :func:`lake_evaporation` when weather is recorded), ``withdrawal_m3s`` and ``release_m3s``
+    (m³/s). A term without a record is left out (the scenarios take it as zero).
+    """
+    import pandas as pd
+
+    daily = records.daily
+    cols: dict[str, pd.Series] = {}
+    if records.has("inflow"):
+        cols["inflow_m3s"] = records.total("inflow")
+    if records.has("rain"):
+        cols["rain_m"] = daily[records.keys("rain")].mean(axis=1, skipna=True)
+    if evaporation_m is None:
+        from .evaporation.lake import WEATHER_ROLES
+
+        if any(records.has(r) for r in WEATHER_ROLES if r != "rain"):
+            evaporation_m = lake_evaporation(site, records).depth_m
+    if evaporation_m is not None:
+        cols["evaporation_m"] = evaporation_m.reindex(daily.index)
+    if records.has("withdrawal"):
+        cols["withdrawal_m3s"] = records.total("withdrawal")
+    if records.has("release"):
+        cols["release_m3s"] = records.total("release")
+    return pd.DataFrame(cols, index=daily.index)
+
+
+def forecast_drawdown(
+    site: Site,
+    start: str | None = None,
+    days: int | None = None,
+    scenario: str | None = None,
+    members: int | None = None,
+    rng: _np.random.Generator | None = None,
+    *,
+    seed: int | None = None,
+    start_stage_m: float | None = None,
+    records: Records | None = None,
+    storage: StorageCurve | None = None,
+    rating: RatingFit | None = None,
+    seepage: SeepageFit | None = None,
+    evaporation_m: _pd.Series | None = None,
+    progress: bool = False,
+) -> Forecast:
+    """Drought drawdown forecast of ``site``: an ensemble of the whole balance from a start day.
+
+    Parameters
+    ----------
+    site : Site
+        The validated site file: ``[storage]``, a stage series (for the start state unless
+        ``start_stage_m`` is given), the ``[outlet]`` rating when the lake has an outlet,
+        ``[levels]`` and ``[drawdown]``.
+    start : str, optional
+        ISO date of the start day (default ``[drawdown] start``, else the last recorded stage).
+    days : int, optional
+        Horizon in days (default ``[drawdown] days``).
+    scenario : str, optional
+        ``"replay"``, ``"percentile"``, ``"stochastic"`` or ``"constant"`` (default
+        ``[drawdown] scenario``).
+    members : int, optional
+        Members of the stochastic scenario, or of any scenario when uncertainty is sampled
+        (default ``[drawdown] members``).
+    rng : numpy.random.Generator, optional
+        Source of every random draw (default: seeded with ``seed``).
+    seed : int, optional
+        Seed when no ``rng`` is given (default ``[site] seed``); written into the result.
+    start_stage_m : float, optional
+        Stage at the start (m; default ``[drawdown] start_stage``, else the record that day).
+    records, storage, rating, seepage : optional
+        Results already at hand (default: loaded, fitted or estimated from the site).
+    evaporation_m : pandas.Series, optional
+        Daily lake evaporation (m per day) of the record (default: :func:`lake_evaporation`).
+    progress : bool
+        A progress bar on stderr during the run.
+
+    Returns
+    -------
+    Forecast
+        Stage percentiles, probability below each level, days to crossing, volume remaining,
+        sentences; the unrestricted run beside a restricted one. See ``docs/drawdown.md``.
+
+    Notes
+    -----
+    The dead level (withdrawals and releases stop below it) is the ``[levels]`` entry named by
+    ``[drawdown] dead_level``, else the level named ``dead``, else the bottom of the storage
+    relation. With ``sample_uncertainty`` each member draws an evaporation factor
+    ``1 + s z`` (``s`` = ``[uncertainty] evaporation``, 10 % when not given) and one of
+    ``rating_variants`` ratings sampled from the rating's covariance.
+    """
+    import numpy as np
+    import pandas as pd
+
+    from .drawdown import build_forcing, run_forecast
+    from .errors import ConfigError, FitError, LakebalanceError
+
+    opts = site.drawdown
+    notes: list[str] = []
+    if records is None:
+        records = load_records(site)
+    if storage is None:
+        storage = load_storage(site)
+    if rating is None and site.outlet is not None:
+        rating = fit_rating(site)
+    if seed is None and rng is None:
+        seed = site.site.seed
+    if rng is None:
+        rng = np.random.default_rng(seed)
+    scenario = scenario or opts.scenario
+    if scenario not in ("replay", "percentile", "stochastic", "constant"):
+        raise ConfigError(
+            f"unknown drawdown scenario {scenario!r}: replay, percentile, stochastic or constant",
+            file=site.path,
+        )
+    days = int(days if days is not None else opts.days)
+    n_members = int(members if members is not None else opts.members)
+    if days < 1 or n_members < 1:
+        raise ConfigError("the drawdown horizon and the members must be at least 1", file=site.path)
+    daily = records.daily
+    stage = daily["stage"] if "stage" in daily.columns else None
+    start = start or opts.start
+    if start is None:
+        if stage is None or not stage.notna().any():
+            raise ConfigError(
+                "the drawdown forecast needs a start date and stage ([drawdown] start, "
+                "start_stage) when there is no stage record",
+                file=site.path,
+            )
+        start_ts = pd.Timestamp(stage.last_valid_index())
+    else:
+        try:
+            start_ts = pd.Timestamp(start).normalize()
+        except (ValueError, TypeError):
+            raise ConfigError(
+                f"drawdown start {start!r} is not an ISO date", file=site.path
+            ) from None
+    h0 = start_stage_m if start_stage_m is not None else opts.start_stage
+    if h0 is None:
+        h0 = float(stage.get(start_ts, np.nan)) if stage is not None else float("nan")
+        if not np.isfinite(h0):
+            raise ConfigError(
+                f"no recorded stage on {start_ts.date()}: give the start stage "
+                "([drawdown] start_stage or --start-stage)",
+                file=site.path,
+            )
+    history = drawdown_history(site, records, evaporation_m)
+    if scenario != "constant" and "inflow_m3s" not in history.columns:
+        raise ConfigError(
+            f"the '{scenario}' scenario needs an inflow record; use the 'constant' scenario",
+            file=site.path,
+        )
+    for term in ("rain_m", "evaporation_m"):
+        if term not in history.columns:
+            notes.append(f"no {term.split('_')[0]} record: taken as zero")
+    forcing = build_forcing(
+        history,
+        start_ts,
+        days,
+        scenario,  # type: ignore[arg-type]
+        members=n_members,
+        rng=rng,
+        percentile=opts.percentile,
+        inflow_m3s=opts.inflow,
+        method=opts.stochastic,
+        block_days=opts.block_days,
+    )
+    levels = dict(site.levels)
+    dead_name = opts.dead_level or ("dead" if "dead" in levels else None)
+    if dead_name is not None and dead_name not in levels:
+        raise ConfigError(
+            f"[drawdown] dead_level '{dead_name}' is not a [levels] name", file=site.path
+        )
+    dead = levels[dead_name] if dead_name is not None else float(storage.min_stage_m)
+    seep_fn = None
+    if seepage is None and opts.seepage and stage is not None:
+        try:
+            balance = close_balance(
+                site,
+                draws=0,
+                records=records,
+                storage=storage,
+                rating=rating,
+                evaporation_m=history.get("evaporation_m"),
+            )
+            seepage = estimate_seepage(site, balance=balance, records=records)
+        except LakebalanceError as exc:
+            notes.append(f"seepage left out: {exc.message}")
+    if seepage is not None:
+        seep_fn = seepage.rate_m3s
+        notes.append("net seepage to groundwater from the law fitted to the balance residual")
+    lo = float(storage.min_stage_m)
+    hi = max(float(storage.max_stage_m), max(levels.values(), default=lo) + 1.0, float(h0) + 1.0)
+    if storage.above != "extend":
+        hi = float(storage.max_stage_m)
+
+    def area(x):
+        return storage.area(x, warn=False)
+
+    def volume(x):
+        return storage.volume(x, warn=False)
+
+    if rating is not None:
+        outflow = rating.discharge
+    else:
+        notes.append("no [outlet]: the lake has no outflow but its withdrawals and releases")
+
+        def outflow(x):
+            return np.zeros_like(np.asarray(x, dtype=float))
+
+    variants_fn = None
+    n_var = 0
+    factor = None
+    if opts.sample_uncertainty:
+        sigma = site.uncertainty.evaporation
+        if sigma is None:
+            sigma = 0.10
+            notes.append("evaporation error taken as 10 % (1 sigma): assumed, no source")
+        factor = np.maximum(1.0 + sigma * rng.standard_normal(n_members), 0.0)
+        if rating is not None:
+            try:
+                params = rating.sample_params(rng, max(1, int(opts.rating_variants)))
+                n_var = params.shape[0]
+
+                def variants_fn(x, params=params):
+                    grid = np.broadcast_to(np.asarray(x, dtype=float), (params.shape[0], len(x)))
+                    return rating.discharge_with(params, grid)
+
+            except FitError as exc:
+                notes.append(f"rating uncertainty left out: {exc.message}")
+    bar = None
+    callback = None
+    if progress:
+        from tqdm import tqdm
+
+        bar = tqdm(total=days, unit="day", desc="drawdown", leave=False)
+
+        def callback(done: int) -> None:
+            bar.update(done - bar.n)
+
+    try:
+        result = run_forecast(
+            area=area,
+            volume=volume,
+            outflow=outflow,
+            stage_range_m=(lo, hi),
+            forcing=forcing,
+            start=start_ts,
+            start_stage_m=float(h0),
+            scenario=scenario,
+            levels=levels,
+            dead_level_m=dead,
+            seepage=seep_fn,
+            demand_m3s=opts.demand,
+            environmental_release_m3s=opts.environmental_release,
+            restriction=[(r.trigger, r.cut) for r in opts.restriction],
+            outflow_variants=variants_fn,
+            variants=n_var,
+            evaporation_factor=factor,
+            rng=rng,
+            seed=seed,
+            progress=callback,
+            notes=notes,
+        )
+    finally:
+        if bar is not None:
+            bar.close()
+    return result

@@ -282,6 +282,13 @@ class DrawdownOptions:
     environmental_release: float = 0.0  # m³/s, minimum release kept while above dead level
     restriction: tuple[DemandRule, ...] = ()
     sample_uncertainty: bool = False  # draw rating and evaporation errors per member
+    start: str | None = None  # ISO date of the start (default: last day with a recorded stage)
+    start_stage: float | None = None  # m, stage at the start (default: recorded stage that day)
+    stochastic: Literal["bootstrap", "ar1"] = "bootstrap"  # model of the stochastic scenario
+    block_days: int = 30  # days, block length of the bootstrap
+    dead_level: str | None = None  # [levels] name below which draws stop (default "dead")
+    rating_variants: int = 200  # sampled ratings shared by the members (sample_uncertainty)
+    seepage: bool = True  # include the seepage law estimated from the balance residual
 
 
 @dataclass(frozen=True)

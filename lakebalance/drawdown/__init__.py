@@ -1,0 +1,30 @@
+"""Drought drawdown forecasts: a fast ensemble simulation of the whole balance.
+
+* :mod:`.engine` — the vectorised day-by-day integrator (accurate for slow and stiff lakes);
+* :mod:`.scenarios` — the forcing of each scenario (replay, percentile, stochastic, constant);
+* :mod:`.forecast` — the ensemble run and its frozen :class:`Forecast` result.
+
+See ``docs/drawdown.md``.
+"""
+
+from __future__ import annotations
+
+from .engine import EngineResult, LakeTables, build_tables, simulate
+from .forecast import CAUTION, PERCENTILES, Forecast, LevelOdds, run_forecast
+from .scenarios import TERMS, Forcing, build_forcing, climatology
+
+__all__ = [
+    "EngineResult",
+    "LakeTables",
+    "build_tables",
+    "simulate",
+    "CAUTION",
+    "PERCENTILES",
+    "Forecast",
+    "LevelOdds",
+    "run_forecast",
+    "TERMS",
+    "Forcing",
+    "build_forcing",
+    "climatology",
+]

@@ -180,7 +180,7 @@ def build_tables(
 class EngineResult:
     """Raw engine output. ``stage_m`` is (days + 1, members): the start and each day's end.
 
-    ``withdrawal_m3s`` (days, members) is the mean withdrawal actually drawn each day (after the
+    ``withdrawal_m3s`` (days, members) is the mean withdrawal plus release drawn each day (after the
     restriction cut and the intake ramp), ``cut`` (days, members) the restriction share in force,
     ``crossing_day`` maps each level name to (members,) fractional days from the start to the first
     crossing (NaN: not crossed within the horizon).
@@ -565,6 +565,7 @@ def simulate(
     net_depth_m: np.ndarray,
     demand_m3s: np.ndarray | float = 0.0,
     *,
+    release_m3s: np.ndarray | float = 0.0,
     variant: np.ndarray | None = None,
     restriction: Sequence[tuple[float, float]] = (),
     levels: dict[str, float] | None = None,
@@ -589,6 +590,9 @@ def simulate(
         Rain minus lake evaporation of each day (m per day).
     demand_m3s : float or ndarray (days, members)
         Withdrawal demand before restrictions (m³/s).
+    release_m3s : float or ndarray (days, members)
+        Scheduled releases (m³/s): drawn like withdrawals (they stop at the dead level) but never
+        cut by a restriction.
     variant : ndarray (members,) of int, optional
         Rating variant (row of ``tables.outflow_m3s``) of each member; default 0.
     restriction : sequence of (trigger_m, cut)
@@ -622,6 +626,9 @@ def simulate(
     days, members = inflow_m3s.shape
     net_depth_m = np.broadcast_to(np.asarray(net_depth_m, dtype=float), (days, members))
     demand = np.broadcast_to(np.asarray(demand_m3s, dtype=float), (days, members))
+    release = np.asarray(release_m3s, dtype=float)
+    has_release = bool(np.any(release != 0.0))
+    release = np.broadcast_to(release, (days, members))
     h = np.broadcast_to(np.asarray(start_stage_m, dtype=float), (members,)).copy()
     if variant is None:
         variant = np.zeros(members, dtype=np.intp)
@@ -648,6 +655,8 @@ def simulate(
                 cut = np.maximum(cut, share * (h < trig))
             cut_used[d] = cut
             dem = dem * (1.0 - cut)
+        if has_release:
+            dem = dem + release[d]
         h_start = h
         acc = np.zeros(members)
         for _ in range(substeps):

@@ -1,0 +1,337 @@
+"""Forcing of the drawdown ensemble: what comes into and goes out of the lake on each future day.
+
+Every scenario turns the daily history of the lake (inflow, rain, evaporation, withdrawal and
+release, all in SI) into arrays ``(days, members)`` starting on the day after the forecast start:
+
+* ``replay``: each historical year of the record is a member, its days taken from the same day of
+  the year as the forecast days (a year is used when at least 80 % of its inflow days are known;
+  the gaps are filled with the day-of-year climatology);
+* ``percentile``: inflow at a given non-exceedance for each day of the year (all years pooled in a
+  window of +-7 days), rain and evaporation at their day-of-year means;
+* ``stochastic``: either a block bootstrap of the historical years (blocks of ``block_days``, each
+  member drawing a year per block, all terms of a block from the same year so that dry inflow
+  and high evaporation stay together), or a seasonal AR(1) model of the log inflow anomalies
+  fitted with statsmodels (rain and evaporation at their day-of-year means);
+* ``constant``: a given inflow (zero for the worst case), rain and evaporation at their
+  day-of-year means.
+
+References
+----------
+Efron, B. & Tibshirani, R. J. (1993). An Introduction to the Bootstrap, Chapman & Hall, section
+8.6 (moving-block bootstrap of dependent data).
+Box, G. E. P. & Jenkins, G. M. (1976). Time Series Analysis, Forecasting and Control, chapter 3
+(first-order autoregressive process); seasonal standardisation as in Salas et al. (1980),
+Applied Modeling of Hydrologic Time Series, chapter 5.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Literal
+
+import numpy as np
+import pandas as pd
+
+from ..errors import ConfigError
+
+__all__ = ["Forcing", "TERMS", "climatology", "build_forcing"]
+
+#: Columns of the history frame (SI): flows m³/s, depths m per day.
+TERMS = ("inflow_m3s", "rain_m", "evaporation_m", "withdrawal_m3s", "release_m3s")
+
+Scenario = Literal["replay", "percentile", "stochastic", "constant"]
+StochasticMethod = Literal["bootstrap", "ar1"]
+
+_WINDOW_DAYS = 7  # half-width of the day-of-year window, days
+_MIN_COVERAGE = 0.8  # share of known inflow days that makes a year usable in replay/bootstrap
+
+
+@dataclass(frozen=True)
+class Forcing:
+    """Daily forcing of every member, arrays ``(days, members)`` in SI.
+
+    ``labels`` names each member (the historical year of a replay, ``"p10"``, ``"member 12"``);
+    ``notes`` say what was assumed.
+    """
+
+    dates: pd.DatetimeIndex  # the forecast days (day after the start onwards)
+    inflow_m3s: np.ndarray
+    rain_m: np.ndarray
+    evaporation_m: np.ndarray
+    withdrawal_m3s: np.ndarray
+    release_m3s: np.ndarray
+    labels: tuple[str, ...]
+    notes: tuple[str, ...] = field(default=())
+
+    @property
+    def members(self) -> int:
+        """Number of members."""
+        return int(self.inflow_m3s.shape[1])
+
+
+def _doy(index: pd.DatetimeIndex) -> np.ndarray:
+    """Day of the year 0..365 with 29 February sharing 28 February's slot (leap-free)."""
+    d = index.dayofyear.to_numpy() - 1
+    leap = index.is_leap_year & (d >= 59)
+    return np.where(leap, d - 1, d)
+
+
+def climatology(series: pd.Series, *, statistic: str = "mean", q: float = 0.5) -> np.ndarray:
+    """Day-of-year statistic (365 values) of a daily series, pooling a window of +-7 days.
+
+    Parameters
+    ----------
+    series : pandas.Series
+        Daily values on a DatetimeIndex (any SI unit; NaN is missing).
+    statistic : {"mean", "quantile"}
+        The statistic of the pooled values.
+    q : float
+        Non-exceedance probability (-) for ``"quantile"``.
+
+    Returns
+    -------
+    ndarray (365,)
+        NaN where no value falls in a window.
+    """
+    values = series.to_numpy(dtype=float)
+    doy = _doy(pd.DatetimeIndex(series.index))
+    out = np.full(365, np.nan)
+    ok = np.isfinite(values)
+    values, doy = values[ok], doy[ok]
+    if values.size == 0:
+        return out
+    if statistic == "mean":
+        total = np.bincount(doy, weights=values, minlength=365)
+        count = np.bincount(doy, minlength=365).astype(float)
+        k = np.ones(2 * _WINDOW_DAYS + 1)
+        tot = np.convolve(
+            np.concatenate([total[-_WINDOW_DAYS:], total, total[:_WINDOW_DAYS]]), k, "valid"
+        )
+        cnt = np.convolve(
+            np.concatenate([count[-_WINDOW_DAYS:], count, count[:_WINDOW_DAYS]]), k, "valid"
+        )
+        with np.errstate(invalid="ignore", divide="ignore"):
+            out = np.where(cnt > 0, tot / cnt, np.nan)
+        return out
+    order = np.argsort(doy, kind="stable")
+    values, doy = values[order], doy[order]
+    starts = np.searchsorted(doy, np.arange(366))
+    for d in range(365):  # 365 small quantiles: once per forecast, not per day or member
+        parts = []
+        for off in range(-_WINDOW_DAYS, _WINDOW_DAYS + 1):
+            j = (d + off) % 365
+            parts.append(values[starts[j] : starts[j + 1]])
+        pool = np.concatenate(parts)
+        if pool.size:
+            out[d] = np.quantile(pool, q)
+    return out
+
+
+def _filled(history: pd.DataFrame, term: str) -> tuple[pd.Series, np.ndarray]:
+    """The term's series and its day-of-year mean (zeros when the term was never recorded)."""
+    s = history[term] if term in history.columns else pd.Series(np.nan, index=history.index)
+    clim = climatology(s)
+    return s, np.nan_to_num(clim, nan=0.0)
+
+
+def _year_matrix(
+    history: pd.DataFrame, dates: pd.DatetimeIndex
+) -> tuple[list[int], dict[str, np.ndarray], int]:
+    """Aligned historical years: for each usable year Y, the terms on the forecast's days of the
+    year shifted to Y (gaps filled with the day-of-year mean). Returns (years, term -> (years,
+    days), skipped)."""
+    first, last = history.index.min(), history.index.max()
+    years: list[int] = []
+    blocks: dict[str, list[np.ndarray]] = {t: [] for t in TERMS}
+    clim = {t: _filled(history, t) for t in TERMS}
+    skipped = 0
+    start_year = dates[0].year
+    for y in range(first.year - 1, last.year + 1):
+        shift = y - start_year
+        try:
+            days_y = pd.DatetimeIndex(
+                [d.replace(year=d.year + shift) for d in dates.to_pydatetime()]
+            )
+        except ValueError:  # 29 February in a non-leap year
+            days_y = pd.DatetimeIndex(
+                [
+                    (d - pd.Timedelta(days=1) if (d.month, d.day) == (2, 29) else d).replace(
+                        year=d.year + shift
+                    )
+                    for d in dates.to_pydatetime()
+                ]
+            )
+        if days_y[0] < first or days_y[-1] > last:
+            continue
+        inflow = clim["inflow_m3s"][0].reindex(days_y).to_numpy(dtype=float)
+        if np.isfinite(inflow).mean() < _MIN_COVERAGE:
+            skipped += 1
+            continue
+        years.append(y)
+        doy = _doy(days_y)
+        for t in TERMS:
+            s, c = clim[t]
+            v = s.reindex(days_y).to_numpy(dtype=float)
+            blocks[t].append(np.where(np.isfinite(v), v, c[doy]))
+    return (
+        years,
+        {t: np.array(b).reshape(len(years), len(dates)) for t, b in blocks.items()},
+        skipped,
+    )
+
+
+def build_forcing(
+    history: pd.DataFrame,
+    start: pd.Timestamp,
+    days: int,
+    scenario: Scenario,
+    *,
+    members: int = 1000,
+    rng: np.random.Generator | None = None,
+    percentile: float = 10.0,
+    inflow_m3s: float = 0.0,
+    method: StochasticMethod = "bootstrap",
+    block_days: int = 30,
+) -> Forcing:
+    """The forcing arrays of a scenario.
+
+    Parameters
+    ----------
+    history : pandas.DataFrame
+        Daily history on a DatetimeIndex with any of the columns of :data:`TERMS` (inflow,
+        withdrawal and release in m³/s; rain and evaporation in m per day).
+    start : pandas.Timestamp
+        Forecast start day; the forcing covers the ``days`` days after it.
+    days : int
+        Horizon (days).
+    scenario : {"replay", "percentile", "stochastic", "constant"}
+        See the module docstring.
+    members : int
+        Members of the stochastic scenario (others have one member per year, or one).
+    rng : numpy.random.Generator, optional
+        Source of the stochastic draws (required for ``stochastic``).
+    percentile : float
+        Non-exceedance (%) of the inflow for ``percentile``.
+    inflow_m3s : float
+        The inflow of ``constant`` (m³/s).
+    method : {"bootstrap", "ar1"}
+        The stochastic model.
+    block_days : int
+        Block length of the bootstrap (days).
+
+    Returns
+    -------
+    Forcing
+    """
+    if days < 1:
+        raise ConfigError(f"the forecast horizon must be at least one day, got {days}")
+    dates = pd.date_range(start + pd.Timedelta(days=1), periods=days, freq="D", name="date")
+    doy = _doy(dates)
+    clim = {t: _filled(history, t)[1] for t in TERMS}
+    notes: list[str] = []
+
+    def flat(term: str, m: int) -> np.ndarray:
+        return np.repeat(clim[term][doy][:, None], m, axis=1)
+
+    if scenario in ("replay", "stochastic") and not (scenario == "stochastic" and method == "ar1"):
+        years, mat, skipped = _year_matrix(history, dates)
+        if not years:
+            raise ConfigError(
+                f"the '{scenario}' scenario needs at least one historical year with {_MIN_COVERAGE:.0%}"
+                f" of its inflow days recorded over the {days} forecast days of the year"
+            )
+        if skipped:
+            notes.append(
+                f"{skipped} year(s) left out: less than {_MIN_COVERAGE:.0%} inflow coverage"
+            )
+        if scenario == "replay":
+            arrays = {t: mat[t].T.copy() for t in TERMS}
+            labels = tuple(str(y) for y in years)
+            notes.append(f"replay of {len(years)} historical years ({years[0]}-{years[-1]})")
+        else:
+            if rng is None:
+                raise ValueError("the stochastic scenario needs a random generator")
+            nblocks = -(-days // block_days)
+            pick = rng.integers(0, len(years), size=(nblocks, members))
+            rows = np.repeat(pick, block_days, axis=0)[:days]  # (days, members) year index
+            cols = np.arange(days)[:, None]
+            arrays = {t: mat[t][rows, cols] for t in TERMS}
+            labels = tuple(f"member {i + 1}" for i in range(members))
+            notes.append(
+                f"block bootstrap of {len(years)} historical years, blocks of {block_days} days"
+            )
+    elif scenario == "stochastic":  # seasonal AR(1) of log inflow
+        if rng is None:
+            raise ValueError("the stochastic scenario needs a random generator")
+        arrays, note = _ar1(history, dates, members, rng)
+        arrays.update({t: flat(t, members) for t in TERMS if t != "inflow_m3s"})
+        labels = tuple(f"member {i + 1}" for i in range(members))
+        notes.append(note)
+    elif scenario == "percentile":
+        inflow = history["inflow_m3s"] if "inflow_m3s" in history.columns else None
+        if inflow is None or not inflow.notna().any():
+            raise ConfigError("the 'percentile' scenario needs an inflow record")
+        q = climatology(inflow, statistic="quantile", q=percentile / 100.0)
+        arrays = {t: flat(t, 1) for t in TERMS}
+        arrays["inflow_m3s"] = np.nan_to_num(q, nan=0.0)[doy][:, None]
+        labels = (f"p{percentile:g}",)
+        notes.append(
+            f"inflow at {percentile:g}% non-exceedance by day of year; other terms at their means"
+        )
+    elif scenario == "constant":
+        arrays = {t: flat(t, 1) for t in TERMS}
+        arrays["inflow_m3s"] = np.full((days, 1), float(inflow_m3s))
+        labels = (f"inflow {inflow_m3s:g} m3/s",)
+        notes.append(f"constant inflow {inflow_m3s:g} m3/s; other terms at their day-of-year means")
+    else:
+        raise ConfigError(f"unknown scenario {scenario!r}")
+    return Forcing(
+        dates=dates,
+        inflow_m3s=np.maximum(arrays["inflow_m3s"], 0.0),
+        rain_m=np.maximum(arrays["rain_m"], 0.0),
+        evaporation_m=arrays["evaporation_m"],
+        withdrawal_m3s=np.maximum(arrays["withdrawal_m3s"], 0.0),
+        release_m3s=np.maximum(arrays["release_m3s"], 0.0),
+        labels=labels,
+        notes=tuple(notes),
+    )
+
+
+def _ar1(
+    history: pd.DataFrame, dates: pd.DatetimeIndex, members: int, rng: np.random.Generator
+) -> tuple[dict[str, np.ndarray], str]:
+    """Seasonal AR(1) of log inflow: z = (log(Q + eps) - mu(doy)) / sd(doy), z_t = phi z_{t-1}
+    + e_t with e ~ N(0, sigma^2) of the fit, started from the last observed anomaly."""
+    from statsmodels.tsa.ar_model import AutoReg
+
+    q = history["inflow_m3s"] if "inflow_m3s" in history.columns else None
+    if q is None or q.notna().sum() < 60:
+        raise ConfigError("the AR(1) scenario needs at least 60 days of inflow record")
+    eps = max(float(q[q > 0].quantile(0.01)) if (q > 0).any() else 1e-6, 1e-9)  # m³/s
+    logq = np.log(q + eps)
+    mu = climatology(logq)
+    sd = np.sqrt(np.maximum(climatology((logq - mu[_doy(pd.DatetimeIndex(q.index))]) ** 2), 1e-12))
+    hd = _doy(pd.DatetimeIndex(q.index))
+    z = ((logq - mu[hd]) / sd[hd]).dropna()
+    # the longest run of consecutive days for the fit
+    gaps = np.flatnonzero(np.diff(z.index.to_numpy()) != np.timedelta64(1, "D"))
+    bounds = np.concatenate([[0], gaps + 1, [z.size]])
+    k = int(np.argmax(np.diff(bounds)))
+    run = z.iloc[bounds[k] : bounds[k + 1]].to_numpy()
+    if run.size < 30:
+        raise ConfigError("the AR(1) scenario needs at least 30 consecutive days of inflow")
+    fit = AutoReg(run, lags=1, trend="n").fit()
+    phi = float(np.clip(fit.params[0], -0.999, 0.999))
+    innov = float(np.sqrt(max(fit.sigma2, 1e-12)))
+    days = len(dates)
+    z0 = float(z.iloc[-1]) if z.index[-1] >= dates[0] - pd.Timedelta(days=3) else 0.0
+    e = rng.standard_normal((days, members)) * innov
+    sim = np.empty((days, members))
+    prev = np.full(members, z0)
+    for d in range(days):  # a recursion over days, vectorised over members
+        prev = phi * prev + e[d]
+        sim[d] = prev
+    doy = _doy(dates)
+    inflow = np.exp(mu[doy][:, None] + sd[doy][:, None] * sim) - eps
+    note = f"seasonal AR(1) of log inflow: phi = {phi:.3f}, innovation sd = {innov:.3f}"
+    return {"inflow_m3s": np.maximum(inflow, 0.0)}, note
