@@ -1,0 +1,110 @@
+"""The drawdown forecast on the invented demo reservoir, and the command line.
+
+Check (issue 8): a member that replays a historical year reproduces that year's observed stage
+path within the balance residual, i.e. |simulated - observed| <= sum |residual| / area over the
+days run (the replay uses the same terms as the balance, so it misses exactly what the balance
+leaves unexplained), plus 1 cm for the daily-mean stage standing in for the day-end state.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import json
+import warnings
+
+import numpy as np
+import pytest
+
+import lakebalance as lb
+from lakebalance.cli import main
+
+
+@pytest.fixture(scope="module")
+def demo():
+    from pathlib import Path
+
+    path = Path(__file__).resolve().parents[1] / "data_demo" / "site.toml"
+    site = lb.load_site(path)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", lb.errors.LakebalanceWarning)
+        records = lb.load_records(site)
+    return site, records
+
+
+def test_replay_member_reproduces_its_year_within_the_balance_residual(demo):
+    site, records = demo
+    opts = dataclasses.replace(site.drawdown, demand=None, restriction=(), seepage=False)
+    site = dataclasses.replace(site, drawdown=opts)
+    start, days = "2015-06-30", 90
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", lb.errors.LakebalanceWarning)
+        balance = lb.close_balance(site, draws=0, records=records)
+        fc = lb.forecast_drawdown(site, start=start, days=days, scenario="replay", records=records)
+    member = fc.labels.index("2015")
+    daily = balance.daily.loc[start:].iloc[: days + 1]
+    observed = daily["stage_m"].to_numpy()
+    simulated = fc.stage_m[:, member]
+    residual_m = np.abs(daily["residual_m3"].to_numpy()[1:]) / daily["area_m2"].to_numpy()[1:]
+    bound = np.concatenate([[0.0], np.cumsum(residual_m)])
+    assert np.all(np.isfinite(observed)) and np.all(np.isfinite(bound))
+    assert np.all(np.abs(simulated - observed) <= bound + 0.01)
+    # the other members are other years: they do not follow 2015
+    other = fc.labels.index("2010")
+    assert np.max(np.abs(fc.stage_m[:, other] - observed)) > 0.05
+
+
+def test_restrictions_side_by_side(demo):
+    site, records = demo
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", lb.errors.LakebalanceWarning)
+        fc = lb.forecast_drawdown(
+            site, start="2022-06-30", days=200, scenario="constant", records=records
+        )
+    assert fc.restricted and fc.unrestricted is not None
+    table = fc.restriction_effect()
+    assert set(table.index) == set(site.levels)
+    # restrictions draw less water and never make a falling level come sooner
+    assert fc.withdrawn_m3.mean() < fc.unrestricted.withdrawn_m3.mean()
+    for o, u in zip(fc.odds, fc.unrestricted.odds, strict=True):
+        if o.direction == "falling" and o.days_50 is not None and u.days_50 is not None:
+            assert o.days_50 >= u.days_50
+    doc = fc.to_dict()
+    assert "unrestricted" in doc and doc["seed"] == site.site.seed
+
+
+def test_command_json_has_odds_per_level(demo_site_path, capsys, tmp_path):
+    code = main(
+        [
+            "drawdown",
+            str(demo_site_path),
+            "--start",
+            "2022-06-30",
+            "--days",
+            "60",
+            "--scenario",
+            "stochastic",
+            "--members",
+            "200",
+            "--seed",
+            "5",
+            "--json",
+            "--out",
+            str(tmp_path),
+        ]
+    )
+    assert code == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["seed"] == 5 and doc["members"] == 200
+    for name in ("intake", "dead", "spill"):
+        level = doc["levels"][name]
+        assert 0.0 <= level["probability_by_horizon"] <= 1.0
+        assert set(level["days_to_crossing"]) == {"p10", "p50", "p90"}
+    assert (tmp_path / "drawdown_fan.png").stat().st_size > 1000
+    assert (tmp_path / "drawdown_stage_percentiles.csv").exists()
+
+
+def test_command_bad_start_is_a_one_line_error(demo_site_path, capsys):
+    code = main(["drawdown", str(demo_site_path), "--start", "31/31/2022", "--days", "5"])
+    assert code == 2
+    err = capsys.readouterr().err
+    assert err.startswith("error: ") and "ISO date" in err and len(err.strip().splitlines()) == 1
