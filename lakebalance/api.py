@@ -520,7 +520,7 @@ def lake_dynamics(
     import pandas as pd
 
     from .dynamics import LakeModel, analyse_dynamics, residence_times
-    from .errors import ConfigError, LakebalanceError
+    from .errors import ConfigError, LakebalanceError, RangeError
     from .units import SECONDS_PER_DAY
 
     if storage is None:
@@ -550,8 +550,20 @@ def lake_dynamics(
     evap = mean_depth("evaporation_m3") if area_sum > 0 else 0.0
     rain = mean_depth("rain_m3") if area_sum > 0 else 0.0
     demand = float((d["withdrawal_m3"] + d["release_m3"]).mean() / SECONDS_PER_DAY)
+    if not np.isfinite(demand):
+        raise RangeError(
+            "no day of the stage record has the withdrawals and releases: their records do not "
+            "overlap the stage record",
+            file=site.path,
+        )
     if inflow_m3s is None:
         inflow_m3s = float(d["inflow_m3"].mean() / SECONDS_PER_DAY)
+        if not np.isfinite(inflow_m3s):
+            raise RangeError(
+                "no day of the stage record has a gauged inflow (the inflow records do not "
+                "overlap it): give the sustained inflow (m3/s) with --inflow",
+                file=site.path,
+            )
         notes.append(f"sustained inflow: the record's mean gauged inflow, {inflow_m3s:.4g} m3/s")
     levels = dict(site.levels)
     lo = float(storage.min_stage_m)

@@ -918,6 +918,11 @@ def _column(daily: pd.DataFrame, name: str) -> np.ndarray | None:
     return None
 
 
+#: Fewest days with a residual that the detectors work on (common practice, no source: a noise
+#: scale and a rolling median need a handful of values).
+MIN_RESIDUAL_DAYS = 10
+
+
 def detect_flags(
     daily: pd.DataFrame,
     options: FlagOptions | None = None,
@@ -989,6 +994,17 @@ def detect_flags(
         if left_out.shape != r.shape:
             raise ValueError("exclude must have one value per day of the balance")
         r[left_out] = np.nan
+    n_valid = int(np.isfinite(r).sum())
+    if n_valid < MIN_RESIDUAL_DAYS:
+        # Without residuals the noise scale has nothing to stand on and every stage step would
+        # be "significant" against a placeholder noise of 1 m³/d.
+        from .errors import FitError
+
+        raise FitError(
+            f"only {n_valid} of {n} day(s) have a residual (at least {MIN_RESIDUAL_DAYS} needed "
+            "to flag it): the record is too short, a term is missing on the other days, or a "
+            "term's record does not overlap the stage record (see 'lakebalance check')"
+        )
     stage = _column(daily, "stage_m")
     area = _column(daily, "area_m2")
     inflow = _column(daily, "inflow_m3")

@@ -1,0 +1,45 @@
+"""Robustness of dynamics and flags when a term's record does not overlap the stage record.
+
+Invented sites from ``tests/_robust_sites.py``; expected behaviour is the README's rule: a usable
+result, or exit 2 with one ``error:`` line and no traceback.
+"""
+
+from __future__ import annotations
+
+import pytest
+from _robust_sites import write_site
+
+import lakebalance as lb
+from lakebalance.cli import main
+from lakebalance.errors import FitError, RangeError
+
+
+def test_dynamics_without_overlapping_inflow_asks_for_one(tmp_path, capsys):
+    site_path = write_site(tmp_path, inflow_shift_days=3000)
+    site = lb.load_site(site_path)
+    with pytest.raises(RangeError, match="--inflow"):
+        lb.lake_dynamics(site)
+    assert main(["dynamics", str(site_path)]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and err[0].startswith("error: ")
+
+
+def test_dynamics_with_a_given_inflow_runs_on_a_lake_without_outlet(tmp_path, capsys):
+    """No outlet and no losses: any positive sustained inflow fills the lake beyond its range
+    (a closed basin without losses has no equilibrium, mass conservation, no source needed)."""
+    site_path = write_site(tmp_path, inflow_shift_days=3000)
+    assert main(["dynamics", str(site_path), "--inflow", "0.2", "--json"]) == 0
+    out = capsys.readouterr().out
+    assert "above_range" in out
+
+
+def test_flags_on_a_balance_without_any_residual_is_an_error(tmp_path, capsys):
+    """Every day misses its inflow: no residual to flag. Before the fix the stage steps were
+    reported as dozens of 'significant' flags against a placeholder noise of 1 m³/d."""
+    site_path = write_site(tmp_path, inflow_shift_days=3000)
+    site = lb.load_site(site_path)
+    with pytest.raises(FitError, match="have a residual"):
+        lb.find_flags(site)
+    assert main(["flags", str(site_path)]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "0 of 120 day(s)" in err[0]
