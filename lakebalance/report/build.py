@@ -253,11 +253,12 @@ def run_site(
                     start=forecast_start,
                     members=members,
                     rng=np.random.default_rng(seed + 1),
+                    seed=seed + 1,
                     records=records,
                     storage=storage,
                     rating=rating,
                     seepage=seepage,
-                    evaporation=evaporation,
+                    evaporation_m=None if evaporation is None else evaporation.depth_m,
                     progress=progress,
                 ),
                 unavailable,
@@ -793,6 +794,23 @@ def _flags_section(run: SiteRun, days: pd.DatetimeIndex) -> Section:
         "the site file."
     ]
     paragraphs += [f"{f.start} to {f.end}: {f.hint}" for f in items if f.significant][:12]
+    lasting = [
+        f
+        for f in run.flags.items
+        if f.kind in ("datum_shift", "level_shift") and f.start < lo and not f.accepted
+    ]
+    for f in lasting:
+        text = (
+            f"A {f.kind.replace('_', ' ')} flagged from {f.start} has not been accepted as a "
+            "correction; if real, it still biases this year's storage and outflow terms."
+        )
+        if f.correction is not None:
+            text += (
+                f" To accept it, add to the site file: [[correction]] series = "
+                f'"{f.correction.series}", start = {f.correction.start}, '
+                f"value = {f.correction.value:+.3f}."
+            )
+        paragraphs.append(text)
     if run.flags.corrections:
         paragraphs.append(
             "Corrections accepted in the site file and applied: "
@@ -1262,8 +1280,91 @@ def _dynamics_section(run: SiteRun) -> Section:
 def _drawdown_section(run: SiteRun) -> Section:
     if run.forecast is None:
         return Section("drawdown", "Drought drawdown outlook", missing=_missing(run, "drawdown"))
-    return Section("drawdown", "Drought drawdown outlook")
+    from .figures_drawdown import fan_chart
+
+    fc = run.forecast
+    rows = [
+        {
+            "level": o.name,
+            "stage_m": o.stage_m,
+            "direction": o.direction,
+            "probability_pct": 100.0 * o.probability,
+            "days_10pct": o.days_10,
+            "days_50pct": o.days_50,
+            "days_90pct": o.days_90,
+        }
+        for o in fc.odds
+    ]
+    odds = pd.DataFrame(
+        rows,
+        columns=[
+            "level",
+            "stage_m",
+            "direction",
+            "probability_pct",
+            "days_10pct",
+            "days_50pct",
+            "days_90pct",
+        ],
+    )
+    for c in ("days_10pct", "days_50pct", "days_90pct"):
+        odds[c] = odds[c].astype(float)
+    tables = [
+        table(
+            "drawdown-odds",
+            f"Chance of reaching each named level within {fc.days} days of {fc.start}, and the "
+            "days by which 10, 50 and 90 % of the members have reached it",
+            odds,
+            {"stage_m": 2, "probability_pct": 0, "days_10pct": 0, "days_50pct": 0, "days_90pct": 0},
+        ),
+    ]
+    if fc.unrestricted is not None:
+        eff = fc.restriction_effect().reset_index()
+        for c in eff.columns[1:]:
+            eff[c] = eff[c].astype(float)
+        for c in ("probability_restricted", "probability_unrestricted"):
+            eff[c.replace("probability", "probability_pct")] = 100.0 * eff.pop(c)
+        tables.append(
+            table(
+                "drawdown-restrictions",
+                "What the restriction rules change",
+                eff,
+                {
+                    "stage_m": 2,
+                    "probability_pct_restricted": 0,
+                    "probability_pct_unrestricted": 0,
+                    "median_days_restricted": 0,
+                    "median_days_unrestricted": 0,
+                },
+            )
+        )
+    fig = fan_chart(fc)
+    paragraphs = [
+        f"Scenario {fc.scenario}, {fc.members} members from {fc.start} at stage "
+        f"{fc.start_stage_m:.2f} m, seed {fc.seed}.",
+        *_forecast_sentences(run),
+        *fc.notes,
+    ]
+    return Section(
+        "drawdown",
+        "Drought drawdown outlook",
+        paragraphs=tuple(paragraphs),
+        tables=tuple(tables),
+        figures=(
+            Figure(
+                "fan",
+                "Forecast stage: median and 50, 80 and 90 % bands of the ensemble, "
+                "with the named levels.",
+                _png(fig),
+                "Fan chart of forecast stage",
+            ),
+        ),
+    )
 
 
 def _forecast_sentences(run: SiteRun) -> tuple[str, ...]:
-    return ()
+    if run.forecast is None:
+        return ()
+    from .html import CAUTIONS
+
+    return tuple(s for s in run.forecast.sentences() if s not in CAUTIONS and "licensed" not in s)
