@@ -163,7 +163,13 @@ def parse_unit(text: str) -> pint.Quantity:
             else ureg.Quantity(1.0, norm)
         )
     except Exception as exc:  # pint raises several unrelated types
-        raise UnitError(f"unknown unit {text!r} ({exc})") from None
+        # pint's own errors say which name is undefined; a tokenizer or assertion error from a
+        # malformed expression ('m3/sec/', 'm3/s)') carries no useful text of its own.
+        detail = str(exc).strip() if type(exc).__module__.startswith("pint") else ""
+        raise UnitError(
+            f"unknown unit {text!r} ({detail or 'not a valid unit expression'}; write units "
+            "as e.g. m3/s, ft3/s, ML/d, mm, degC)"
+        ) from None
     return q
 
 
