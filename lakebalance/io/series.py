@@ -476,7 +476,10 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
             status[keep[np.isin(row_day, low_days)]] = _REJECTED
             daily_vals = np.where(low, np.nan, daily_vals)
     if days.size == 0:
-        raise InputError(f"{what}: no usable reading in the file", file=file)
+        example = str(raw.values[bad_num].iloc[0]).strip() if bad_num.any() else None
+        raise InputError(
+            f"{what}: no usable reading in the file{_why_none(findings, example)}", file=file
+        )
     index = pd.date_range(_iso_day(days.min()), _iso_day(days.max()), freq="D", name="date")
     full = np.full(len(index), np.nan)
     pos = days - days.min()
@@ -623,3 +626,23 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
         account=account,
         subdaily=sub,
     )
+
+
+def _why_none(findings: list[Finding], example: str | None) -> str:
+    """Why a file gave no usable reading, from its findings and the first value that is not a
+    number (empty string when nothing says)."""
+    import re
+
+    rejected = [f for f in findings if f.action == "rejected" and f.count]
+    if not rejected:
+        return ""
+    counts: dict[str, int] = {}
+    for f in rejected:
+        counts[f.kind] = counts.get(f.kind, 0) + f.count
+    kind = max(counts, key=counts.__getitem__)
+    text = f": {counts[kind]} row(s) rejected as {kind.replace('_', ' ')}"
+    if kind == "non_numeric" and example is not None:
+        text += f", e.g. {example!r}"
+        if re.fullmatch(r"[-+]?\d*,\d+", example):
+            text += " (a decimal comma? set decimal = ',')"
+    return text
