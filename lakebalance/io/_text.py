@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import csv as _csv
 import io as _io
+import re
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -263,6 +264,9 @@ def read_text_table(
     positions: dict[str, int] = {}
     for key, col in wanted.items():
         positions[key] = resolve_column(col, header, file=file, line=header_line, what=what)
+    _check_split_decimals(
+        sample, data_idx[: len(sample)] + 1, header, delimiter, decimal, what, file
+    )
     if len(data_idx) == 1:
         raise InputError(
             f"{what}: the file has a header but no data rows", file=file, line=header_line
@@ -428,3 +432,48 @@ def _record_lines(clean: bytes, delimiter: str, original_lines: np.ndarray) -> n
     idx = np.asarray(firsts, dtype=np.int64)
     idx = idx[idx < len(original_lines)]
     return original_lines[idx]
+
+
+_INTEGER = re.compile(r"\s*[-+]?\d+\s*")
+_DIGITS = re.compile(r"\s*\d+\s*")
+
+
+def _check_split_decimals(
+    sample: list[str],
+    line_numbers: np.ndarray,
+    header: tuple[str, ...],
+    delimiter: str,
+    decimal: str,
+    what: str,
+    file: str,
+) -> None:
+    """Stop a comma-delimited file whose numbers carry a decimal comma.
+
+    ``12,5`` in such a file splits into two fields, ``12`` and ``5``; the row then has more
+    fields than the header and the extra ones are dropped, so every value would silently lose
+    its decimals. Raised when nearly all sampled rows (90 %) are longer than the header and each of them
+    holds an integer field followed by a field of digits only (the two halves of a number).
+    """
+    if delimiter != "," or decimal != "." or len(sample) < 2:
+        return
+    rows = list(_csv.reader(sample[1:], delimiter=delimiter))
+    if not rows:
+        return
+    k = len(header)
+    longer = [i for i, r in enumerate(rows) if len(r) > k]
+    if len(longer) < 0.9 * len(rows):
+        return
+
+    def split_number(r: list[str]) -> bool:
+        return any(_INTEGER.fullmatch(a) and _DIGITS.fullmatch(b) for a, b in zip(r[1:], r[2:]))
+
+    if not all(split_number(rows[i]) for i in longer):
+        return
+    i = longer[0]
+    raise InputError(
+        f"{what}: this row has {len(rows[i])} fields but the header has {k} "
+        f"({sample[1 + i].strip()!r}): numbers with a decimal comma in a comma-delimited "
+        "file? Save it with ';' or tab between fields and set decimal = ','",
+        file=file,
+        line=int(line_numbers[1 + i]),
+    )
