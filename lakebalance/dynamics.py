@@ -519,15 +519,28 @@ class Dynamics:
                 }[e.status]  # fmt: skip
             ),
             f"today ({self.today}): stage {self.today_stage_m:.3f} m",
-            f"outlet ceases to flow at {self.cease_to_flow_stage_m:.3f} m; smallest inflow that "
-            f"keeps it flowing {self.minimum_inflow_to_flow_m3s:.4g} m3/s",
-            "",
-            "largest sustained inflow that keeps the lake at or below each level:",
-            self.limits.to_string(float_format=lambda v: f"{v:.4g}"),
-            "",
-            "response time tau(h) = A(h) / (dLoss/dh):",
-            self.response.to_string(float_format=lambda v: f"{v:.4g}"),
+            (
+                f"outlet ceases to flow at {self.cease_to_flow_stage_m:.3f} m; smallest inflow "
+                f"that keeps it flowing {self.minimum_inflow_to_flow_m3s:.4g} m3/s"
+                if math.isfinite(self.cease_to_flow_stage_m)
+                else "no outlet rating: the lake loses water by evaporation, seepage and "
+                "withdrawals only"
+            ),
         ]
+
+        def table(title: str, frame: pd.DataFrame, empty: str) -> list[str]:
+            if frame.empty:
+                return ["", f"{title} {empty}"]
+            return ["", title, frame.to_string(float_format=lambda v: f"{v:.4g}")]
+
+        lines += table(
+            "largest sustained inflow that keeps the lake at or below each level:",
+            self.limits,
+            "none ([levels] names no stage)",
+        )
+        lines += table(
+            "response time tau(h) = A(h) / (dLoss/dh):", self.response, "none (no stage given)"
+        )
         if "residence_outflow_days" in self.residence:
             lines += [
                 "",

@@ -43,3 +43,14 @@ def test_flags_on_a_balance_without_any_residual_is_an_error(tmp_path, capsys):
     assert main(["flags", str(site_path)]) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and "0 of 120 day(s)" in err[0]
+
+
+def test_dynamics_text_of_a_lake_without_outlet_or_levels_has_no_nan(tmp_path, capsys):
+    """A terminal lake with no [levels]: the summary says so in words ("nan m" and an
+    'Empty DataFrame' dump before the fix)."""
+    site_path = write_site(tmp_path, days=60)
+    assert main(["dynamics", str(site_path)]) == 0
+    out = capsys.readouterr().out
+    assert "nan" not in out.lower().replace("nans", "")
+    assert "Empty DataFrame" not in out
+    assert "no outlet rating" in out
