@@ -146,6 +146,12 @@ def run_case(name, area0, c_outlet, mean_inflow, members, days, rng):
         ref = member_rhs(m, "Radau", 1e-10, 1e-12)
         worst = max(worst, float(np.max(np.abs(res.stage_m[:, m] - ref))))
     print(f"  largest difference of 5 members vs solve_ivp Radau rtol 1e-10: {worst * 1000:.4f} mm")
+    for what, good in (
+        ("<= 0.5 s", t_engine <= 0.5),
+        ("<= 1 GB", peak <= 2**30),
+        ("<= 1 mm", worst <= 1e-3),
+    ):
+        print(f"  target {what}: {'met' if good else 'NOT met'}")
     return t_engine, peak, worst
 
 
