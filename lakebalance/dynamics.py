@@ -546,9 +546,15 @@ class Dynamics:
                 "",
                 "residence time (mean volume / mean outflow; / mean total losses), days:",
                 self.residence[["residence_outflow_days", "residence_losses_days"]].to_string(
-                    float_format=lambda v: f"{v:.4g}"
+                    float_format=lambda v: f"{v:.4g}", na_rep="-"
                 ),
             ]
+            if (
+                self.residence[["residence_outflow_days", "residence_losses_days"]]
+                .isna()
+                .any(axis=None)
+            ):
+                lines.append("  (-: no outflow or no loss in that period)")
         if self.what_if:
             lines += ["", "what-if (from today's stage):"]
             for w in self.what_if:
