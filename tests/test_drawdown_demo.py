@@ -108,3 +108,33 @@ def test_command_bad_start_is_a_one_line_error(demo_site_path, capsys):
     assert code == 2
     err = capsys.readouterr().err
     assert err.startswith("error: ") and "ISO date" in err and len(err.strip().splitlines()) == 1
+
+
+def test_sampled_uncertainty_spreads_a_single_scenario(demo):
+    """With sample_uncertainty a one-member scenario becomes an ensemble whose members differ by
+    their evaporation factor and rating draw: the fan has a width, the median stays near the
+    unsampled run."""
+    site, records = demo
+    plain = dataclasses.replace(site.drawdown, restriction=(), seepage=False)
+    sampled = dataclasses.replace(plain, sample_uncertainty=True, rating_variants=50)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", lb.errors.LakebalanceWarning)
+        one = lb.forecast_drawdown(
+            dataclasses.replace(site, drawdown=plain),
+            start="2022-06-30",
+            days=120,
+            scenario="percentile",
+            records=records,
+        )
+        many = lb.forecast_drawdown(
+            dataclasses.replace(site, drawdown=sampled),
+            start="2022-06-30",
+            days=120,
+            scenario="percentile",
+            members=200,
+            records=records,
+        )
+    assert one.members == 1 and many.members == 200 and many.sampled_uncertainty
+    end = many.stage_percentiles.iloc[-1]
+    assert end["p95"] - end["p5"] > 0.01
+    assert abs(end["p50"] - one.stage_percentiles.iloc[-1]["p50"]) < end["p95"] - end["p5"]
