@@ -83,14 +83,21 @@ def _gauss_integral(curve: StorageCurve, a: float, b: float) -> float:
 @settings(max_examples=150, deadline=None)
 @given(curve=relations(), f1=st.floats(0.0, 1.0), f2=st.floats(0.0, 1.0))
 def test_volume_difference_is_the_integral_of_area(curve, f1, f2):
-    """V(b) - V(a) equals the exact integral of area(h) (dV/dh = A), relative 1e-9."""
+    """V(b) - V(a) equals the exact integral of area(h) (dV/dh = A), relative 1e-9.
+
+    The difference of two stored volumes also carries their rounding (a few units in the last
+    place of |V|, which a base volume of 2.5e5 m³ makes larger than 1e-9 of a tiny range), so
+    8 rounding units of the larger volume are allowed on top."""
     lo, hi = curve.min_stage_m, curve.max_stage_m
     a, b = sorted((lo + (hi - lo) * f1, lo + (hi - lo) * f2))
     if b - a < 1e-6:
         return
-    got = float(curve.volume(b) - curve.volume(a))
+    vb, va = float(curve.volume(b)), float(curve.volume(a))
+    got = vb - va
     ref = _gauss_integral(curve, a, b)
-    assert abs(got - ref) <= 1e-9 * max(abs(ref), curve.max_volume_m3 - curve.min_volume_m3)
+    roundoff = 8 * np.spacing(max(abs(va), abs(vb)))
+    tol = 1e-9 * max(abs(ref), curve.max_volume_m3 - curve.min_volume_m3) + roundoff
+    assert abs(got - ref) <= tol
 
 
 @settings(max_examples=60, deadline=None)
