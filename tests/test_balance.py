@@ -140,6 +140,8 @@ def test_water_year_labels():
 
 
 def test_boundary_stage_from_readings_interpolates_linearly():
+    """Analytic: readings of a stage rising linearly in time give its exact midnight values;
+    a reading gap longer than the allowed hours leaves that boundary missing."""
     days = pd.date_range("2021-05-01", periods=3, freq="D")
     times = pd.date_range("2021-04-30 23:00", "2021-05-04 01:00", freq="2h")
     hours = (times - pd.Timestamp("2021-05-01")) / pd.Timedelta(hours=1)

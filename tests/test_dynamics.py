@@ -65,6 +65,8 @@ def test_no_equilibrium_in_range():
 
 
 def test_inflow_limits():
+    """Analytic: at equilibrium I = C (h - e)^b + demand, so the inflow holding 4 m is
+    C 2^b + demand, and the outlet flows once the inflow exceeds the demand."""
     c, e, b = 4.0, 2.0, 1.5
     lake = LakeModel(area_fn=_flat(1e6), outflow_fn=_power(c, e, b), demand_m3s=0.3,
                      stage_range_m=(0.0, 10.0))  # fmt: skip

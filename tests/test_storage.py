@@ -71,6 +71,7 @@ def test_clamp_policy_holds_end_values_warns_and_flags():
 
 
 def test_extend_policy_continues_area_linearly_and_stops_at_the_bottom():
+    """Analytic: areas of a triangle and trapezoids under a linear area(h) (elementary geometry)."""
     # area linear in stage (average end area), slope 50 m²/m: bottom at 10 - 100/50 = 8 m
     curve = storage_from_table(
         [10.0, 12.0],
@@ -93,6 +94,7 @@ def test_extend_policy_continues_area_linearly_and_stops_at_the_bottom():
 
 
 def test_prismoidal_extension_uses_the_end_slope_of_area():
+    """Analytic: a cone of area pi (10 h)^2 continued along its end slope dA/dh (calculus)."""
     # cone: area = pi (10 h)^2, dA/dh at h=2 is 2 pi 100 h = 400 pi
     h = np.array([0.0, 1.0, 2.0])
     curve = storage_from_table(h, math.pi * (10 * h) ** 2, above="extend")
@@ -111,6 +113,8 @@ def test_table_at_a_regular_step_includes_both_ends():
 
 
 def test_integrate_area_rules_differ_as_the_formulas_say():
+    """Frustum (prismoidal) rule dh/3 (A1 + A2 + sqrt(A1 A2)) and average end area dh (A1 + A2)/2
+    worked by hand (solid geometry, common practice, no source)."""
     h, a = [0.0, 3.0], [100.0, 400.0]
     assert integrate_area(h, a, "prismoidal")[-1] == pytest.approx(3 / 3 * (500 + 200))
     assert integrate_area(h, a, "average_end_area")[-1] == pytest.approx(3 * 250)
@@ -128,6 +132,7 @@ def test_table_listed_from_the_top_is_accepted():
 
 
 def test_bottom_level_adds_the_cone_below_the_lowest_row():
+    """Analytic: area pi h^2 from a bottom at 0 is a cone, V(2) = pi r^2 h / 3 = 8 pi / 3."""
     curve = storage_from_table([1.0, 2.0], [math.pi, 4 * math.pi], bottom_stage_m=0.0)
     assert curve.min_stage_m == 0.0
     assert float(curve.volume(2.0) - curve.volume(0.0)) == pytest.approx(8 * math.pi / 3)
