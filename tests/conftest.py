@@ -6,8 +6,15 @@ import os
 from pathlib import Path
 
 import pytest
+from hypothesis import settings
 
 os.environ.setdefault("MPLBACKEND", "Agg")
+
+# CI runs the property tests on a fixed sequence of examples, so that a green run is repeatable;
+# locally hypothesis explores new examples each run (and keeps failures in .hypothesis/).
+settings.register_profile("ci", derandomize=True, print_blob=True)
+if os.environ.get("CI"):
+    settings.load_profile("ci")
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "data_demo"
