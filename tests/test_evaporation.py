@@ -326,15 +326,7 @@ def _write_site(tmp_path, extra=""):
     return path
 
 
-def _cli_ready():
-    from lakebalance import io
-
-    if not hasattr(io, "read_records"):
-        pytest.skip("the record readers are not in this tree yet")
-
-
 def test_cli_evaporation_json_lists_pan_and_three_computed_methods(tmp_path, capsys):
-    _cli_ready()
     from lakebalance.cli import main
 
     path = _write_site(tmp_path)
@@ -351,7 +343,6 @@ def test_cli_evaporation_json_lists_pan_and_three_computed_methods(tmp_path, cap
 
 
 def test_cli_evaporation_impossible_method_is_one_error_line_exit_2(tmp_path, capsys):
-    _cli_ready()
     from lakebalance.cli import main
 
     path = _write_site(tmp_path, extra="")
