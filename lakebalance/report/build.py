@@ -976,6 +976,16 @@ def _year_in_words(run: SiteRun, head: dict[str, Any], previous: dict[str, Any])
             f"{head['complete_days']} days had every term measured; the others are left "
             "out of the totals, never counted as zero."
         )
+    wy = run.balance.water_years()
+    full = wy[wy["complete_days"] >= 300]
+    if head.get("inflow_m3") is not None and len(full) > 1:
+        mean_inflow = float(full["inflow_m3"].mean())
+        if mean_inflow > 0:
+            out.append(
+                f"Gauged inflow was {_fmt(head['inflow_m3'] / 1e3, 1)} thousand m³, "
+                f"{100.0 * head['inflow_m3'] / mean_inflow:.0f} % of the mean of the "
+                f"{len(full)} water years with at least 300 complete days."
+            )
     if previous.get("residual_m3") is not None and res is not None:
         change = res - previous["residual_m3"]
         out.append(
