@@ -175,7 +175,7 @@ class TermErrors:
     gauges 5–15%, lake evaporation 10–20% by mass-transfer or pan methods (about 15%); metered
     withdrawals and releases are usually better than 5%. Neff and Nicholas (2005) give monthly
     component uncertainties of 1.5–45% for the Great Lakes. A stage resolution of 0.003 m
-    (0.01 ft) is a common recording resolution (from memory); an area error of 2% of the storage
+    (0.01 ft) is a common gauge resolution (from memory); an area error of 2% of the storage
     relation is common practice, no source. The split of each term's error into a part that
     persists over a water year (``systematic`` share of the variance) and a day-to-day
     independent part is a modelling assumption (common practice, no source).
