@@ -39,7 +39,8 @@ def parse_timestamps(
     time: object | None = None,
     timezone: str = "UTC",
     source_timezone: str | None = None,
-) -> tuple[pd.DatetimeIndex, np.ndarray]:
+    absolute: bool = False,
+) -> tuple[pd.DatetimeIndex, np.ndarray] | tuple[pd.DatetimeIndex, np.ndarray, pd.DatetimeIndex]:
     """Parse date (and optional time-of-day) cells to naive timestamps on the site's clock.
 
     Parameters
@@ -58,6 +59,9 @@ def parse_timestamps(
         IANA zone of the site (its midnight bounds a day).
     source_timezone : str, optional
         IANA zone of naive timestamps (default: ``timezone``).
+    absolute : bool
+        Also return a clock without daylight-saving jumps, for ordering readings and finding
+        repeated ones.
 
     Returns
     -------
@@ -65,6 +69,11 @@ def parse_timestamps(
         Naive local time of the site; NaT where a cell does not parse.
     bad : numpy.ndarray of bool
         True where a non-empty cell did not parse.
+    ordering : pandas.DatetimeIndex
+        Only with ``absolute``: naive UTC for cells with an offset and for naive cells of another
+        ``source_timezone``; for naive cells on the site's clock, UTC with the repeated autumn
+        hour told apart by the order of the rows, or the site's local time when the order does
+        not tell.
 
     Notes
     -----
@@ -123,7 +132,36 @@ def parse_timestamps(
                             pd.to_datetime(s, dayfirst=dayfirst, errors="coerce", utc=aware)
                         )
     bad = np.asarray(parsed.isna()) & ~empty
-    return to_site_time(parsed, timezone, source_timezone).as_unit("ns"), bad
+    local = to_site_time(parsed, timezone, source_timezone).as_unit("ns")
+    if not absolute:
+        return local, bad
+    return local, bad, _ordering_clock(parsed, local, timezone, source_timezone)
+
+
+def _ordering_clock(
+    parsed: pd.DatetimeIndex, local: pd.DatetimeIndex, timezone: str, source_timezone: str | None
+) -> pd.DatetimeIndex:
+    """Naive UTC where the cells fix the instant (an offset, or another source zone), else the
+    site's local time (see :func:`parse_timestamps`)."""
+    import pandas as pd
+
+    idx = pd.DatetimeIndex(parsed)
+    if idx.tz is not None:
+        return idx.tz_convert("UTC").tz_localize(None).as_unit("ns")
+    if source_timezone and source_timezone != timezone:
+        aware = idx.tz_localize(
+            source_timezone,
+            ambiguous=np.zeros(len(idx), dtype=bool),
+            nonexistent="shift_forward",
+        )
+        return aware.tz_convert("UTC").tz_localize(None).as_unit("ns")
+    try:
+        # A logger on local wall time writes the autumn hour twice, in order: 'infer' tells the
+        # two apart from that order (it raises when it cannot, e.g. rows out of order).
+        aware = idx.tz_localize(timezone, ambiguous="infer", nonexistent="shift_forward")
+    except Exception:  # pytz/zoneinfo raise several types for an ambiguity left unresolved
+        return local
+    return aware.tz_convert("UTC").tz_localize(None).as_unit("ns")
 
 
 def _cell_text(v: object) -> object:

@@ -102,7 +102,8 @@ def aggregate_daily(
     Parameters
     ----------
     times_ns : numpy.ndarray of int64
-        Sorted timestamps (naive local time) in ns since the epoch.
+        Timestamps (naive local time) in ns since the epoch, in time order (the repeated hour
+        when the clocks go back stays inside its day, so days never decrease).
     values : numpy.ndarray of float
         Readings (no NaN), any unit.
     statistic : str
@@ -303,15 +304,17 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
     if spec.source_timezone:
         check_zone(spec.source_timezone, site, spec)
 
-    stamps, bad_date = parse_timestamps(
+    stamps, bad_date, ordering = parse_timestamps(
         raw.dates,
         format=spec.format,
         dayfirst=spec.dayfirst,
         time=raw.times,
         timezone=site.site.timezone,
         source_timezone=spec.source_timezone,
+        absolute=True,
     )
-    t_ns = stamps.asi8.copy()
+    t_ns = stamps.asi8.copy()  # site's local clock: days and dates in messages
+    a_ns = ordering.asi8.copy()  # no daylight-saving jumps: order, repeats and intervals
     nat = np.asarray(stamps.isna())
     if nat.all():
         first_bad = np.flatnonzero(bad_date)
@@ -391,7 +394,7 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
 
     # 5. order and duplicates ----------------------------------------------------------------
     valid = np.flatnonzero(status == _USED)
-    dup = qa.order_and_duplicates(t_ns[valid].view("datetime64[ns]"), si[valid])
+    dup = qa.order_and_duplicates(a_ns[valid].view("datetime64[ns]"), si[valid])
     if dup.out_of_order:
         add(
             "out_of_order",
@@ -413,14 +416,15 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
         )
     if dup.conflict.any():
         status[valid[dup.conflict]] = _REJECTED
-        ct = dup.conflict_times.view(np.int64)
+        ct = t_ns[valid[dup.conflict]]  # local clock for the message
         add(
             "conflicting_duplicate",
             _iso(ct.min()),
             _iso(ct.max()),
-            len(ct),
+            len(dup.conflict_times),
             "set missing",
-            f"{int(dup.conflict.sum())} readings at {len(ct)} timestamps disagree; none was chosen "
+            f"{int(dup.conflict.sum())} readings at {len(dup.conflict_times)} timestamps disagree; "
+            "none was chosen "
             f"(e.g. {_lines_text(file, np.sort(lines[valid[dup.conflict]]), 4)})",
         )
     keep = valid[dup.order]
@@ -429,7 +433,7 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
     r_val = si[keep]
 
     # 6-7. spikes and days --------------------------------------------------------------------
-    steps = np.diff(r_ns)
+    steps = np.diff(a_ns[keep])
     steps = steps[steps > 0]
     interval_s = float(np.median(steps)) / 1e9 if steps.size else SECONDS_PER_DAY
     subdaily = interval_s < 0.9 * SECONDS_PER_DAY
