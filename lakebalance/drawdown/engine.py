@@ -221,7 +221,8 @@ class _Eval:
     ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         u = (h - self.lo) * self.inv_step
         i = u.astype(np.intp)
-        np.clip(i, 0, self.nmax, out=i)
+        np.maximum(i, 0, out=i)
+        np.minimum(i, self.nmax, out=i)
         u -= i
         j = i + self.offset
         qs = self.q_s[j]
@@ -231,7 +232,8 @@ class _Eval:
         if self.inv_ramp:
             rr = (h - self.floor) * self.inv_ramp
             inside = (rr > 0.0) & (rr < 1.0)
-            np.clip(rr, 0.0, 1.0, out=rr)
+            np.maximum(rr, 0.0, out=rr)
+            np.minimum(rr, 1.0, out=rr)
             draw = demand * rr
             ddraw = demand * (inside * self.inv_ramp)
         else:
@@ -264,7 +266,8 @@ def _update(
     """
     g, dg, draw = ev(c, a, inflow, demand)
     z = dg * dt
-    np.clip(z, -700.0, 50.0, out=z)
+    np.maximum(z, -700.0, out=z)
+    np.minimum(z, 50.0, out=z)
     small = np.abs(z) < 1e-10
     phi = np.where(small, dt, np.expm1(z) / np.where(small, 1.0, dg))
     e = np.exp(z)
@@ -290,7 +293,8 @@ def _day_step(
 
     Returns (stage, draw, error estimate in m). ``iterations`` plain fixed-point iterations run
     on all members after the exponential Euler start; members whose last update still moved more
-    than ``tol_m`` go on with a safeguarded iteration (bracketing, bisection fallback). The error
+    than ``tol_m`` go on with a few more plain iterations; those that still do not settle get an
+    infinite estimate, so that the caller re-solves them (:func:`_table_path`). The error
     estimate is the remainder of the linear model at ``h0`` times the weight ``E phi``.
     """
     c, g0, draw, weight, zc = _update(ev, h0, h0, a, inflow, demand, dt)
@@ -300,6 +304,7 @@ def _day_step(
         prev = c
         c, lin0, draw, weight, zc = _update(ev, h0, c, a, inflow, demand, dt)
     bad = ~(np.abs(c - prev) <= tol_m)
+    unsettled = None
     if bad.any():
         idx = np.flatnonzero(bad)
         c, lin0, draw, weight = c.copy(), lin0.copy(), draw.copy(), weight.copy()
@@ -319,10 +324,9 @@ def _day_step(
             h0_b, a_b, in_b, dem_b = h0_b[keep], a_b[keep], in_b[keep], dem_b[keep]
             dt_b, c_b = _pick(dt_b, np.flatnonzero(keep)), c_b[keep]
         else:
-            c_s, lin_s, draw_s, w_s, z_s = _safeguarded(
-                sub, h0_b, g0[idx], c_b, a_b, in_b, dem_b, dt_b, tol_m, span_m
-            )
-            c[idx], lin0[idx], draw[idx], weight[idx], zc[idx] = c_s, lin_s, draw_s, w_s, z_s
+            # not settled: the caller re-solves these from the day's exact path on the grid
+            unsettled = idx
+            c[idx] = np.clip(np.nan_to_num(c_b, nan=0.0) - h0_b, -span_m, span_m) + h0_b
     # the remainder falls off as the square of the distance to c along the path: a third of it
     rem = np.abs(g0 - lin0)
     est = rem * weight / 3.0
@@ -333,101 +337,12 @@ def _day_step(
     speed = np.abs(g0) + np.abs(lin0) + 1e-300
     late = np.maximum(1.0 - move / (np.abs(g0) + 1e-300) / dt, 0.0)
     est = np.maximum(est, move * (rem / speed) * np.exp(np.maximum(zc, -700.0) * late))
+    if unsettled is not None:
+        est[unsettled] = np.inf
     return c, draw, est
 
 
-def _safeguarded(
-    ev: _Eval,
-    h0: np.ndarray,
-    g0: np.ndarray,
-    c: np.ndarray,
-    a: np.ndarray,
-    inflow: np.ndarray,
-    demand: np.ndarray,
-    dt: float | np.ndarray,
-    tol_m: float,
-    span_m: float,
-    max_iter: int = 60,
-) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """Fixed-point iteration kept inside a bracket of the step-end stage.
-
-    In the coordinate ``x = s (h - h0)`` (``s`` the sign of ``g(h0)``) the end stage lies in
-    ``[0, hi]``: a candidate where ``g`` has changed sign is past the equilibrium (new ``hi``); a
-    candidate that the linearised path overshoots is short of the end (new ``lo``).
-    """
-    s = np.where(g0 >= 0.0, 1.0, -1.0)
-    lo = np.zeros_like(h0)
-    hi = np.full_like(h0, span_m)
-    x = np.clip(s * (c - h0), 0.0, span_m)
-    for _ in range(max_iter):
-        cc = h0 + s * x
-        g, _, _ = ev(cc, a, inflow, demand)
-        new, _, _, _, _ = _update(ev, h0, cc, a, inflow, demand, dt)
-        past = s * g < 0.0
-        short = (s * (new - cc) > 0.0) & ~past
-        lo = np.where(short, np.maximum(lo, x), lo)
-        hi = np.where(~short, np.minimum(hi, x), hi)
-        xn = s * (new - h0)
-        inside = (xn > lo) & (xn < hi)
-        xn = np.where(inside, xn, 0.5 * (lo + hi))
-        done = np.abs(xn - x) <= tol_m
-        x = xn
-        if done.all():
-            break
-    c = h0 + s * x
-    _, lin0, draw, weight, z = _update(ev, h0, c, a, inflow, demand, dt)
-    return c, lin0, draw, weight, z
-
-
-def _refine(
-    ev: _Eval,
-    h0: np.ndarray,
-    a: np.ndarray,
-    inflow: np.ndarray,
-    demand: np.ndarray,
-    total_s: float,
-    iterations: int,
-    tol_m: float,
-    span_m: float,
-    err_m: float,
-    bottom_m: float,
-    parts: int = 4,
-) -> tuple[np.ndarray, np.ndarray]:
-    """Re-integrate a step in ``parts`` equal sub-steps; members whose sub-steps still miss the
-    error target go on to :func:`_adaptive`. Returns (stage, mean draw)."""
-    dt = total_s / parts
-    h = h0
-    drawn = np.zeros_like(h0)
-    worst = np.zeros_like(h0)
-    for _ in range(parts):
-        h, draw, est = _day_step(ev, h, a, inflow, demand, dt, iterations, tol_m, span_m)
-        h = np.maximum(h, bottom_m)
-        drawn += draw
-        np.maximum(worst, est, out=worst)
-    drawn /= parts
-    rough = worst > err_m / parts
-    if rough.any():
-        idx = np.flatnonzero(rough)
-        h_r, d_r = _adaptive(
-            ev.subset(idx),
-            h0[idx],
-            a[idx],
-            inflow[idx],
-            demand[idx],
-            total_s,
-            iterations,
-            tol_m,
-            span_m,
-            err_m,
-            bottom_m,
-            first_step_s=total_s / (4 * parts),
-        )
-        h[idx] = h_r
-        drawn[idx] = d_r
-    return h, drawn
-
-
-def _quadrature_step(
+def _table_path(
     ev: _Eval,
     h0: np.ndarray,
     a: np.ndarray,
@@ -435,100 +350,126 @@ def _quadrature_step(
     demand: np.ndarray,
     dt: float,
     guess: np.ndarray,
-    nodes: int = 16,
-    iterations: int = 8,
-) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Day-end stage from the time integral of the autonomous path: ``integral dh / g = dt``.
+    bottom_m: float,
+    span_m: float,
+    max_chunks: int = 24,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Day-end stage of the exact path on the stage grid: ``g`` linear between grid nodes.
 
-    Within a day the path is monotone, so its end ``h1`` solves ``T(h1) = dt`` with
-    ``T(h) = integral from h0 to h of ds / g(s)`` (Gauss-Legendre quadrature, Newton on ``h1``
-    with ``T'(h1) = 1 / g(h1)``). Accurate whatever the nonlinearity as long as the path does not
-    slow down towards an equilibrium (then ``1/g`` is nearly singular); such members are reported
-    as not valid. Returns (stage, draw at the end, valid).
+    Within a day the forcing is constant, so the path is monotone and its time from ``h0`` to
+    ``h`` is ``T(h) = integral ds / g(s)``. With ``g`` linear on a segment ``[p, q]`` (the tables'
+    own resolution: grid nodes, and ``h0`` itself) the time across it is exact,
+
+    .. math::
+
+        t_{pq} = (q - p)\\,\\frac{\\ln(g_q / g_p)}{g_q - g_p},
+
+    infinite when ``g`` changes sign on it (the day's equilibrium), and the position a time
+    ``tau`` after ``p`` is ``p + g_p \\tau (e^{k\\tau} - 1)/(k\\tau)`` with
+    ``k = (g_q - g_p)/(q - p)``. The segment times are summed node by node (in chunks that
+    double in length, all members at once) until they reach ``dt``; no step-size control, no
+    singular quadrature near the equilibrium, and the same answer for slow and stiff lakes.
+    The mean draw is the time-weighted mean over the segments (trapezoid on each).
+
+    Returns (stage, mean draw over the day).
     """
     n = h0.size
-    x, w = np.polynomial.legendre.leggauss(nodes)
-    rep = np.tile(np.arange(n), nodes)
-    evn = ev.subset(rep)
-    a_n, in_n, dem_n = a[rep], inflow[rep], demand[rep]
-    g0, _, _ = ev(h0, a, inflow, demand)
-    s = np.where(g0 >= 0.0, 1.0, -1.0)
-    h1 = guess.copy()
-    ok = np.zeros(n, dtype=bool)
-    g_nodes = np.ones((nodes, n))
-    for _ in range(iterations):
-        half = 0.5 * (h1 - h0)
-        pts = (0.5 * (h1 + h0) + half * x[:, None]).ravel()
-        g_nodes = evn(pts, a_n, in_n, dem_n)[0].reshape(nodes, n)
+    g0, _, d0 = ev(h0, a, inflow, demand)
+    s = np.where(g0 > 0.0, 1.0, -1.0)
+    step = ev.step_m
+    u0 = (h0 - ev.lo) * ev.inv_step
+    node = np.where(s > 0.0, np.floor(u0) + 1.0, np.ceil(u0) - 1.0)
+    p, gp, dp = h0.copy(), g0.copy(), d0.copy()
+    elapsed = np.zeros(n)
+    drawn = np.zeros(n)
+    h1 = h0.copy()
+    mean_draw = d0.copy()
+    active = np.flatnonzero(g0 != 0.0)
+    # first chunk: the cells to the one-step estimate, with a margin
+    cells = np.abs(guess - h0) * ev.inv_step * 1.25 + 8.0
+    chunk = int(min(max(np.max(cells[active]) if active.size else 8.0, 8.0), 65536.0))
+    budget = 1 << 20  # nodes evaluated per chunk over all members (memory)
+    top = ev.lo + span_m + (ev.nmax + 1) * step
+    for _ in range(max_chunks):
+        if active.size == 0:
+            break
+        m = active.size
+        chunk = max(8, min(chunk, budget // m))
+        j = np.arange(chunk, dtype=float)
+        idx_nodes = node[active, None] + s[active, None] * j  # (m, chunk)
+        x = ev.lo + idx_nodes * step
+        rep = np.repeat(active, chunk)
+        gx, _, dx = ev.subset(rep)(x.ravel(), a[rep], inflow[rep], demand[rep])
+        gx, dx = gx.reshape(m, chunk), dx.reshape(m, chunk)
+        pts = np.concatenate([p[active, None], x], axis=1)
+        gs = np.concatenate([gp[active, None], gx], axis=1)
+        ds = np.concatenate([dp[active, None], dx], axis=1)
+        sa = s[active, None]
+        delta = np.diff(pts, axis=1)
+        ga, gb = gs[:, :-1], gs[:, 1:]
+        through = sa * gb > 0.0  # no equilibrium on the segment
         with np.errstate(divide="ignore", invalid="ignore"):
-            t = half * (w[:, None] / g_nodes).sum(axis=0)
-        g1, _, _ = ev(h1, a, inflow, demand)
-        miss = t - dt
-        ok = np.abs(miss) <= 1e-7 * dt
-        new = h1 - miss * g1
-        # stay on the side of h0 the path goes to
-        new = np.where(s * (new - h0) < 0.0, 0.5 * (h1 + h0), new)
-        h1 = np.where(np.isfinite(new), new, h1)
-        if ok.all():
-            break
-    g1, _, draw = ev(h1, a, inflow, demand)
-    gmax = np.max(np.abs(g_nodes), axis=0)
-    same = np.all(s * g_nodes > 0.0, axis=0) & (s * g1 > 0.0)
-    valid = ok & same & (np.abs(g1) >= 0.3 * np.maximum(gmax, np.abs(g0)))
-    return h1, draw, valid
-
-
-def _adaptive(
-    ev: _Eval,
-    h0: np.ndarray,
-    a: np.ndarray,
-    inflow: np.ndarray,
-    demand: np.ndarray,
-    total_s: float,
-    iterations: int,
-    tol_m: float,
-    span_m: float,
-    err_m: float,
-    bottom_m: float,
-    first_step_s: float | np.ndarray | None = None,
-    min_step_s: float = 60.0,
-    max_loops: int = 2000,
-) -> tuple[np.ndarray, np.ndarray]:
-    """Per-member adaptive sub-stepping over ``total_s`` (s) for the members of ``ev``.
-
-    Each member has its own step, halved when the error estimate of a step exceeds its share of
-    ``err_m`` and doubled after an accepted step. Returns (stage, mean draw)."""
-    h = h0.copy()
-    rem = np.full_like(h0, total_s)
-    if first_step_s is None:
-        step = np.full_like(h0, total_s / 4.0)
-    else:
-        step = np.broadcast_to(np.asarray(first_step_s, dtype=float), h0.shape).copy()
-    drawn = np.zeros_like(h0)
-    for _ in range(max_loops):
-        ids = np.flatnonzero(rem > 0.0)
-        if ids.size == 0:
-            break
-        dtm = np.minimum(step[ids], rem[ids])
-        c, draw, est = _day_step(
-            ev.subset(ids), h[ids], a[ids], inflow[ids], demand[ids], dtm, 1, tol_m, span_m
-        )
-        # budget: a share of err_m in proportion to the step, plus 1e-4 of the move (the tables'
-        # piecewise-linear slopes put a floor under the estimate of very short steps); a step
-        # that moves less than a few grid cells is at the tables' own resolution
-        move = np.abs(c - h[ids])
-        budget = err_m * dtm / total_s + 1e-4 * move
-        ok = (est <= budget) | (dtm <= min_step_s) | (move <= 4.0 * ev.step_m)
-        # step-size control: the estimate grows as the cube of the step on smooth stretches
-        with np.errstate(divide="ignore"):
-            factor = np.clip(0.9 * np.cbrt(budget / est), 0.2, 5.0)
-        acc = ids[ok]
-        h[acc] = np.maximum(c[ok], bottom_m)
-        rem[acc] = np.where(rem[acc] - dtm[ok] <= 1e-9 * total_s, 0.0, rem[acc] - dtm[ok])
-        drawn[acc] += draw[ok] * dtm[ok]
-        step[acc] = dtm[ok] * factor[ok]
-        step[ids[~ok]] = dtm[~ok] * np.minimum(factor[~ok], 0.5)
-    return h, drawn / total_s
+            r = np.where(through, gb / ga - 1.0, 0.0)
+            lr = np.where(np.abs(r) < 1e-8, 1.0 - 0.5 * r, np.log1p(r) / r)
+            t_seg = np.where(through, delta / ga * lr, np.inf)
+        cum = elapsed[active, None] + np.cumsum(t_seg, axis=1)
+        reach = cum >= dt
+        hit = reach.any(axis=1)
+        first = np.argmax(reach, axis=1)
+        # members that end inside this chunk
+        hi = np.flatnonzero(hit)
+        if hi.size:
+            f = first[hi]
+            before = np.where(f > 0, cum[hi, f - 1], elapsed[active[hi]])
+            tau = dt - before
+            pa, pb = pts[hi, f], pts[hi, f + 1]
+            g_a, g_b = gs[hi, f], gs[hi, f + 1]
+            width = pb - pa
+            k = np.where(width != 0.0, (g_b - g_a) / np.where(width != 0.0, width, 1.0), 0.0)
+            z = np.clip(k * tau, -700.0, 700.0)
+            small = np.abs(z) < 1e-10
+            phi = np.where(small, 1.0 + 0.5 * z, np.expm1(z) / np.where(small, 1.0, z))
+            end = pa + g_a * tau * phi
+            lo_b, hi_b = np.minimum(pa, pb), np.maximum(pa, pb)
+            end = np.clip(end, lo_b, hi_b)
+            # draw: trapezoid on the whole segments, then on the last part
+            seg_draw = np.where(np.isfinite(t_seg[hi]), 0.5 * (ds[hi, :-1] + ds[hi, 1:]), 0.0)
+            seg_t = np.where(np.isfinite(t_seg[hi]), t_seg[hi], 0.0)
+            upto = np.arange(chunk)[None, :] < f[:, None]
+            part = (seg_draw * seg_t * upto).sum(axis=1)
+            _, _, d_end = ev.subset(active[hi])(
+                end, a[active[hi]], inflow[active[hi]], demand[active[hi]]
+            )
+            part += tau * 0.5 * (ds[hi, f] + d_end)
+            ids = active[hi]
+            h1[ids] = end
+            mean_draw[ids] = (drawn[ids] + part) / dt
+        # the others go on from the chunk's last node
+        go = np.flatnonzero(~hit)
+        if go.size:
+            ids = active[go]
+            seg_draw = 0.5 * (ds[go, :-1] + ds[go, 1:])
+            drawn[ids] += (seg_draw * t_seg[go]).sum(axis=1)
+            elapsed[ids] = cum[go, -1]
+            p[ids], gp[ids], dp[ids] = pts[go, -1], gs[go, -1], ds[go, -1]
+            node[ids] += s[ids] * chunk
+            # below the empty lake (the path is stopped there) or far above the grid
+            out = (p[ids] <= bottom_m) | (p[ids] >= top)
+            if out.any():
+                o = ids[out]
+                h1[o] = np.maximum(p[o], bottom_m)
+                rest = dt - elapsed[o]
+                _, _, d_o = ev.subset(o)(h1[o], a[o], inflow[o], demand[o])
+                mean_draw[o] = (drawn[o] + rest * d_o) / dt
+                ids = ids[~out]
+            active = ids
+        else:
+            active = active[:0]
+        chunk = min(2 * chunk, 65536)
+    if active.size:  # not reached within the chunks: where the scan stopped
+        h1[active] = p[active]
+        mean_draw[active] = drawn[active] / np.maximum(elapsed[active], 1e-300)
+    return h1, mean_draw
 
 
 def crossing_fraction(
@@ -666,28 +607,16 @@ def simulate(
             rough = est > err_m / substeps
             if rough.any():
                 idx = np.flatnonzero(rough)
-                h_q, draw_q, valid = _quadrature_step(
-                    ev.subset(idx), h_prev[idx], a[idx], q_in[idx], dem[idx], dt, h[idx]
-                )
-                h[idx[valid]] = h_q[valid]
-                draw[idx[valid]] = draw_q[valid]
-                idx = idx[~valid]
-            if rough.any() and idx.size:
-                # first sub-step from the day's estimate (error ~ step cubed)
-                first = dt * np.clip(0.8 * np.cbrt(err_m / substeps / est[idx]), 1e-3, 0.5)
-                h_r, draw_r = _adaptive(
+                h_r, draw_r = _table_path(
                     ev.subset(idx),
                     h_prev[idx],
                     a[idx],
                     q_in[idx],
                     dem[idx],
                     dt,
-                    iterations,
-                    tol_m,
-                    span,
-                    err_m / substeps,
+                    h[idx],
                     bottom,
-                    first_step_s=first,
+                    span,
                 )
                 h[idx] = h_r
                 draw[idx] = draw_r
