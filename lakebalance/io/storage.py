@@ -136,7 +136,8 @@ def _read_contours(options: StorageOptions, path: Path) -> StorageCurve:
 
     contours = read_contours(path, layer=options.layer, elevation_field=options.elevation_field)
     elevation_m = to_si(contours.elevation, options.elevation_units, "length", "contour elevation")
-    stage = elevation_m - options.datum_offset
+    # to the nanometre: 100 ft - 30.48 m is -3.6e-15 m in floating point, not the 0 m surveyed
+    stage = np.round(elevation_m - options.datum_offset, 9) + 0.0  # + 0.0: no negative zero
     return storage_from_table(
         stage,
         contours.area_m2,
@@ -165,7 +166,7 @@ def _read_outline(options: StorageOptions, path: Path, site_file: Path | None) -
         elevation_m = float(
             to_si(np.array([elevation]), options.elevation_units, "length", "outline elevation")[0]
         )
-        stage = elevation_m - options.datum_offset
+        stage = round(elevation_m - options.datum_offset, 9) + 0.0
     else:
         raise ConfigError(
             "[storage] source = 'outline' needs 'outline_stage' (m), or an "

@@ -1,0 +1,38 @@
+"""Storage relation from contours in feet with a datum offset in metres (invented basin).
+
+Reference: the exact circle area pi r^2 (analytic), and the international foot = 0.3048 m
+exactly (NIST SP 811, appendix B.8).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+import lakebalance as lb
+
+
+def test_contour_stage_after_a_datum_offset_is_the_surveyed_zero(tmp_path):
+    gpd = pytest.importorskip("geopandas")
+    pyproj = pytest.importorskip("pyproj")
+    from shapely.geometry import Point
+
+    crs = pyproj.CRS.from_proj4("+proj=laea +lat_0=-30.5 +lon_0=139 +datum=WGS84")
+    elev_ft = np.array([100.0, 102.0, 104.0])
+    radii = np.array([200.0, 320.0, 440.0])  # m
+    layer = gpd.GeoDataFrame(
+        {"ELEV": elev_ft}, geometry=[Point(0, 0).buffer(r, 512) for r in radii], crs=crs
+    ).to_crs(4326)
+    layer.to_file(tmp_path / "contours.geojson", driver="GeoJSON")
+    (tmp_path / "site.toml").write_text(
+        '[site]\nname = "Round Lake (invented)"\n\n[storage]\nsource = "contours"\n'
+        'file = "contours.geojson"\nelevation_field = "ELEV"\nelevation_units = "ft"\n'
+        "datum_offset = 30.48\n"
+    )
+    curve = lb.load_storage(lb.load_site(tmp_path / "site.toml"))
+    # 100 ft - 30.48 m is 0 m exactly on paper; in floating point it was -3.6e-15 m
+    assert curve.min_stage_m == 0.0
+    assert str(curve.min_stage_m) == "0.0"
+    assert curve.max_stage_m == pytest.approx(4 * 0.3048, abs=1e-9)
+    # a 512-segment polygon holds pi r^2 to 2.5e-5 (inscribed polygon, analytic)
+    assert curve.area(np.array(0.0)) == pytest.approx(np.pi * 200.0**2, rel=1e-4)
