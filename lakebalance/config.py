@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import dataclasses
 import datetime as _dt
+import math
 import re
 import tomllib
 import types
@@ -421,6 +422,8 @@ def _coerce(tp: Any, value: Any, ctx: _Ctx, where: str, key: str) -> Any:
                 return _coerce(alt, value, ctx, where, key)
             except ConfigError as exc:
                 errors.append(exc)
+        if len(errors) == 1:  # one type and None: that type's own message
+            raise errors[0]
         raise ctx.error(f"'{full}' must be {_type_name(tp)}, got {value!r}", where, key)
     if origin is Literal:
         allowed = get_args(tp)
@@ -462,6 +465,8 @@ def _coerce(tp: Any, value: Any, ctx: _Ctx, where: str, key: str) -> Any:
     if tp is float:
         if isinstance(value, bool) or not isinstance(value, int | float):
             raise ctx.error(f"'{full}' must be a number, got {value!r}", where, key)
+        if not math.isfinite(value):  # TOML allows nan and inf; no key of ours means them
+            raise ctx.error(f"'{full}' must be a finite number, got {value!r}", where, key)
         return float(value)
     if tp is str:
         if isinstance(value, _dt.date | _dt.datetime):
@@ -508,11 +513,32 @@ def quantity(value: float | str, unit: str, kind: str, what: str) -> float:
     from .units import conversion
 
     if isinstance(value, int | float) and not isinstance(value, bool):
+        if not math.isfinite(value):
+            raise UnitError(f"{what}: expected a finite number, got {value!r}")
         return float(conversion(unit, kind, what).apply(float(value)))
     m = re.match(r"^\s*([-+]?\d*\.?\d+(?:[eE][-+]?\d+)?)\s*(.+?)\s*$", str(value))
     if not m:
         raise UnitError(f"{what}: expected a number with a unit, got {value!r}")
     return float(conversion(m.group(2), kind, what).apply(float(m.group(1))))
+
+
+#: Ranges of the [site] keys (inclusive), checked with the key's line.
+_SITE_RANGES = {
+    "latitude": (-90.0, 90.0, "decimal degrees, north positive"),
+    "longitude": (-180.0, 360.0, "decimal degrees, east positive"),
+    "water_year_start": (1, 12, "the first month of the reporting year"),
+}
+
+
+def _check_site_ranges(info: SiteInfo, ctx: _Ctx) -> None:
+    for key, (lo, hi, meaning) in _SITE_RANGES.items():
+        value = getattr(info, key)
+        if value is not None and not lo <= value <= hi:
+            raise ctx.error(
+                f"'site.{key}' must be between {lo:g} and {hi:g} ({meaning}), got {value!r}",
+                "site",
+                key,
+            )
 
 
 def parse_site(data: dict[str, Any], path: Path, text: str = "") -> Site:
@@ -528,6 +554,8 @@ def parse_site(data: dict[str, Any], path: Path, text: str = "") -> Site:
     for key, cls in _TOP_SECTIONS.items():
         if key in data:
             kwargs[key] = _build(cls, data[key], ctx, key)
+    if "site" in kwargs:
+        _check_site_ranges(kwargs["site"], ctx)
     series: list[SeriesSpec] = []
     raw_series = data.get("series", {})
     if not isinstance(raw_series, dict):
