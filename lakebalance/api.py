@@ -433,6 +433,11 @@ def close_balance(
         terms, volume_fn=volume_fn, area_fn=area_fn, outflow_fn=outflow, options=options
     )
     n_draws = site.uncertainty.draws if draws is None else int(draws)
+    if n_draws == 1 or n_draws < 0:
+        raise ConfigError(
+            f"Monte Carlo draws must be 0 (no bands) or at least 2 for a 5-95% band, got {n_draws}",
+            file=site.path,
+        )
     if n_draws > 0:
         if rng is None:
             seed = site.site.seed if seed is None else int(seed)

@@ -653,7 +653,10 @@ class StorageCurve:
         lo, hi = self.min_stage_m, self.max_stage_m
         n_steps = (hi - lo) / step_m
         if n_steps > 1e6:
-            raise ValueError(f"step {step_m} m gives more than a million rows over the range")
+            raise RangeError(
+                f"a step of {step_m:g} m gives more than a million rows over the relation's "
+                f"{hi - lo:.4g} m: choose a coarser step"
+            )
         first = np.ceil(lo / step_m - 1e-9)
         last = np.floor(hi / step_m + 1e-9)
         grid = np.arange(first, last + 1) * step_m
