@@ -286,7 +286,24 @@ class LakeModel:
                 inflow_m3s - self.net_loss_m3s(np.array(h))
             )
 
-        value, _ = quad(rate, h0, h1, limit=200, epsabs=0.0, epsrel=1e-10)
+        import warnings
+
+        from scipy.integrate import IntegrationWarning
+
+        with warnings.catch_warnings():
+            # quad's round-off notice is about the last digits asked for (1e-10); its own error
+            # estimate says whether the value is usable, and is checked instead.
+            warnings.simplefilter("ignore", IntegrationWarning)
+            value, error = quad(rate, h0, h1, limit=200, epsabs=0.0, epsrel=1e-10)
+        if np.isfinite(value) and value and abs(error) > 1e-3 * abs(value):
+            from .errors import ApproximationWarning
+
+            warnings.warn(
+                f"time from {h0:.3f} m to {h1:.3f} m known only to about "
+                f"{abs(error) / abs(value):.1%} (the inflow nearly balances the losses on the way)",
+                ApproximationWarning,
+                stacklevel=2,
+            )
         return float(value) if value >= 0 else math.inf
 
     def time_to_fraction(self, inflow_m3s: float, start_stage_m: float, fraction: float = 0.95):
