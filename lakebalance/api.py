@@ -573,11 +573,30 @@ def lake_dynamics(
     levels = dict(site.levels)
     lo = float(storage.min_stage_m)
     hi = float(storage.max_stage_m)
+    outside = {k: v for k, v in levels.items() if not lo <= v <= hi}
+    if outside and storage.above != "error" and storage.below != "error":
+        import warnings
+
+        from .errors import ExtrapolationWarning
+
+        warnings.warn(
+            "named level(s) outside the storage relation "
+            f"({lo:.4g} to {hi:.4g} m): "
+            + ", ".join(f"{k} {v:.4g} m" for k, v in outside.items())
+            + f"; the area there follows the relation's policies (below '{storage.below}', "
+            f"above '{storage.above}')",
+            ExtrapolationWarning,
+            stacklevel=2,
+        )
     if storage.above == "extend" and levels:
         hi = max(hi, *levels.values())  # named levels above the survey: area extended
+
+    def quiet_area(h):  # days outside the relation were reported by the balance, levels above
+        return storage.area(h, warn=False)
+
     outflow = rating.discharge if rating is not None else None
     lake = LakeModel(
-        area_fn=storage.area,
+        area_fn=quiet_area,
         outflow_fn=outflow,
         seepage_fn=seepage.rate_m3s if seepage is not None else None,
         evaporation_m_per_d=evap,

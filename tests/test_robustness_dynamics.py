@@ -54,3 +54,41 @@ def test_dynamics_text_of_a_lake_without_outlet_or_levels_has_no_nan(tmp_path, c
     assert "nan" not in out.lower().replace("nans", "")
     assert "Empty DataFrame" not in out
     assert "no outlet rating" in out
+
+
+def test_time_to_95_percent_under_an_orifice_law_matches_the_analytic_integral():
+    """dh/dt = (I - K sqrt(h - e)) / A with constant A: with u = sqrt(h - e), separation of
+    variables gives t = (2A/K) [-(u1 - u0) - (I/K) ln((I - K u1) / (I - K u0))] (analytic,
+    common practice, no source). The orifice site once leaked scipy's round-off notice here."""
+    import math
+    import warnings
+
+    import numpy as np
+
+    from lakebalance.dynamics import LakeModel
+
+    area, k, e, inflow = 3.0e5, 1.2, -0.5, 2.0  # m², m^2.5/s, m, m³/s (invented)
+    lake = LakeModel(
+        area_fn=lambda h: np.full(np.shape(h), area),
+        outflow_fn=lambda h: k * np.sqrt(np.clip(np.asarray(h) - e, 0.0, None)),
+        stage_range_m=(0.0, 6.0),
+    )
+    h_eq = (inflow / k) ** 2 + e
+    h0 = 0.3
+    target = h0 + 0.95 * (h_eq - h0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        t = lake.time_to_fraction(inflow, h0, 0.95)
+    u0, u1 = math.sqrt(h0 - e), math.sqrt(target - e)
+    exact = (2 * area / k) * (
+        -(u1 - u0) - inflow / k * math.log((inflow - k * u1) / (inflow - k * u0))
+    )
+    assert t == pytest.approx(exact, rel=1e-6)
+
+
+def test_levels_far_outside_the_storage_relation_warn_once(tmp_path, capsys):
+    site_path = write_site(tmp_path, days=60, extra_toml='\n[levels]\nflood = "40 m"\n')
+    assert main(["dynamics", str(site_path)]) == 0
+    err = capsys.readouterr().err
+    assert err.count("storage relation") == 1
+    assert "flood 40 m" in err
