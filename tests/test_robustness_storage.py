@@ -36,3 +36,26 @@ def test_contour_stage_after_a_datum_offset_is_the_surveyed_zero(tmp_path):
     assert curve.max_stage_m == pytest.approx(4 * 0.3048, abs=1e-9)
     # a 512-segment polygon holds pi r^2 to 2.5e-5 (inscribed polygon, analytic)
     assert curve.area(np.array(0.0)) == pytest.approx(np.pi * 200.0**2, rel=1e-4)
+
+
+def test_check_states_the_outline_approximation_once_and_plainly(tmp_path, capsys):
+    gpd = pytest.importorskip("geopandas")
+    from shapely.geometry import Point
+
+    from lakebalance.cli import main
+
+    layer = gpd.GeoDataFrame(geometry=[Point(0, 0).buffer(500.0, 256)], crs="EPSG:32633")
+    layer.to_file(tmp_path / "outline.gpkg", layer="shore", driver="GPKG")
+    pd = pytest.importorskip("pandas")
+    idx = pd.date_range("2021-01-01", periods=30, freq="D")
+    pd.DataFrame({"date": idx.strftime("%Y-%m-%d"), "value": 4.0}).to_csv(
+        tmp_path / "stage.csv", index=False
+    )
+    (tmp_path / "site.toml").write_text(
+        '[site]\nname = "Outline Lake (invented)"\n\n[storage]\nsource = "outline"\n'
+        'file = "outline.gpkg"\nmax_depth = 8.0\noutline_stage = 8.0\n\n'
+        '[series.stage]\nfile = "stage.csv"\nunits = "m"\n'
+    )
+    assert main(["check", str(tmp_path / "site.toml")]) == 0
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and err[0].startswith("warning: the storage relation is approximated")

@@ -39,13 +39,22 @@ def _storage_findings(site, records) -> tuple[list, str | None]:
 def run(args: argparse.Namespace) -> int:
     """Load the records, print the report (text or JSON), return 0."""
     import sys
+    import warnings
 
     from .. import api
     from .._json import dumps
+    from ..errors import LakebalanceWarning
 
     site = api.load_site(args.site)
-    records = api.load_records(site, progress=not args.json)
-    extra, note = _storage_findings(site, records)
+    with warnings.catch_warnings(record=True) as caught:
+        # stated once, plainly, after the report (not as Python's file:line warning text)
+        warnings.simplefilter("always", LakebalanceWarning)
+        records = api.load_records(site, progress=not args.json)
+        extra, note = _storage_findings(site, records)
+    messages = list(dict.fromkeys(str(w.message) for w in caught))
+    for w in caught:
+        if not issubclass(w.category, LakebalanceWarning):  # someone else's: as it came
+            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
     findings = list(records.findings) + extra
     if args.json:
         doc = {
@@ -82,6 +91,7 @@ def run(args: argparse.Namespace) -> int:
             ],
             "accounting": list(records.accounting),
             "notes": [note] if note else [],
+            "warnings": messages,
         }
         print(dumps(doc))
         return 0
@@ -121,4 +131,6 @@ def run(args: argparse.Namespace) -> int:
         )
     if note:
         print(f"note: {note}", file=out)
+    for m in messages:
+        print(f"warning: {m}", file=sys.stderr)
     return 0
