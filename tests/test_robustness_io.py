@@ -11,7 +11,7 @@ from _robust_sites import write_site
 
 import lakebalance as lb
 from lakebalance.cli import main
-from lakebalance.errors import InputError, UnitError
+from lakebalance.errors import DataQualityWarning, InputError, UnitError
 from lakebalance.units import parse_unit
 
 
@@ -61,3 +61,29 @@ def test_extra_text_column_without_header_is_still_read(tmp_path):
     records = lb.load_records(lb.load_site(site))
     assert records.daily["inflow"].notna().all()
     assert records.daily["inflow"].iloc[0] == pytest.approx(0.2, abs=1e-12)
+
+
+def test_weekly_stage_and_monthly_meter_totals_are_warned_about(tmp_path):
+    """A staff gauge read weekly and a meter read monthly: the reader keeps each reading on its
+    own day (docs/data-files.md), so it says plainly what that means for the balance."""
+    import warnings
+
+    import pandas as pd
+
+    site = write_site(tmp_path, days=140)
+    stage = tmp_path / "stage.csv"
+    pd.read_csv(stage).iloc[::7].to_csv(stage, index=False)
+    months = pd.date_range("2021-01-31", periods=12, freq="ME")
+    pd.DataFrame({"date": months.strftime("%Y-%m-%d"), "value": 3000.0}).to_csv(
+        tmp_path / "meter.csv", index=False
+    )
+    text = site.read_text().replace(
+        "[uncertainty]", '[series.withdrawal]\nfile = "meter.csv"\nunits = "m3"\n\n[uncertainty]'
+    )
+    site.write_text(text)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        lb.load_records(lb.load_site(site))
+    messages = [str(w.message) for w in caught if issubclass(w.category, DataQualityWarning)]
+    assert any("series.stage: readings about every 7 days" in m for m in messages)
+    assert any("withdrawal" in m and "not spread over them" in m for m in messages)

@@ -437,6 +437,8 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
     steps = steps[steps > 0]
     interval_s = float(np.median(steps)) / 1e9 if steps.size else SECONDS_PER_DAY
     subdaily = interval_s < 0.9 * SECONDS_PER_DAY
+    if interval_s >= 1.9 * SECONDS_PER_DAY and steps.size >= 10:  # a record, not a few rows
+        _warn_coarse(what, file, interval_s / SECONDS_PER_DAY, conv.amount)
     resolution = None
     if spec.resolution is not None:
         resolution = abs(float(conv.scale)) * float(spec.resolution)
@@ -650,3 +652,23 @@ def _why_none(findings: list[Finding], example: str | None) -> str:
         if re.fullmatch(r"[-+]?\d*,\d+", example):
             text += " (a decimal comma? set decimal = ',')"
     return text
+
+
+def _warn_coarse(what: str, file: str, every_days: float, amount: bool) -> None:
+    """Warn that readings several days apart are not spread over the days between them."""
+    import warnings
+
+    from ..errors import DataQualityWarning
+
+    if amount:
+        effect = (
+            "each reading is taken as the amount of its own day; a total over several days is "
+            "not spread over them (give daily amounts)"
+        )
+    else:
+        effect = "each reading is its own day's value and the days between are missing"
+    warnings.warn(
+        f"{what}: readings about every {every_days:.3g} days ({file}): {effect}",
+        DataQualityWarning,
+        stacklevel=3,
+    )
