@@ -42,6 +42,7 @@ from __future__ import annotations
 
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
+from functools import lru_cache
 
 import numpy as np
 
@@ -207,6 +208,9 @@ class _Eval:
         self.q = t._outflow_flat
         self.q_s = t._outflow_slope
         self.floor = t.floor_m
+        # candidates of the fixed-point map are kept within one grid span of the grid
+        self.keep_lo = t.stage0_m - (t.size - 1) * t.step_m
+        self.keep_hi = t.stage0_m + 2.0 * (t.size - 1) * t.step_m
         self.inv_ramp = 1.0 / t.ramp_m if t.ramp_m > 0 else 0.0
 
     def subset(self, idx: np.ndarray) -> _Eval:
@@ -272,6 +276,8 @@ def _update(
     phi = np.where(small, dt, np.expm1(z) / np.where(small, 1.0, dg))
     e = np.exp(z)
     new = c + (h0 - c) * e + phi * g
+    np.maximum(new, ev.keep_lo, out=new)  # no runaway of an unstable iteration
+    np.minimum(new, ev.keep_hi, out=new)
     # E phi weights the remainder by how long the path stays away from c: ~dt for a slow lake,
     # ~0 for a stiff one that reaches c early in the step.
     weight = e * phi
@@ -335,7 +341,12 @@ def _day_step(
     # remainder, damped by the relaxation left after the estimated arrival time
     move = np.abs(c - h0)
     speed = np.abs(g0) + np.abs(lin0) + 1e-300
-    late = np.maximum(1.0 - move / (np.abs(g0) + 1e-300) / dt, 0.0)
+    # arrival time from the speeds at h0 and halfway to c (harmonic mean): a path that slows down
+    # on the way (a drop of g at the intake ramp or an outlet sill) arrives late or never
+    gm, _, _ = ev(0.5 * (h0 + c), a, inflow, demand)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        arrive = 0.5 * move * (1.0 / np.abs(g0) + 1.0 / np.abs(gm))
+        late = np.fmax(1.0 - arrive / dt, 0.0)  # a member that does not move: 0 (not NaN)
     est = np.maximum(est, move * (rem / speed) * np.exp(np.maximum(zc, -700.0) * late))
     if unsettled is not None:
         est[unsettled] = np.inf
@@ -431,7 +442,7 @@ def _table_path(
             phi = np.where(small, 1.0 + 0.5 * z, np.expm1(z) / np.where(small, 1.0, z))
             end = pa + g_a * tau * phi
             lo_b, hi_b = np.minimum(pa, pb), np.maximum(pa, pb)
-            end = np.clip(end, lo_b, hi_b)
+            end = np.maximum(np.clip(end, lo_b, hi_b), bottom_m)  # stopped at the empty lake
             # draw: trapezoid on the whole segments, then on the last part
             seg_draw = np.where(np.isfinite(t_seg[hi]), 0.5 * (ds[hi, :-1] + ds[hi, 1:]), 0.0)
             seg_t = np.where(np.isfinite(t_seg[hi]), t_seg[hi], 0.0)
@@ -472,6 +483,12 @@ def _table_path(
     return h1, mean_draw
 
 
+@lru_cache(maxsize=8)
+def _gauss_legendre(nodes: int) -> tuple[np.ndarray, np.ndarray]:
+    """Gauss-Legendre nodes and weights on [-1, 1] (computed once per order)."""
+    return np.polynomial.legendre.leggauss(nodes)
+
+
 def crossing_fraction(
     ev: _Eval,
     h0: np.ndarray,
@@ -487,14 +504,15 @@ def crossing_fraction(
     Within a day the forcing is constant, so the path is monotone and the time to go from ``h0`` to
     ``level`` is ``t = integral dh / g(h)`` (Gauss-Legendre quadrature on ``nodes`` points).
     """
-    x, w = np.polynomial.legendre.leggauss(nodes)
+    x, w = _gauss_legendre(nodes)
+    n = h0.size
     half = 0.5 * (level - h0)
     mid = 0.5 * (level + h0)
-    total = np.zeros_like(h0)
-    for xi, wi in zip(x, w, strict=True):
-        g, _, _ = ev(mid + half * xi, a, inflow, demand)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            total += wi / g
+    rep = np.tile(np.arange(n), nodes)  # all nodes of all members in one evaluation
+    pts = (mid[None, :] + half[None, :] * x[:, None]).ravel()
+    g = ev.subset(rep)(pts, a[rep], inflow[rep], demand[rep])[0].reshape(nodes, n)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        total = (w[:, None] / g).sum(axis=0)
     t = total * half / dt
     return np.clip(np.nan_to_num(t, nan=1.0, posinf=1.0, neginf=1.0), 0.0, 1.0)
 
@@ -618,7 +636,7 @@ def simulate(
                     bottom,
                     span,
                 )
-                h[idx] = h_r
+                h[idx] = np.maximum(h_r, bottom)
                 draw[idx] = draw_r
                 refined += idx.size
             acc += draw
