@@ -29,6 +29,11 @@ iterations started from the exponential Euler step (linearisation about ``h0``);
 derivative is proportional to ``g''`` (it vanishes for linear ``g``), so that it converges in two or
 three iterations. Optionally the day is split into ``substeps`` equal parts.
 
+Member-days whose error indicator exceeds the target (a path crossing an outlet sill or the intake
+ramp, where ``g`` changes regime) are re-solved from the time integral of the day,
+``integral dh / g(h) = dt``, taken exactly on the grid with ``g`` linear between nodes (closed form
+per segment, a logarithm; infinite on the segment of an equilibrium), all such members at once.
+
 All stage-dependent terms are read from dense tables on a uniform stage grid (an integer index, no
 search), linearly interpolated, so that the cost per evaluation does not depend on the law.
 
@@ -191,7 +196,7 @@ class EngineResult:
     withdrawal_m3s: np.ndarray
     cut: np.ndarray
     crossing_day: dict[str, np.ndarray]
-    refined_member_days: int = 0  # member-days re-integrated with adaptive sub-steps
+    refined_member_days: int = 0  # member-days re-solved from the exact path on the grid
 
 
 class _Eval:
@@ -212,6 +217,7 @@ class _Eval:
         self.keep_lo = t.stage0_m - (t.size - 1) * t.step_m
         self.keep_hi = t.stage0_m + 2.0 * (t.size - 1) * t.step_m
         self.inv_ramp = 1.0 / t.ramp_m if t.ramp_m > 0 else 0.0
+        self.full_draw_m = t.floor_m + t.ramp_m  # the intake draws in full from here up
 
     def subset(self, idx: np.ndarray) -> _Eval:
         """The same evaluator for the members ``idx``."""
@@ -233,7 +239,10 @@ class _Eval:
         q = self.q[j] + u * qs
         ias = self.inv_s[i]
         ia = self.inv[i] + u * ias
-        if self.inv_ramp:
+        if self.inv_ramp and h.size and h.min() >= self.full_draw_m:
+            draw = np.array(demand, dtype=float)  # every member at full draw (a copy)
+            ddraw = 0.0
+        elif self.inv_ramp:
             rr = (h - self.floor) * self.inv_ramp
             inside = (rr > 0.0) & (rr < 1.0)
             np.maximum(rr, 0.0, out=rr)
@@ -569,7 +578,8 @@ def simulate(
         bracket, until it holds.
     err_m : float
         Local error allowed per day (m): members whose step error estimate exceeds it are
-        re-integrated over that day with adaptive sub-steps of their own.
+        re-solved over that day from the exact path on the stage grid (``g`` linear between
+        nodes, the segment times of ``1/g`` summed to the day's length).
     day_s : float
         Length of a forcing period (s).
     progress : callable, optional
