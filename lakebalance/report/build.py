@@ -607,25 +607,30 @@ def _storage_section(run: SiteRun) -> Section:
     )
 
 
+def _parameter_frame(
+    names: Any, values: dict[str, float], stderr: dict[str, float], ci: dict[str, Any]
+) -> pd.DataFrame:
+    """One row per fitted parameter: value, standard error and 95 % interval (SI)."""
+    return pd.DataFrame(
+        {
+            "parameter": list(names),
+            "value": [values[n] for n in names],
+            "stderr": [stderr[n] for n in names],
+            "ci95_low": [ci[n][0] for n in names],
+            "ci95_high": [ci[n][1] for n in names],
+        }
+    )
+
+
 def _rating_section(run: SiteRun, year_stage: pd.Series) -> Section:
     if run.rating is None:
         return Section("rating", "Outlet rating", missing=_missing(run, "rating"))
     from .figures_rating import rating_figure
 
     fit = run.rating
-    rows = []
-    for name, p in fit.parameter_table().items():
-        rows.append(
-            {
-                "parameter": name,
-                "value": p["value"],
-                "stderr": p["stderr"],
-                "ci95_low": p["ci95"][0],
-                "ci95_high": p["ci95"][1],
-                "fixed": "fixed" if p["fixed"] else "fitted",
-            }
-        )
-    params = pd.DataFrame(rows)
+    fixed = {n: p["fixed"] for n, p in fit.parameter_table().items()}
+    params = _parameter_frame(fit.param_names, fit.params, fit.stderr, fit.conf_int())
+    params["fixed"] = ["fixed" if fixed[n] else "fitted" for n in fit.param_names]
     lo, hi = fit.gauged_range
     h = year_stage.dropna().to_numpy()
     above = float(np.mean(h > hi)) * 100 if h.size else math.nan
@@ -849,19 +854,7 @@ def _seepage_section(run: SiteRun) -> Section:
     ]
     rates = rates[keep].copy()
     rates["within_fitted_stages"] = np.where(rates["within_fitted_stages"], "yes", "no")
-    ci = s.conf_int()
-    params = pd.DataFrame(
-        [
-            {
-                "parameter": n,
-                "value": s.params[n],
-                "stderr": s.stderr[n],
-                "ci95_low": ci[n][0],
-                "ci95_high": ci[n][1],
-            }
-            for n in s.param_names
-        ]
-    )
+    params = _parameter_frame(s.param_names, s.params, s.stderr, s.conf_int())
     paragraphs = [
         f"Seepage (net loss to the ground; positive leaves the lake), model {s.model}, from "
         f"{s.n} days selected from the residual; regression with Newey–West (HAC) errors, "
