@@ -880,6 +880,24 @@ def drawdown_history(
     return pd.DataFrame(cols, index=daily.index)
 
 
+def _check_start_stage(h0: float, storage: StorageCurve, site: Site) -> None:
+    """A forecast may start above the survey by a tenth of its span when area is extended there;
+    anywhere else outside the storage relation it would extrapolate blindly (often a stage in the
+    wrong unit or on another datum), so it stops with one error."""
+    from .errors import RangeError
+
+    lo, hi = float(storage.min_stage_m), float(storage.max_stage_m)
+    top = hi + (0.1 * (hi - lo) if storage.above == "extend" else 0.0)
+    if not (lo - 1e-9 <= h0 <= top + 1e-9):
+        raise RangeError(
+            f"the forecast's start stage {h0:.3f} m lies outside the storage relation "
+            f"({lo:.2f} to {hi:.2f} m"
+            + (f", extended to {top:.2f} m" if top > hi else "")
+            + "); check the stage's units and datum, or give --start-stage",
+            file=site.path,
+        )
+
+
 def forecast_drawdown(
     site: Site,
     start: str | None = None,
@@ -997,6 +1015,7 @@ def forecast_drawdown(
                 "([drawdown] start_stage or --start-stage)",
                 file=site.path,
             )
+    _check_start_stage(float(h0), storage, site)
     history = drawdown_history(site, records, evaporation_m)
     if scenario != "constant" and "inflow_m3s" not in history.columns:
         raise ConfigError(
