@@ -170,6 +170,23 @@ def report_one(
     )
 
 
+def _warm_imports() -> None:
+    """Import what every report needs once, before worker processes are forked."""
+    import matplotlib
+
+    matplotlib.use("Agg", force=True)
+    import matplotlib.pyplot  # noqa: F401
+    import scipy.optimize  # noqa: F401
+    import scipy.stats  # noqa: F401
+    import statsmodels.api  # noqa: F401
+
+    from . import api  # noqa: F401
+    from .report import build  # noqa: F401
+    from .units import registry
+
+    registry()
+
+
 def _progress(total: int, enabled: bool) -> Any:
     from tqdm import tqdm
 
@@ -194,6 +211,8 @@ def _run_local(
         from concurrent.futures import ProcessPoolExecutor, as_completed
 
         ctx = mp.get_context("fork") if sys.platform.startswith("linux") else None
+        if ctx is not None:
+            _warm_imports()  # forked workers inherit the loaded libraries instead of each paying
         with ProcessPoolExecutor(max_workers=workers, mp_context=ctx) as pool:
             futures = {pool.submit(worker, s, o, **kwargs): i for i, (s, o) in enumerate(jobs)}
             for fut in as_completed(futures):
