@@ -256,7 +256,11 @@ def noise_scale(
 
 
 def usual_level(
-    residual_m3: np.ndarray, stage_m: np.ndarray | None, scale_m3: np.ndarray
+    residual_m3: np.ndarray,
+    stage_m: np.ndarray | None,
+    scale_m3: np.ndarray,
+    *,
+    shifts: tuple[int, ...] = (),
 ) -> tuple[np.ndarray, str]:
     """The residual's usual level on each day: a robust straight line in stage (m³/d).
 
@@ -268,6 +272,8 @@ def usual_level(
         Daily stage (m); None gives a constant level.
     scale_m3 : ndarray
         Noise scale of each day (m³/d), used as weights.
+    shifts : tuple of int
+        Positions of gauge datum shifts found on the stage record; the level may step there.
 
     Returns
     -------
@@ -279,33 +285,66 @@ def usual_level(
     Notes
     -----
     A lake that exchanges water with the ground shows a residual of about −k (h − h0) (see
-    :mod:`lakebalance.seepage`), so the usual level is fitted as a + b (h − h̄) by Huber's robust
-    regression (Huber, 1981; statsmodels ``RLM``) of residual / scale on 1 / scale and
-    (h − h̄) / scale. Departures from it, not from a constant, are what the run and shift
-    detectors look for, so that slow stage-driven changes are not flagged.
+    :mod:`lakebalance.seepage`), so the usual level is fitted as a + b (h − h̄) + Σ_j c_j 1[t ≥ t_j]
+    by Huber's robust regression (Huber, 1981; statsmodels ``RLM``) of residual / scale on
+    1 / scale, (h − h̄) / scale and the step indicators / scale. Departures from it, not from a
+    constant, are what the run and shift detectors look for, so that slow stage-driven changes
+    are not flagged. A step c_j at a datum shift t_j is the shift's aftermath: the outflow and
+    area are computed from the shifted stage, so the residual changes level from that day on
+    and stays there (common practice, no source); fitting it keeps the aftermath from passing
+    for a level shift or from tilting the usual level of the rest of the record.
     """
+    level, note, _ = _usual_level_fit(residual_m3, stage_m, scale_m3, shifts)
+    return level, note
+
+
+def _usual_level_fit(
+    residual_m3: np.ndarray,
+    stage_m: np.ndarray | None,
+    scale_m3: np.ndarray,
+    shifts: tuple[int, ...] = (),
+) -> tuple[np.ndarray, str, dict[int, float]]:
+    """:func:`usual_level` and the fitted step (m³/d) at each datum shift position."""
     r = np.asarray(residual_m3, dtype=float)
     s = np.asarray(scale_m3, dtype=float)
     ok = np.isfinite(r) & np.isfinite(s) & (s > 0)
+    h = None
     if stage_m is not None:
         h = np.asarray(stage_m, dtype=float)
         ok &= np.isfinite(h)
     if ok.sum() < 30:
         med = float(np.nanmedian(r)) if np.isfinite(r).any() else 0.0
-        return np.full(r.shape, med), f"constant {med:,.0f} m³/d"
+        return np.full(r.shape, med), f"constant {med:,.0f} m³/d", {}
     import statsmodels.api as sm
 
-    if stage_m is None or np.ptp(h[ok]) == 0:
-        x = (1.0 / s[ok])[:, None]
-    else:
-        h_mean = float(np.mean(h[ok]))
-        x = np.column_stack([1.0 / s[ok], (h[ok] - h_mean) / s[ok]])
-    fit = sm.RLM(r[ok] / s[ok], x, M=sm.robust.norms.HuberT()).fit()
+    t = np.arange(r.size)
+    # a step is fitted only with enough days on both sides of it
+    steps = [
+        int(j)
+        for j in sorted(set(shifts))
+        if (ok & (t < j)).sum() >= 30 and (ok & (t >= j)).sum() >= 30
+    ]
+    indicators = [(t >= j).astype(float) for j in steps]
+    columns = [np.ones(r.size)]
+    slope = h is not None and np.ptp(h[ok]) > 0
+    h_mean = float(np.mean(h[ok])) if slope else 0.0
+    if slope:
+        columns.append(h - h_mean)
+    columns += indicators
+    design = np.column_stack(columns)
+    fit = sm.RLM(r[ok] / s[ok], design[ok] / s[ok][:, None], M=sm.robust.norms.HuberT()).fit()
     params = np.asarray(fit.params, dtype=float)
-    if params.size == 1:
-        return np.full(r.shape, params[0]), f"constant {params[0]:,.0f} m³/d"
-    level = params[0] + params[1] * (h - h_mean)
-    return level, f"{params[0]:,.0f} {params[1]:+,.0f} (h − {h_mean:.2f} m) m³/d"
+    with np.errstate(invalid="ignore"):
+        level = design @ params
+    if not slope:
+        level = np.where(np.isfinite(level), level, params[0])
+    fitted_steps = {j: float(c) for j, c in zip(steps, params[len(params) - len(steps) :])}
+    note = f"{params[0]:,.0f}"
+    if slope:
+        note += f" {params[1]:+,.0f} (h − {h_mean:.2f} m)"
+    if steps:
+        note += "".join(f" {c:+,.0f} after a datum shift" for c in fitted_steps.values())
+    return level, note + " m³/d", fitted_steps
 
 
 def stage_step_anomaly(stage_m: np.ndarray, neighbours: int = 3) -> np.ndarray:
@@ -1121,11 +1160,11 @@ def detect_flags(
         step = stage_step_anomaly(stage)
         z_h = step / noise_scale(step, throughput, window=3 * options.outlier_window)
         if step_adj is not None:
-            # a step is only odd when neither the days around it (a smooth stage) nor the
-            # gauged flows of the day (a storm; the mid-day rule fails when the outflow bends
-            # sharply within a flood day) account for it: keep the smaller of the two
+            # the step left once the day's gauged flows are taken out (a storm the gauges see
+            # leaves none); its scale grows with the throughput, as the mid-day rule is rough
+            # when the outflow bends sharply within a flood day
             z_adj = step_adj / noise_scale(step_adj, throughput, window=3 * options.outlier_window)
-            use_adj = np.isfinite(z_adj) & (np.abs(z_adj) < np.abs(np.nan_to_num(z_h, nan=np.inf)))
+            use_adj = np.isfinite(z_adj)
             step = np.where(use_adj, step_adj, step)
             z_h = np.where(use_adj, z_adj, z_h)
         step = np.nan_to_num(step)
@@ -1189,9 +1228,15 @@ def detect_flags(
             if np.isfinite(r[a : b + 1]).any() and np.isfinite(implied):
                 c_seen = np.cumsum(seen)
                 if reversed_:
-                    stage_jump = float(np.max(np.abs(c_seen))) >= 0.25 * abs(implied)
+                    mirrored = float(np.max(np.abs(c_seen)))
+                    stage_jump = mirrored >= 0.25 * abs(implied)
                 else:
+                    mirrored = abs(float(c_seen[-1]))
                     stage_jump = abs(c_seen[-1] - implied) <= 0.5 * abs(implied)
+                # and the mirror must stand out of the residual's noise on those days (storm
+                # days are noisy: a flood's timing error is no stage fault)
+                sd = math.sqrt(float(np.nansum(scale_m3[lo_i:hi_i] ** 2)))
+                stage_jump = stage_jump and mirrored >= options.outlier_threshold * sd
             elif np.isfinite(implied):
                 stage_jump = False  # no balance on those days to confirm the step
         if not stage_jump and not out_r[a : b + 1].any():
@@ -1279,6 +1324,14 @@ def detect_flags(
                     # a gain at once undone by a loss (or the reverse): water moved between
                     # days by the day-boundary timing, not a volume; nothing to flag
                     continue
+                if stage is not None and any(
+                    0 <= i < n and np.isfinite(stage[i]) and not np.isfinite(r[i])
+                    for i in (a - 1, b + 1)
+                ):
+                    # the storage change of this day takes half the stage change into a day
+                    # with a stage but no balance (the record's last day, a missing term):
+                    # the loss that would undo a timing gain cannot be seen, so no flag
+                    continue
                 volume = float(np.nansum(anomaly))
                 series = "residual"
                 magnitude = None
@@ -1329,7 +1382,8 @@ def detect_flags(
     clean = r.copy()
     for a, b in events:
         clean[a : b + 1] = np.nan
-    baseline_t, baseline_note = usual_level(clean, stage, scale_m3)
+    shifts_found = tuple(datum_starts)
+    baseline_t, baseline_note, shift_steps = _usual_level_fit(clean, stage, scale_m3, shifts_found)
     dev = clean - baseline_t  # m³/d
     dev_w = dev / scale_m3  # (-)
     cps = change_points(
@@ -1349,9 +1403,9 @@ def detect_flags(
         np.isfinite(calm).sum() >= max(30, n // 4)
         and np.isfinite(calm).sum() < np.isfinite(clean).sum()
     ):
-        level_t, note = usual_level(calm, stage, scale_m3)
+        level_t, note, steps_t = _usual_level_fit(calm, stage, scale_m3, shifts_found)
         if np.isfinite(level_t).any():
-            baseline_t, baseline_note = level_t, note
+            baseline_t, baseline_note, shift_steps = level_t, note, steps_t
             dev = clean - baseline_t
             dev_w = dev / scale_m3
             cps = change_points(
@@ -1360,6 +1414,12 @@ def detect_flags(
                 min_size=options.min_run_days,
                 method=options.change_method,
             )
+    for j, c in shift_steps.items():  # the aftermath of each datum shift, as fitted
+        k = next(i for i, f in enumerate(flags) if f.kind == "datum_shift" and f.start == iso(j))
+        extra = f"the residual's usual level changed by {c:+,.0f} m³/d from that day on" + (
+            ", as the outflow is computed from the shifted stage" if outflow is not None else ""
+        )
+        flags[k] = _replace(flags[k], evidence=(*flags[k].evidence, extra))
     ratio = cps.ratio
     with _quiet_nan_warnings():
         means_r = np.array([np.nanmean(clean[a : b + 1]) for a, b in cps.segments])
@@ -1373,11 +1433,12 @@ def detect_flags(
             return 0, 0.0
         total_w = float(np.nansum(dev_w[a : b + 1]))
         z = abs(total_w) / math.sqrt(ratio * valid)
-        # the same test in m³ (unweighted), and the effect size in noise standard deviations
+        # the same test on the mean volume per day (m³/d), weighted by the inverse variance:
+        # a steady offtake or inflow of so many m³/d is seen best on the quiet days, and the
+        # noisy storm days inside the run neither hide it nor make it
         ok = np.isfinite(dev[a : b + 1])
-        z_m3 = abs(float(np.nansum(dev[a : b + 1]))) / math.sqrt(
-            ratio * float(np.sum(scale_m3[a : b + 1][ok] ** 2))
-        )
+        w = 1.0 / scale_m3[a : b + 1][ok] ** 2
+        z_m3 = abs(float(np.sum(w * dev[a : b + 1][ok]))) / math.sqrt(ratio * float(np.sum(w)))
         if abs(total_w) / valid < options.min_run_effect:
             return valid, 0.0
         return valid, min(z, z_m3)
@@ -1544,7 +1605,7 @@ def detect_flags(
     for a, b in cps.segments:
         if b - a + 1 < options.drift_min_days:
             continue
-        res = _trend_test(clean[a : b + 1])
+        res = _trend_test(dev[a : b + 1])  # departure from the usual level (shift steps out)
         if res is None:
             continue
         slope, p_value = res
