@@ -298,16 +298,16 @@ def boundary_stage_from_readings(
     out = np.full(len(mid), np.nan)
     if len(r) == 0:
         return pd.Series(out, index=mid)
-    t = r.index.asi8.astype(np.int64)
+    t = pd.DatetimeIndex(r.index).as_unit("ns").asi8  # ns whatever the parsed resolution
     v = r.to_numpy()
-    m = mid.asi8.astype(np.int64)
+    m = mid.as_unit("ns").asi8
     j = np.searchsorted(t, m, side="left")  # first reading at or after each midnight
     exact = (j < t.size) & (t[np.minimum(j, t.size - 1)] == m)
     out[exact] = v[j[exact]]
     inside = ~exact & (j > 0) & (j < t.size)
     jl, jr = j[inside] - 1, j[inside]
     span = t[jr] - t[jl]
-    ok = span <= max_gap_hours * 3.6e12
+    ok = span <= max_gap_hours * 3.6e12  # ns per hour
     frac = (m[inside] - t[jl]) / np.where(span > 0, span, 1)
     vals = v[jl] + frac * (v[jr] - v[jl])
     idx = np.flatnonzero(inside)

@@ -124,13 +124,33 @@ def test_committed_files_match_their_recorded_checksums(truth):
         assert hashlib.sha256((DEMO / rel).read_bytes()).hexdigest() == digest, rel
 
 
+def _rounded(obj):
+    """Floats to 12 significant digits, recursively (round-off across library versions)."""
+    if isinstance(obj, float):
+        return float(f"{obj:.12g}")
+    if isinstance(obj, dict):
+        return {k: _rounded(v) for k, v in obj.items()}
+    if isinstance(obj, list):
+        return [_rounded(v) for v in obj]
+    return obj
+
+
 def test_generator_is_deterministic_and_reproduces_the_committed_data(tmp_path, truth):
     import geopandas as gpd
 
     _generator().generate(tmp_path)
     new_truth = json.loads((tmp_path / "truth.json").read_text(encoding="utf-8"))
-    assert new_truth == truth
+
+    # Numbers may differ in the last digits between library versions (summation order of
+    # pandas' reductions); everything else must be identical.
+    def comparable(t: dict) -> dict:
+        files = {k: v for k, v in t["files"].items() if not k.endswith(".xlsx")}
+        return _rounded({**t, "files": files})
+
+    assert comparable(new_truth) == comparable(truth)
     for rel in truth["files"]:
+        if rel.endswith(".xlsx"):
+            continue  # a workbook's zip metadata varies by openpyxl version: its cells are compared below
         assert (tmp_path / rel).read_bytes() == (DEMO / rel).read_bytes(), rel
     pd.testing.assert_frame_equal(
         pd.read_excel(tmp_path / "meters/withdrawals.xlsx"),

@@ -71,7 +71,7 @@ class Forcing:
 
 def _doy(index: pd.DatetimeIndex) -> np.ndarray:
     """Day of the year 0..365 with 29 February sharing 28 February's slot (leap-free)."""
-    d = index.dayofyear.to_numpy() - 1
+    d = index.day_of_year.to_numpy() - 1
     leap = index.is_leap_year & (d >= 59)
     return np.where(leap, d - 1, d)
 

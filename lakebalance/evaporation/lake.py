@@ -224,7 +224,7 @@ def climatology_fill(
 
 def _day_of_365(index: pd.DatetimeIndex) -> np.ndarray:
     """0-based day on a 365-day circle (29 February shares 28 February's slot)."""
-    doy = index.dayofyear.to_numpy() - 1
+    doy = index.day_of_year.to_numpy() - 1
     late_leap = index.is_leap_year & (doy >= 59)
     return np.where(late_leap, doy - 1, doy)
 
@@ -412,7 +412,7 @@ def estimate_lake_evaporation(
         if wind_height_m != 2.0:
             inputs["wind"] = f"wind at {wind_height_m:g} m to 2 m (FAO-56 eq. 47)"
 
-    doy = index.dayofyear.to_numpy()
+    doy = index.day_of_year.to_numpy()
     ra = rs = rnl = None
     rad_cols: tuple[str, ...] = ()
     if latitude_deg is not None:

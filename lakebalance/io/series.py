@@ -313,8 +313,8 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
         source_timezone=spec.source_timezone,
         absolute=True,
     )
-    t_ns = stamps.asi8.copy()  # site's local clock: days and dates in messages
-    a_ns = ordering.asi8.copy()  # no daylight-saving jumps: order, repeats and intervals
+    t_ns = stamps.as_unit("ns").asi8.copy()  # site's local clock: days and dates in messages
+    a_ns = ordering.as_unit("ns").asi8.copy()  # no daylight-saving jumps: order, repeats and intervals
     nat = np.asarray(stamps.isna())
     if nat.all():
         first_bad = np.flatnonzero(bad_date)
