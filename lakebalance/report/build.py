@@ -750,10 +750,6 @@ def _balance_section(run: SiteRun, year: int, days: pd.DatetimeIndex) -> Section
     if cum is not None:
         figures.append(cum)
     paragraphs = list(run.balance.notes)
-    if run.balance.absent_terms:
-        paragraphs.append(
-            "Terms with no record, taken as zero: " + ", ".join(run.balance.absent_terms) + "."
-        )
     return Section(
         "balance",
         "Water balance",
