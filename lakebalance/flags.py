@@ -47,11 +47,14 @@ __all__ = [
     "usual_level",
     "stage_step_anomaly",
     "flow_adjusted_stage_change",
+    "lasting_outflow_change",
+    "aftermath_shape",
     "long_run_variance_ratio",
     "change_points",
     "cusum",
     "cusum_runs",
     "refine_run",
+    "date_run",
     "detect_flags",
 ]
 
@@ -303,8 +306,14 @@ def _usual_level_fit(
     stage_m: np.ndarray | None,
     scale_m3: np.ndarray,
     shifts: tuple[int, ...] = (),
+    shapes: dict[int, np.ndarray] | None = None,
 ) -> tuple[np.ndarray, str, dict[int, float]]:
-    """:func:`usual_level` and the fitted step (m³/d) at each datum shift position."""
+    """:func:`usual_level` and the fitted step (m³/d) at each datum shift position.
+
+    ``shapes`` gives, for a shift position, the regressor of its aftermath (m³/d, zero before
+    it) used in place of the plain indicator; its fitted step is reported as the coefficient
+    times the regressor's mean after the shift.
+    """
     r = np.asarray(residual_m3, dtype=float)
     s = np.asarray(scale_m3, dtype=float)
     ok = np.isfinite(r) & np.isfinite(s) & (s > 0)
@@ -324,7 +333,10 @@ def _usual_level_fit(
         for j in sorted(set(shifts))
         if (ok & (t < j)).sum() >= 30 and (ok & (t >= j)).sum() >= 30
     ]
-    indicators = [(t >= j).astype(float) for j in steps]
+    shapes = shapes or {}
+    indicators = [
+        np.asarray(shapes[j], dtype=float) if j in shapes else (t >= j).astype(float) for j in steps
+    ]
     columns = [np.ones(r.size)]
     slope = h is not None and np.ptp(h[ok]) > 0
     h_mean = float(np.mean(h[ok])) if slope else 0.0
@@ -338,7 +350,10 @@ def _usual_level_fit(
         level = design @ params
     if not slope:
         level = np.where(np.isfinite(level), level, params[0])
-    fitted_steps = {j: float(c) for j, c in zip(steps, params[len(params) - len(steps) :])}
+    fitted_steps = {
+        j: float(c) * (float(np.nanmean(x[t >= j])) if j in shapes else 1.0)
+        for j, c, x in zip(steps, params[len(params) - len(steps) :], indicators)
+    }
     note = f"{params[0]:,.0f}"
     if slope:
         note += f" {params[1]:+,.0f} (h − {h_mean:.2f} m)"
@@ -452,6 +467,151 @@ def _stage_steps_near(a: int, z_h: np.ndarray, step: np.ndarray, options: FlagOp
             continue  # undone by a step back of like size: a bad reading, not a shift
         out.append(j)
     return out
+
+
+def aftermath_shape(
+    stage_m: np.ndarray | None, outflow_m3: np.ndarray | None, day: int, step_m: float
+) -> np.ndarray | None:
+    """Change of the computed outflow caused by a gauge datum shift, day by day (m³/d).
+
+    Parameters
+    ----------
+    stage_m : ndarray or None
+        Daily recorded stage (m), shifted by ``step_m`` from ``day`` on.
+    outflow_m3 : ndarray or None
+        Daily outflow computed from the recorded stage (m³/d).
+    day : int
+        Position of the shift.
+    step_m : float
+        Size of the shift (m).
+
+    Returns
+    -------
+    ndarray or None
+        Q̂(h_t) − Q̂(h_t − δ) from ``day`` on and 0 before (m³/d); None when the outflow is
+        unknown or does not vary with the stage.
+
+    Notes
+    -----
+    The outflow of every day is the outlet law applied to the recorded stage, before the shift
+    as after it, so Q̂ is read off the record itself: the outflow against the recorded stage of
+    all days (sorted by stage, ties averaged, linear interpolation, clamped at the record's
+    ends). The shape then follows the outlet law: it vanishes while the lake is below the
+    outlet's sill and grows where the outlet's curve is steep. Common practice, no source.
+    """
+    if stage_m is None or outflow_m3 is None or not np.isfinite(step_m) or step_m == 0:
+        return None
+    h = np.asarray(stage_m, dtype=float)
+    q = np.asarray(outflow_m3, dtype=float)
+    ok = np.isfinite(h) & np.isfinite(q)
+    if ok.sum() < 10 or np.ptp(h[ok]) <= 0 or np.ptp(q[ok]) <= 0:
+        return None
+    hs, inverse = np.unique(h[ok], return_inverse=True)
+    qs = np.bincount(inverse, weights=q[ok]) / np.bincount(inverse)
+    qs = np.maximum.accumulate(qs)  # an outlet passes more water at a higher stage
+    with np.errstate(invalid="ignore"):
+        shape = np.interp(h, hs, qs) - np.interp(h - step_m, hs, qs)
+    after = np.arange(h.size) >= day
+    shape = np.where(after & np.isfinite(h), shape, 0.0)
+    return shape if np.any(shape != 0) else None
+
+
+def lasting_outflow_change(
+    residual_m3: np.ndarray,
+    stage_m: np.ndarray | None,
+    outflow_m3: np.ndarray | None,
+    day: int,
+    step_m: float,
+    scale_m3: np.ndarray,
+    *,
+    window: int = 90,
+    gap: int = 3,
+    z_min: float = 4.0,
+) -> str | None:
+    """Evidence that a stage step of ``step_m`` on ``day`` is a move of the gauge zero, from the
+    lasting change it leaves in the residual through the computed outflow; None when not seen.
+
+    Parameters
+    ----------
+    residual_m3 : ndarray
+        Daily residual (m³/d).
+    stage_m : ndarray or None
+        Daily stage (m).
+    outflow_m3 : ndarray or None
+        Daily outflow computed from the recorded stage (m³/d).
+    day : int
+        Position of the stage step.
+    step_m : float
+        Net stage step (m).
+    scale_m3 : ndarray
+        Noise scale of each day's residual (m³/d).
+    window : int
+        Days on each side compared (-).
+    gap : int
+        Days next to the step left out on each side (the step's own storage jump and the
+        day-boundary spread of a storm).
+    z_min : float
+        Smallest z-score of the expected change against the noise of the comparison (-).
+
+    Returns
+    -------
+    str or None
+        The evidence in words when the residual changed by the expected amount, else None.
+
+    Notes
+    -----
+    If the gauge zero moves by δ, the outflow computed from the recorded stage rises by about
+    (dQ/dh) δ from that day on while the true outflow does not, so the residual rises by
+    ΔR ≈ (dQ/dh) δ and stays there (common practice, no source). dQ/dh (m³/d per m) is the
+    least-squares slope of the outflow on the stage over the ``window`` days each side. The
+    observed change is the difference of the inverse-variance weighted means (weights 1/σ_t²,
+    σ_t the day's noise scale) of the residual after and before, each day first winsorised at
+    3 σ_t from its 31-day rolling median so that storms and spikes do not carry it; it must be
+    within half of ΔR, with |ΔR| at least ``z_min`` times the standard error of the difference,
+    √(1/Σw_after + 1/Σw_before) (days taken as independent; common practice, no source).
+    """
+    if stage_m is None or outflow_m3 is None or not np.isfinite(step_m) or step_m == 0:
+        return None
+    r = np.asarray(residual_m3, dtype=float)
+    h = np.asarray(stage_m, dtype=float)
+    q = np.asarray(outflow_m3, dtype=float)
+    sc = np.asarray(scale_m3, dtype=float)
+    n = r.size
+    # storms and spikes: each day winsorised at 3 noise scales from its rolling median
+    _, med, _ = rolling_robust_z(r, 31)
+    r = np.clip(r, med - 3.0 * sc, med + 3.0 * sc)
+
+    def side(sl: slice) -> tuple[float, float, int]:
+        x, s = r[sl], sc[sl]
+        ok = np.isfinite(x) & np.isfinite(s) & (s > 0)
+        if not ok.any():
+            return float("nan"), float("nan"), 0
+        w = 1.0 / s[ok] ** 2
+        return float(np.sum(w * x[ok]) / np.sum(w)), float(np.sum(w)), int(ok.sum())
+
+    mean_b, w_b, m_b = side(slice(max(0, day - gap - window), max(0, day - gap)))
+    mean_a, w_a, m_a = side(slice(min(n, day + gap + 1), min(n, day + gap + 1 + window)))
+    m = min(m_b, m_a)
+    if m < max(10, window // 3):
+        return None
+    lo, hi = max(0, day - window), min(n, day + window + 1)
+    hq, qq = h[lo:hi], q[lo:hi]
+    ok = np.isfinite(hq) & np.isfinite(qq)
+    if ok.sum() < 10 or np.ptp(hq[ok]) <= 0:
+        return None
+    slope = float(np.polyfit(hq[ok], qq[ok], 1)[0])  # m³/d per m
+    expected = slope * step_m
+    observed = mean_a - mean_b
+    se = math.sqrt(1.0 / w_a + 1.0 / w_b)
+    if not (np.isfinite(se) and se > 0) or abs(expected) < z_min * se:
+        return None
+    if abs(observed - expected) > 0.5 * abs(expected):
+        return None
+    return (
+        f"the residual then rose by {observed:+,.0f} m³/d for the following {m} d, as a "
+        f"{step_m:+.3f} m move of the gauge zero raises the computed outflow by "
+        f"{expected:+,.0f} m³/d (outflow slope {slope:,.0f} m³/d per m)"
+    )
 
 
 def _throughput(daily: pd.DataFrame) -> np.ndarray | None:
@@ -713,6 +873,64 @@ def refine_run(
     if new_last - new_first < 1:
         return first, last
     return new_first, new_last
+
+
+def date_run(
+    departure_m3: np.ndarray, scale_m3: np.ndarray, first: int, last: int, *, reach: int = 14
+) -> tuple[int, int]:
+    """Maximum-likelihood ends of a run of constant mean departure from the usual level.
+
+    Parameters
+    ----------
+    departure_m3 : ndarray
+        Residual minus its usual level (m³/d); NaN adds nothing.
+    scale_m3 : ndarray
+        Noise scale (1-σ) of each day (m³/d).
+    first, last : int
+        Positions of the run's first and last day from the segmentation.
+    reach : int
+        Days by which either end may move (-).
+
+    Returns
+    -------
+    (int, int)
+        The first and last positions that maximise the likelihood ratio.
+
+    Notes
+    -----
+    With independent normal errors of known σ_t and a usual level of 0 outside the run, a run
+    of unknown mean μ on [s, e] raises the log-likelihood by (Σ w_t d_t)² / (2 Σ w_t),
+    w_t = 1/σ_t², at μ̂ = Σ w_t d_t / Σ w_t (the generalised likelihood ratio of a mean shift;
+    Hinkley, 1970). The start is chosen with the end fixed, then the end with the new start,
+    each within ``reach`` days of the segmentation's.
+
+    References
+    ----------
+    Hinkley, D. V. (1970). Inference about the change-point in a sequence of random variables.
+    Biometrika 57(1), 1–17.
+    """
+    d = np.asarray(departure_m3, dtype=float)
+    s = np.asarray(scale_m3, dtype=float)
+    ok = np.isfinite(d) & np.isfinite(s) & (s > 0)
+    w = np.where(ok, 1.0 / np.where(ok, s, 1.0) ** 2, 0.0)
+    wd = np.where(ok, w * np.where(ok, d, 0.0), 0.0)
+    n = d.size
+    cw = np.concatenate([[0.0], np.cumsum(w)])
+    cwd = np.concatenate([[0.0], np.cumsum(wd)])
+
+    def gain(starts: np.ndarray, ends: np.ndarray) -> np.ndarray:
+        sw = cw[ends + 1] - cw[starts]
+        swd = cwd[ends + 1] - cwd[starts]
+        with np.errstate(all="ignore"):
+            return np.where(sw > 0, swd**2 / sw, -np.inf)
+
+    starts = np.arange(max(0, first - reach), min(last, first + reach) + 1)
+    if starts.size:
+        first = int(starts[np.argmax(gain(starts, np.full(starts.size, last)))])
+    ends = np.arange(max(first, last - reach), min(n - 1, last + reach) + 1)
+    if ends.size:
+        last = int(ends[np.argmax(gain(np.full(ends.size, first), ends))])
+    return first, last
 
 
 # --------------------------------------------------------------------------------------------
@@ -1190,6 +1408,7 @@ def detect_flags(
 
     flags: list[Flag] = []
     datum_starts: list[int] = []
+    by_lasting: set[int] = set()
     for a, b in events:  # loop over events (few)
         anomaly = r[a : b + 1] - med_r[a : b + 1]
         cum = np.cumsum(step[a : b + 1])
@@ -1239,6 +1458,14 @@ def detect_flags(
                 stage_jump = stage_jump and mirrored >= options.outlier_threshold * sd
             elif np.isfinite(implied):
                 stage_jump = False  # no balance on those days to confirm the step
+            if not stage_jump and not reversed_ and np.isfinite(r[a : b + 1]).any():
+                # a storm on the day hides the mirror: the step may still show by what it does
+                # to the outflow computed from the shifted stage, a change that lasts
+                lasting = lasting_outflow_change(r, stage, outflow, first_jump, net, scale_m3)
+                if lasting is not None:
+                    stage_jump = True
+                    evidence.append(lasting)
+                    by_lasting.add(first_jump)
         if not stage_jump and not out_r[a : b + 1].any():
             continue  # a stage step that the flows explain: nothing to flag
         if stage_jump:
@@ -1382,8 +1609,17 @@ def detect_flags(
     clean = r.copy()
     for a, b in events:
         clean[a : b + 1] = np.nan
-    shifts_found = tuple(datum_starts)
-    baseline_t, baseline_note, shift_steps = _usual_level_fit(clean, stage, scale_m3, shifts_found)
+    shifts_found = tuple(d for d in datum_starts if d not in by_lasting)
+    shapes = {}
+    for f in flags:
+        if f.kind == "datum_shift" and f.magnitude_m is not None:
+            j = int(index.get_loc(pd.Timestamp(f.start)))
+            shape = aftermath_shape(stage, outflow, j, f.magnitude_m)
+            if shape is not None:
+                shapes[j] = shape
+    baseline_t, baseline_note, shift_steps = _usual_level_fit(
+        clean, stage, scale_m3, shifts_found, shapes
+    )
     dev = clean - baseline_t  # m³/d
     dev_w = dev / scale_m3  # (-)
     cps = change_points(
@@ -1403,7 +1639,7 @@ def detect_flags(
         np.isfinite(calm).sum() >= max(30, n // 4)
         and np.isfinite(calm).sum() < np.isfinite(clean).sum()
     ):
-        level_t, note, steps_t = _usual_level_fit(calm, stage, scale_m3, shifts_found)
+        level_t, note, steps_t = _usual_level_fit(calm, stage, scale_m3, shifts_found, shapes)
         if np.isfinite(level_t).any():
             baseline_t, baseline_note, shift_steps = level_t, note, steps_t
             dev = clean - baseline_t
@@ -1535,7 +1771,7 @@ def detect_flags(
             continue
         bounded = 0 < seg_i < len(cps.segments) - 1
         if bounded:
-            a, b = refine_run(dev_w, a, b, slack=options.cusum_slack, reach=options.min_run_days)
+            a, b = date_run(dev, scale_m3, a, b, reach=options.min_run_days)
             volume = float(np.nansum(dev[a : b + 1]))
             days_valid = int(np.isfinite(dev[a : b + 1]).sum())
             with _quiet_nan_warnings():
