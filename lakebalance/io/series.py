@@ -314,7 +314,9 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
         absolute=True,
     )
     t_ns = stamps.as_unit("ns").asi8.copy()  # site's local clock: days and dates in messages
-    a_ns = ordering.as_unit("ns").asi8.copy()  # no daylight-saving jumps: order, repeats and intervals
+    a_ns = ordering.as_unit(
+        "ns"
+    ).asi8.copy()  # no daylight-saving jumps: order, repeats and intervals
     nat = np.asarray(stamps.isna())
     if nat.all():
         first_bad = np.flatnonzero(bad_date)
