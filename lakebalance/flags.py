@@ -31,6 +31,7 @@ from typing import TYPE_CHECKING, Literal
 import numpy as np
 
 from .config import Correction, FlagOptions
+from .units import MM_PER_M
 
 if TYPE_CHECKING:  # pragma: no cover
     import pandas as pd
@@ -1352,7 +1353,7 @@ def detect_flags(
             ar = np.nanmean(area[a : b + 1])
         if not np.isfinite(ar) or ar <= 0:
             ar = mean_area
-        return float(volume / ar * 1000.0) if np.isfinite(ar) and ar > 0 else float("nan")
+        return float(volume / ar * MM_PER_M) if np.isfinite(ar) and ar > 0 else float("nan")
 
     # ---- noise scale of each day (for detection) -------------------------------------------
     _, med_r, _ = rolling_robust_z(r, options.outlier_window)
@@ -1717,7 +1718,7 @@ def detect_flags(
                     end=iso(j),
                     series="stage",
                     volume_m3=vol_j,
-                    depth_mm=net * 1000.0,
+                    depth_mm=net * MM_PER_M,
                     rate_m3_per_day=vol_j,
                     significance=abs(float(z_h[j])),
                     significant=abs(float(z_h[j])) > _Z95,

@@ -43,6 +43,7 @@ __all__ = [
     "INTERNAL_UNITS",
     "ROLE_KINDS",
     "SECONDS_PER_DAY",
+    "MM_PER_M",
     "Conversion",
     "registry",
     "parse_unit",
@@ -66,6 +67,7 @@ Kind = Literal[
     "duration",
 ]
 
+MM_PER_M = 1000.0  # mm/m; depths over the lake are reported in mm
 SECONDS_PER_DAY = 86400.0  # s/d; a calendar day (DST days are taken as 24 h, documented)
 
 #: Internal unit of each kind (pint spelling).

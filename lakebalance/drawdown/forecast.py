@@ -23,6 +23,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from ..units import SECONDS_PER_DAY
 from .engine import EngineResult, build_tables, simulate
 from .scenarios import Forcing
 
@@ -454,9 +455,9 @@ def run_forecast(
             volume_percentiles=vp,
             crossing_days=res.crossing_day,
             odds=odds,
-            withdrawn_m3=res.withdrawal_m3s.sum(axis=0) * 86400.0,
+            withdrawn_m3=res.withdrawal_m3s.sum(axis=0) * SECONDS_PER_DAY,
             demand_m3=float(
-                np.mean(demand.sum(axis=0) + forcing.release_m3s.sum(axis=0)) * 86400.0
+                np.mean(demand.sum(axis=0) + forcing.release_m3s.sum(axis=0)) * SECONDS_PER_DAY
             ),
             restricted=restricted,
             unrestricted=unrestricted,
