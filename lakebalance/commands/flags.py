@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from ._common import add_json, add_out, add_seed, add_site
+from ._common import add_json, add_out, add_seed, add_site, emit, residual_inputs
 
 HELP = "flag spikes, datum shifts, runs and drift in the residual of the daily balance"
 
@@ -17,21 +17,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    import warnings
-
-    import numpy as np
-
-    from .._json import dumps
-    from ..api import close_balance, find_flags, load_records, load_site
-    from ..errors import LakebalanceWarning
+    from ..api import load_site
 
     site = load_site(args.site)
     seed = site.site.seed if args.seed is None else args.seed
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", LakebalanceWarning)  # the balance's notes say it
-        records = load_records(site)
-        balance = close_balance(site, records=records, rng=np.random.default_rng(seed))
-        flags = find_flags(site, balance=balance, records=records)
+    _, _, flags, _ = residual_inputs(site, seed)
     written = []
     if args.out is not None:
         from ..io.output import save_figure, write_csv, write_text
@@ -40,15 +30,5 @@ def run(args: argparse.Namespace) -> int:
         written.append(write_csv(args.out / "flags.csv", flags.to_frame(), index=False))
         written.append(write_text(args.out / "flags.txt", flags.summary() + "\n"))
         written.append(save_figure(args.out / "flags.png", flags_figure(flags)))
-    if args.json:
-        doc = flags.to_dict()
-        doc["site"] = site.site.name
-        doc["seed"] = seed
-        doc["written"] = [str(p) for p in written]
-        print(dumps(doc))
-    else:
-        print(f"{site.site.name} (seed {seed})")
-        print(flags.summary())
-        for p in written:
-            print(f"wrote {p}")
+    emit(args, site, seed, flags.to_dict(), flags.summary(), written)
     return 0

@@ -482,34 +482,21 @@ def _components_figure(monthly: pd.DataFrame) -> Figure:
         ("withdrawal_m3", "withdrawal", "--"),
         ("release_m3", "release", "++"),
     ]
-    bottom = np.zeros(len(monthly))
-    for col, key, hatch in gains:
-        v = monthly[col].fillna(0).to_numpy() / 1e3
-        ax.bar(
-            x,
-            v,
-            bottom=bottom,
-            color=PALETTE[key],
-            hatch=hatch,
-            edgecolor="black",
-            lw=0.3,
-            label=key,
-        )
-        bottom += v
-    bottom = np.zeros(len(monthly))
-    for col, key, hatch in losses:
-        v = -monthly[col].fillna(0).to_numpy() / 1e3
-        ax.bar(
-            x,
-            v,
-            bottom=bottom,
-            color=PALETTE[key],
-            hatch=hatch,
-            edgecolor="black",
-            lw=0.3,
-            label=key,
-        )
-        bottom += v
+    for sign, terms in ((1.0, gains), (-1.0, losses)):  # gains stacked up, losses down
+        bottom = np.zeros(len(monthly))
+        for col, key, hatch in terms:
+            v = sign * monthly[col].fillna(0).to_numpy() / 1e3
+            ax.bar(
+                x,
+                v,
+                bottom=bottom,
+                color=PALETTE[key],
+                hatch=hatch,
+                edgecolor="black",
+                lw=0.3,
+                label=key,
+            )
+            bottom += v
     ax.plot(x, monthly["storage_change_m3"].to_numpy() / 1e3, "k-o", ms=3, label="storage change")
     ax.plot(
         x,
