@@ -1,4 +1,5 @@
-"""Argument helpers shared by the subcommands (standard library only)."""
+"""Helpers shared by the subcommands: arguments and output (standard library at import; the
+residual pipeline imports the API only when it runs)."""
 
 from __future__ import annotations
 
