@@ -19,6 +19,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import LakebalanceError
+from ..units import SECONDS_PER_DAY, from_si
 
 if TYPE_CHECKING:  # pragma: no cover
     from ..config import Site
@@ -561,7 +562,7 @@ def _storage_section(run: SiteRun) -> Section:
     span = curve.max_stage_m - curve.min_stage_m
     step = max(0.1, round(span / 25, 1))
     tab = curve.table(step).copy()
-    tab["area_ha"] = tab.pop("area_m2") / 1e4
+    tab["area_ha"] = from_si(tab.pop("area_m2").to_numpy(), "area", "ha")
     tab["volume_1e3_m3"] = tab.pop("volume_m3") / 1e3
     fig = storage_figure(curve, levels=dict(run.site.levels))
     paragraphs = [
@@ -904,7 +905,7 @@ def _headline(run: SiteRun, year: int, days: pd.DatetimeIndex) -> dict[str, Any]
             out["stage_end_m"] = _r(float(d.iloc[-1]), 3)
     if run.seepage is not None:
         rate = float(np.asarray(run.seepage.rate_m3s(run.seepage.mean_stage_m)))
-        out["seepage_m3_per_day"] = _r(rate * 86400.0, 0)
+        out["seepage_m3_per_day"] = _r(rate * SECONDS_PER_DAY, 0)
     return out
 
 
