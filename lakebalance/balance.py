@@ -63,9 +63,12 @@ from typing import Literal
 import numpy as np
 import pandas as pd
 
+from .options import Options, setting
+from .stats import gauss_legendre, water_year_of
 from .units import SECONDS_PER_DAY, factor
 
 __all__ = [
+    "UncertaintyOptions",
     "DailyTerms",
     "ClosureOptions",
     "TermErrors",
@@ -79,6 +82,30 @@ __all__ = [
     "TERM_SIGNS",
     "CAUTION",
 ]
+
+
+def _draws_rule(value: int) -> str | None:
+    return None if value == 0 or value >= 2 else "be 0 (no bands) or at least 2 for a 5-95% band"
+
+
+@dataclass(frozen=True)
+class UncertaintyOptions(Options):
+    """``[uncertainty]``: relative (1-sigma) errors per term and Monte Carlo settings."""
+
+    inflow: float | None = setting(None, unit="-", low=0.0, high=1.0)  # gauged inflows
+    rain: float | None = setting(None, unit="-", low=0.0, high=1.0)  # rain depth
+    evaporation: float | None = setting(None, unit="-", low=0.0, high=1.0)  # lake evaporation
+    withdrawal: float | None = setting(None, unit="-", low=0.0, high=1.0)  # metered withdrawals
+    release: float | None = setting(None, unit="-", low=0.0, high=1.0)  # metered releases
+    stage_resolution: float | None = setting(None, unit="m", low=0.0)  # stage gauge resolution
+    area: float | None = setting(None, unit="-", low=0.0, high=1.0)  # storage relation's area
+    draws: int = setting(1000, unit="draws", low=0, rule=_draws_rule)  # Monte Carlo draws
+    # share of a term's error variance lasting a water year
+    systematic: float | None = setting(None, unit="-", low=0.0, high=1.0)
+    boundary_rule: Literal["adjacent_mean", "fourth_order"] = (
+        "adjacent_mean"  # day-boundary stage from daily means where no sub-daily record
+    )
+
 
 Array = np.ndarray
 StageFn = Callable[[Array], Array]
@@ -258,20 +285,6 @@ class OutletParameters:
 # --------------------------------------------------------------------------------------------
 # Helpers
 # --------------------------------------------------------------------------------------------
-def water_year_of(index: pd.DatetimeIndex, start_month: int) -> Array:
-    """Water-year label of each date: the calendar year in which the water year ends.
-
-    With ``start_month = 10`` the water year 2021 runs from 1 October 2020 to 30 September 2021
-    (common practice, no source); with 1 it is the calendar year.
-    """
-    if not 1 <= int(start_month) <= 12:
-        raise ValueError(f"water_year_start must be a month 1-12, got {start_month!r}")
-    years = index.year.to_numpy()
-    if start_month == 1:
-        return years
-    return years + (index.month.to_numpy() >= start_month).astype(int)
-
-
 def boundary_stage_from_readings(
     readings_m: pd.Series, days: pd.DatetimeIndex, max_gap_hours: float = 3.0
 ) -> pd.Series:
@@ -313,14 +326,6 @@ def boundary_stage_from_readings(
     idx = np.flatnonzero(inside)
     out[idx[ok]] = vals[ok]
     return pd.Series(out, index=mid)
-
-
-def _gauss_legendre(n: int) -> tuple[Array, Array]:
-    """Nodes on [0, 1] and weights summing to one."""
-    if n < 1:
-        raise ValueError("nodes must be >= 1")
-    x, w = np.polynomial.legendre.leggauss(n)
-    return 0.5 * (x + 1.0), 0.5 * w
 
 
 def day_path(stage_start_m: Array, stage_end_m: Array, stage_mean_m: Array, tau: Array) -> Array:
@@ -642,7 +647,7 @@ def close_daily(
     bnd, from_given = _boundaries(stage, given, options.boundary_rule)
     hs, he = bnd[:-1], bnd[1:]
 
-    tau, w = _gauss_legendre(options.nodes)
+    tau, w = gauss_legendre(options.nodes, (0.0, 1.0))
     path = day_path(hs, he, stage, tau)
     ok_stage = np.isfinite(path).all(axis=1)
     area_nodes = _at(area_fn, path)
@@ -821,7 +826,7 @@ def add_uncertainty(
     complete = d["complete"].to_numpy()
     residual = d["residual_m3"].to_numpy()
     rho = errors.systematic
-    tau, w = _gauss_legendre(balance.nodes if nodes is None else nodes)
+    tau, w = gauss_legendre(balance.nodes if nodes is None else nodes, (0.0, 1.0))
     hs = d["stage_start_m"].to_numpy()
     he = d["stage_end_m"].to_numpy()
     path = day_path(hs, he, d["stage_m"].to_numpy(), tau)

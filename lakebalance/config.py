@@ -22,7 +22,18 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Literal, get_args, get_origin
 
-from .errors import ConfigError, UnitError, suggest
+from .balance import UncertaintyOptions
+from .drawdown.options import DemandRule, DrawdownOptions
+from .errors import ConfigError, OptionError, UnitError, suggest
+from .evaporation.options import EvaporationOptions
+from .flags import FlagOptions
+from .options import Options, setting
+from .outlet.options import OutletComponent, OutletOptions
+from .qa import QAOptions
+from .records import Correction
+from .report.options import ReportOptions
+from .seepage import SeepageOptions
+from .storage import StorageOptions
 
 __all__ = [
     "SiteInfo",
@@ -72,20 +83,21 @@ Statistic = Literal["mean", "sum", "min", "max", "first", "last", "median"]
 # Sections
 # --------------------------------------------------------------------------------------------
 @dataclass(frozen=True)
-class SiteInfo:
+class SiteInfo(Options):
     """``[site]``: where the lake is and how its days and years are counted."""
 
     name: str
-    latitude: float | None = None  # decimal degrees, north positive
-    longitude: float | None = None  # decimal degrees, east positive
-    elevation: float | None = None  # m above sea level (for air pressure)
-    water_year_start: int = 1  # first month of the reporting year (1 = calendar year)
+    latitude: float | None = setting(None, unit="degrees north", low=-90.0, high=90.0)
+    longitude: float | None = setting(None, unit="degrees east", low=-180.0, high=360.0)
+    elevation: float | None = setting(None, unit="m", low=-500.0, high=9000.0)  # air pressure
+    # first month of the reporting year (1 = calendar year)
+    water_year_start: int = setting(1, unit="month", low=1, high=12)
     timezone: str = "UTC"  # IANA zone whose midnight bounds a day
     seed: int = 12345  # seed for every random draw unless the command line gives one
 
 
 @dataclass(frozen=True)
-class SeriesSpec:
+class SeriesSpec(Options):
     """``[series.<role>]`` or ``[[series.<role>]]``: one gauge series in one file."""
 
     file: Path
@@ -102,214 +114,12 @@ class SeriesSpec:
     sheet: str | None = None  # Excel sheet name (first sheet when absent)
     statistic: Statistic | None = None  # how sub-daily readings make a day (default by role)
     source_timezone: str | None = None  # zone of naive timestamps (default: the site's zone)
-    coverage: float = 0.8  # share of a day's expected readings needed for a daily value (-)
-    resolution: float | None = (
-        None  # gauge resolution in the series' units (stage: for QA/uncertainty)
-    )
+    # share of a day's expected readings needed for a daily value
+    coverage: float = setting(0.8, unit="-", low=0.0, high=1.0)
+    # gauge resolution in the series' units (stage: for QA/uncertainty)
+    resolution: float | None = setting(None, unit="series unit", low=0.0, low_open=True)
     role: str = ""  # filled in from the table name; not written by users
     key: str = ""  # column name in Records.daily; filled in
-
-
-@dataclass(frozen=True)
-class StorageOptions:
-    """``[storage]``: the stage-area-storage relation of the basin."""
-
-    source: Literal["table", "contours", "outline"] = "table"
-    file: Path | None = None  # table (CSV/XLSX) or vector layer (GPKG/SHP/GeoJSON)
-    sheet: str | None = None  # Excel sheet of a table
-    layer: str | None = None  # layer of a multi-layer vector file
-    stage: str = "stage"  # table column of stage
-    area: str = "area"  # table column of area
-    volume: str | None = None  # table column of volume (integrated from area when absent)
-    stage_units: str = "m"
-    area_units: str = "m**2"
-    volume_units: str = "m**3"
-    elevation_field: str = "elevation"  # contour attribute holding the elevation
-    elevation_units: str = "m"
-    datum_offset: float = 0.0  # m; stage = elevation - datum_offset
-    integration: Literal["prismoidal", "average_end_area"] = "prismoidal"
-    below: Literal["error", "clamp", "extend"] = "clamp"  # policy below the lowest level
-    above: Literal["error", "clamp", "extend"] = "extend"  # policy above the highest level
-    max_depth: float | None = None  # m, outline source: depth from outline level to bottom
-    shape_exponent: float = 1.0  # outline source: area(z) ∝ ((z - z_bottom)/depth)^p
-    outline_stage: float | None = None  # m, outline source: stage of the outline shoreline
-    bottom: float | None = None  # m, stage of the deepest point (area 0) below the lowest level
-    volume_tolerance: float = 0.01  # (-) table volume vs integrated area: allowed share of range
-    compare: Path | None = None  # a second survey (table or contour layer) to compare against
-    delimiter: str | None = None  # CSV field delimiter of a table (sniffed when absent)
-    decimal: str = "."  # decimal mark of a CSV table
-
-
-@dataclass(frozen=True)
-class OutletComponent:
-    """``[[outlet.component]]``: one control of a compound outlet (acting in parallel)."""
-
-    name: str
-    form: Literal["power", "weir", "vnotch", "orifice"] = "power"
-    fixed: dict[str, float] = field(default_factory=dict)  # parameter -> value (SI)
-    initial: dict[str, float] = field(default_factory=dict)  # parameter -> starting value (SI)
-    bounds: dict[str, list[float]] = field(default_factory=dict)  # parameter -> [lo, hi] (SI)
-    length: float | None = None  # m, weir crest length (weir form)
-    angle: float | None = None  # degrees, notch angle (vnotch form)
-    upper: float | None = None  # m, segmented rating: this law applies up to this stage
-
-
-@dataclass(frozen=True)
-class OutletOptions:
-    """``[outlet]``: gaugings and the control form of the outlet rating."""
-
-    gaugings: Path | None = None  # CSV/XLSX of spot gaugings
-    sheet: str | None = None
-    date: str = "date"
-    stage: str = "stage"
-    discharge: str = "discharge"
-    stage_units: str = "m"
-    discharge_units: str = "m**3/s"
-    delimiter: str | None = None
-    decimal: str = "."
-    dayfirst: bool = False
-    form: Literal["power", "weir", "vnotch", "orifice", "compound", "segmented"] = "power"
-    residuals: Literal["log", "linear"] = "log"
-    weights: str | None = None  # optional gaugings column of weights
-    fixed: dict[str, float] = field(
-        default_factory=dict
-    )  # single-law form: parameter -> value (SI)
-    initial: dict[str, float] = field(default_factory=dict)
-    bounds: dict[str, list[float]] = field(default_factory=dict)
-    length: float | None = None  # m, weir crest length
-    angle: float | None = None  # degrees, V-notch angle
-    component: tuple[OutletComponent, ...] = ()  # compound/segmented controls
-    shift_date: str | None = None  # ISO date for a before/after rating-shift test
-    bootstrap: int = 0  # bootstrap refits for prediction intervals (0 = delta method only)
-
-
-@dataclass(frozen=True)
-class UncertaintyOptions:
-    """``[uncertainty]``: relative (1-sigma) errors per term and Monte Carlo settings."""
-
-    inflow: float | None = None  # relative error (-) of gauged inflows
-    rain: float | None = None  # relative error (-) of rain depth
-    evaporation: float | None = None  # relative error (-) of lake evaporation
-    withdrawal: float | None = None  # relative error (-) of metered withdrawals
-    release: float | None = None  # relative error (-) of metered releases
-    stage_resolution: float | None = None  # m, resolution of the stage gauge
-    area: float | None = None  # relative error (-) of the storage relation's area
-    draws: int = 1000  # Monte Carlo draws
-    systematic: float | None = None  # share (0-1) of a term's error variance lasting a water year
-    boundary_rule: Literal["adjacent_mean", "fourth_order"] = (
-        "adjacent_mean"  # day-boundary stage from daily means where no sub-daily record
-    )
-
-
-@dataclass(frozen=True)
-class EvaporationOptions:
-    """``[evaporation]``: which method makes lake evaporation, and its coefficients."""
-
-    method: Literal["auto", "given", "pan", "penman", "priestley_taylor", "fao56", "hargreaves"] = (
-        "auto"
-    )
-    pan_coefficient: float | list[float] = 0.7  # (-) constant or 12 monthly values
-    albedo: float = 0.06  # (-) open water
-    alpha: float = 1.26  # (-) Priestley-Taylor coefficient
-    open_water_coefficient: float = 1.05  # (-) factor on FAO-56 reference ET
-    wind_height: float = 2.0  # m, height of the wind measurement
-    heat_storage_lag: float = 0.0  # days, first-order lag on available energy (0 = off)
-    fill: Literal["climatology", "none"] = "climatology"  # missing weather days
-    angstrom_a: float = 0.25  # (-) Angstrom a_s, solar radiation from sunshine (FAO-56 eq. 35)
-    angstrom_b: float = 0.50  # (-) Angstrom b_s
-    clip_negative: bool = True  # set negative computed evaporation (condensation) to 0
-
-
-@dataclass(frozen=True)
-class QAOptions:
-    """``[qa]``: thresholds of the checks on raw series."""
-
-    spike_window: int = 7  # readings in the rolling median window
-    spike_threshold: float = 6.0  # robust z-score above which a reading is a spike
-    flatline_days: int = 10  # identical consecutive daily values that make a flat-line
-    spikes: Literal["flag", "remove"] = "flag"  # keep spikes (flagged) or set them missing
-
-
-@dataclass(frozen=True)
-class FlagOptions:
-    """``[flags]``: detection of unexplained residuals."""
-
-    outlier_threshold: float = 5.0  # robust z-score of an isolated outlier (-)
-    outlier_window: int = 31  # days in the centred rolling median/MAD window
-    spike_days: int = 3  # days within which a stage step that is undone counts as a spike
-    penalty: float | None = None  # change-point penalty, (m³/d)² (default: BIC-like from the data)
-    change_method: Literal["pelt", "binseg"] = "pelt"  # change-point search
-    min_run_days: int = 14  # shortest persistent run or level-shift segment reported (days)
-    run_threshold: float = 4.0  # z-score of a run's volume against the residual noise (-)
-    min_run_effect: float = 0.5  # smallest mean departure of a run, in noise sigmas (-)
-    cusum_slack: float = 0.5  # CUSUM reference value k, in noise standard deviations (-)
-    cusum_threshold: float = 10.0  # CUSUM decision interval h, in noise standard deviations (-)
-    drift_min_days: int = 180  # shortest segment tested for a linear drift (days)
-    drift_alpha: float = 0.001  # significance level of the drift test (-)
-    shift_stage_z: float = 2.0  # robust z of a mirrored stage step at a level change (-)
-
-
-@dataclass(frozen=True)
-class SeepageOptions:
-    """``[seepage]``: net groundwater exchange estimated from the residual."""
-
-    model: Literal["linear", "constant"] = "linear"
-    start: str | None = None  # ISO date, first day used
-    end: str | None = None  # ISO date, last day used
-    max_rain: float = 0.0005  # m/d, days with more rain are not used
-    rain_buffer: int = 1  # days before and after a rainy day also left out (-)
-    exclude_spill: bool = True  # leave out days when the outlet spills
-    exclude_flags: bool = True  # leave out flagged days
-
-
-@dataclass(frozen=True)
-class DemandRule:
-    """``[[drawdown.restriction]]``: below ``trigger`` (m, stage) demand is cut by ``cut`` (-)."""
-
-    trigger: float
-    cut: float
-
-
-@dataclass(frozen=True)
-class DrawdownOptions:
-    """``[drawdown]``: defaults of the drought forecast."""
-
-    scenario: Literal["replay", "percentile", "stochastic", "constant"] = "replay"
-    members: int = 1000
-    days: int = 365
-    percentile: float = 10.0  # % non-exceedance of inflow (percentile scenario)
-    inflow: float = 0.0  # m³/s, constant scenario
-    demand: float | list[float] | None = None  # m³/s, constant or 12 monthly values
-    environmental_release: float = 0.0  # m³/s, minimum release kept while above dead level
-    restriction: tuple[DemandRule, ...] = ()
-    sample_uncertainty: bool = False  # draw rating and evaporation errors per member
-    start: str | None = None  # ISO date of the start (default: last day with a recorded stage)
-    start_stage: float | None = None  # m, stage at the start (default: recorded stage that day)
-    stochastic: Literal["bootstrap", "ar1"] = "bootstrap"  # model of the stochastic scenario
-    block_days: int = 30  # days, block length of the bootstrap
-    dead_level: str | None = None  # [levels] name below which draws stop (default "dead")
-    rating_variants: int = 200  # sampled ratings shared by the members (sample_uncertainty)
-    seepage: bool = True  # include the seepage law estimated from the balance residual
-
-
-@dataclass(frozen=True)
-class Correction:
-    """``[[correction]]``: a user-accepted correction of a series (e.g. a gauge datum shift)."""
-
-    series: str  # series key, e.g. "stage"
-    kind: Literal["offset"] = "offset"
-    start: str = ""  # ISO date of the first corrected day
-    end: str | None = None  # ISO date of the last corrected day (open when absent)
-    value: float = 0.0  # in the series' internal unit (m for stage) added to the record
-    reason: str = ""
-
-
-@dataclass(frozen=True)
-class ReportOptions:
-    """``[report]``: annual report settings."""
-
-    year: int | None = None  # water year to report (default: last complete one)
-    title: str | None = None
 
 
 @dataclass(frozen=True)
@@ -505,7 +315,12 @@ def _build(cls: type, table: Any, ctx: _Ctx, where: str) -> Any:
             and f.default_factory is dataclasses.MISSING  # type: ignore[misc]
         ):
             raise ctx.error(f"missing required key '{name}' in [{where}]", where)
-    return cls(**kwargs)
+    try:
+        return cls(**kwargs)
+    except OptionError as exc:  # a declared range: the key's own line
+        name = exc.option
+        full = f"{where}.{name}" if where else name
+        raise ctx.error(exc.message.replace(f"'{name}'", f"'{full}'", 1), where, name) from None
 
 
 def quantity(value: float | str, unit: str, kind: str, what: str) -> float:
@@ -522,25 +337,6 @@ def quantity(value: float | str, unit: str, kind: str, what: str) -> float:
     return float(conversion(m.group(2), kind, what).apply(float(m.group(1))))
 
 
-#: Ranges of the [site] keys (inclusive), checked with the key's line.
-_SITE_RANGES = {
-    "latitude": (-90.0, 90.0, "decimal degrees, north positive"),
-    "longitude": (-180.0, 360.0, "decimal degrees, east positive"),
-    "water_year_start": (1, 12, "the first month of the reporting year"),
-}
-
-
-def _check_site_ranges(info: SiteInfo, ctx: _Ctx) -> None:
-    for key, (lo, hi, meaning) in _SITE_RANGES.items():
-        value = getattr(info, key)
-        if value is not None and not lo <= value <= hi:
-            raise ctx.error(
-                f"'site.{key}' must be between {lo:g} and {hi:g} ({meaning}), got {value!r}",
-                "site",
-                key,
-            )
-
-
 def parse_site(data: dict[str, Any], path: Path, text: str = "") -> Site:
     """Validate a parsed site-file table and build the :class:`Site` (paths resolved against ``path``)."""
     ctx = _Ctx(path, text)
@@ -554,8 +350,6 @@ def parse_site(data: dict[str, Any], path: Path, text: str = "") -> Site:
     for key, cls in _TOP_SECTIONS.items():
         if key in data:
             kwargs[key] = _build(cls, data[key], ctx, key)
-    if "site" in kwargs:
-        _check_site_ranges(kwargs["site"], ctx)
     series: list[SeriesSpec] = []
     raw_series = data.get("series", {})
     if not isinstance(raw_series, dict):

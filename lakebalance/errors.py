@@ -18,6 +18,7 @@ __all__ = [
     "UnitError",
     "FitError",
     "RangeError",
+    "OptionError",
     "LakebalanceWarning",
     "DataQualityWarning",
     "ExtrapolationWarning",
@@ -97,6 +98,25 @@ class FitError(LakebalanceError):
 
 class RangeError(LakebalanceError):
     """A value lies outside a relation's range and the declared policy is ``error``."""
+
+
+class OptionError(ConfigError, ValueError):
+    """An option is out of its declared range or of the wrong kind.
+
+    Raised by the options objects themselves (so the Python API gets a ``ValueError`` that names
+    the option); the site-file loader re-raises it with the file and line of the key.
+
+    Parameters
+    ----------
+    option : str
+        The option's name (the site-file key).
+    message : str
+        What is wrong, naming the option.
+    """
+
+    def __init__(self, option: str, message: str, **where) -> None:
+        super().__init__(message, **where)
+        self.option = option
 
 
 class LakebalanceWarning(UserWarning):

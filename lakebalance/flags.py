@@ -30,13 +30,17 @@ from typing import TYPE_CHECKING, Literal
 
 import numpy as np
 
-from .config import Correction, FlagOptions
+from .options import Options, setting
+from .records import Correction
+from .stats import MAD_TO_SIGMA, newey_west_lags, robust_sigma
+from .stats import Z95 as _Z95
 from .units import MM_PER_M
 
 if TYPE_CHECKING:  # pragma: no cover
     import pandas as pd
 
 __all__ = [
+    "FlagOptions",
     "FlagKind",
     "Flag",
     "Flags",
@@ -61,45 +65,31 @@ __all__ = [
 
 FlagKind = Literal["spike", "datum_shift", "level_shift", "run", "drift"]
 
-#: Scale from the median absolute deviation to the standard deviation of a normal law (-),
-#: 1 / Φ⁻¹(3/4) (Hampel, 1974).
-MAD_TO_SIGMA = 1.482602218505602
 
-_Z95 = 1.959963984540054  # two-sided 95 % normal quantile (-)
+@dataclass(frozen=True)
+class FlagOptions(Options):
+    """``[flags]``: detection of unexplained residuals."""
+
+    outlier_threshold: float = setting(5.0, unit="-", low=0.0, low_open=True)  # robust z
+    outlier_window: int = setting(31, unit="days", low=3)  # centred rolling median/MAD window
+    spike_days: int = setting(3, unit="days", low=1)  # a stage step undone within = a spike
+    penalty: float | None = setting(None, unit="(m3/d)^2", low=0.0, low_open=True)  # default BIC
+    change_method: Literal["pelt", "binseg"] = "pelt"  # change-point search
+    min_run_days: int = setting(14, unit="days", low=2)  # shortest run or level-shift segment
+    run_threshold: float = setting(4.0, unit="-", low=0.0, low_open=True)  # z of a run's volume
+    min_run_effect: float = setting(0.5, unit="sigma", low=0.0)  # smallest mean departure
+    cusum_slack: float = setting(0.5, unit="sigma", low=0.0)  # CUSUM reference value k
+    cusum_threshold: float = setting(10.0, unit="sigma", low=0.0, low_open=True)  # CUSUM h
+    drift_min_days: int = setting(180, unit="days", low=10)  # shortest segment tested for drift
+    drift_alpha: float = setting(
+        0.001, unit="-", low=0.0, high=1.0, low_open=True, high_open=True
+    )  # significance level of the drift test
+    shift_stage_z: float = setting(2.0, unit="-", low=0.0)  # robust z of a mirrored stage step
 
 
 # --------------------------------------------------------------------------------------------
 # Pure detectors
 # --------------------------------------------------------------------------------------------
-def robust_sigma(values: np.ndarray) -> float:
-    """Standard deviation estimated from the median absolute deviation, ignoring NaN.
-
-    Parameters
-    ----------
-    values : ndarray
-        Values in any unit.
-
-    Returns
-    -------
-    float
-        ``1.4826 · median(|x − median(x)|)`` in the unit of ``values`` (NaN when empty).
-
-    Notes
-    -----
-    σ̂ = MAD / Φ⁻¹(3/4): consistent for the normal law and unaffected by up to half of the values
-    being outliers.
-
-    References
-    ----------
-    Hampel, F. R. (1974). The influence curve and its role in robust estimation. JASA 69, 383–393.
-    """
-    x = np.asarray(values, dtype=float)
-    x = x[np.isfinite(x)]
-    if x.size == 0:
-        return float("nan")
-    return float(MAD_TO_SIGMA * np.median(np.abs(x - np.median(x))))
-
-
 def rolling_robust_z(
     values: np.ndarray | pd.Series, window: int = 31, *, floor: float | None = None
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -187,7 +177,7 @@ def long_run_variance_ratio(values: np.ndarray, lags: int | None = None) -> floa
     if var <= 0:
         return 1.0
     if lags is None:
-        lags = int(math.floor(4.0 * (n / 100.0) ** (2.0 / 9.0)))
+        lags = newey_west_lags(n)
     lags = max(0, min(lags, n - 2))
     total = 0.0
     for j in range(1, lags + 1):  # loop over lags, not over values
@@ -2042,7 +2032,7 @@ def _trend_test(y: np.ndarray) -> tuple[float, float] | None:
 
     t = np.arange(y.size, dtype=float)[ok]
     n = int(ok.sum())
-    lags = int(math.floor(4.0 * (n / 100.0) ** (2.0 / 9.0)))
+    lags = newey_west_lags(n)
     fit = sm.OLS(y[ok], sm.add_constant(t)).fit(cov_type="HAC", cov_kwds={"maxlags": lags})
     return float(fit.params[1]), float(fit.pvalues[1])
 

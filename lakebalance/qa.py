@@ -12,9 +12,12 @@ practice, no source"; recalled physical limits are marked "from memory".
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Literal
 
 import numpy as np
+
+from .options import Options, setting
+from .stats import MAD_TO_SIGMA
 
 if TYPE_CHECKING:  # pragma: no cover
     import pandas as pd
@@ -22,6 +25,7 @@ if TYPE_CHECKING:  # pragma: no cover
     from .records import Finding
 
 __all__ = [
+    "QAOptions",
     "MAD_TO_SIGMA",
     "STATE_ROLES",
     "SPIKE_ROLES",
@@ -43,9 +47,16 @@ __all__ = [
     "outside_storage_findings",
 ]
 
-#: Scale factor from the median absolute deviation to the standard deviation of a normal
-#: distribution, 1/Φ⁻¹(3/4) (Rousseeuw and Croux, 1993, eq. 1.1; also Huber, 1981).
-MAD_TO_SIGMA = 1.482602218505602
+
+@dataclass(frozen=True)
+class QAOptions(Options):
+    """``[qa]``: thresholds of the checks on raw series."""
+
+    spike_window: int = setting(7, unit="readings", low=3)  # rolling median window
+    spike_threshold: float = setting(6.0, unit="-", low=0.0, low_open=True)  # robust z of a spike
+    flatline_days: int = setting(10, unit="days", low=2)  # identical daily values of a flat-line
+    spikes: Literal["flag", "remove"] = "flag"  # keep spikes (flagged) or set them missing
+
 
 #: Roles that are states of the lake or the air (a stuck sensor repeats them); flows and depths
 #: are left out because zero or a constant pumping rate are legitimately constant.

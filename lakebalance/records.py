@@ -18,7 +18,20 @@ if TYPE_CHECKING:  # pragma: no cover
 
     from .config import Site
 
-__all__ = ["Finding", "RowAccount", "SeriesInfo", "Records"]
+__all__ = ["Correction", "Finding", "RowAccount", "SeriesInfo", "Records"]
+
+
+@dataclass(frozen=True)
+class Correction:
+    """``[[correction]]``: a user-accepted correction of a series (e.g. a gauge datum shift)."""
+
+    series: str  # series key, e.g. "stage"
+    kind: Literal["offset"] = "offset"
+    start: str = ""  # ISO date of the first corrected day
+    end: str | None = None  # ISO date of the last corrected day (open when absent)
+    value: float = 0.0  # in the series' internal unit (m for stage) added to the record
+    reason: str = ""
+
 
 FindingKind = Literal[
     "gap",

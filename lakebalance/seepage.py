@@ -23,27 +23,37 @@ from typing import TYPE_CHECKING, Literal
 
 import numpy as np
 
-from .config import SeepageOptions
 from .errors import DataQualityWarning, FitError
+from .options import Options, setting
+from .stats import newey_west_lags
 from .units import SECONDS_PER_DAY, from_si
 
 if TYPE_CHECKING:  # pragma: no cover
     import pandas as pd
 
-__all__ = ["SeepageFit", "select_days", "fit_seepage", "newey_west_lags", "andrews_lags"]
+__all__ = [
+    "SeepageOptions",
+    "SeepageFit",
+    "select_days",
+    "fit_seepage",
+    "newey_west_lags",
+    "andrews_lags",
+]
 
 SeepageModel = Literal["linear", "constant"]
 
 
-def newey_west_lags(n: int) -> int:
-    """Bartlett truncation lag ``floor(4 (n/100)^(2/9))`` for n observations.
+@dataclass(frozen=True)
+class SeepageOptions(Options):
+    """``[seepage]``: net groundwater exchange estimated from the residual."""
 
-    References
-    ----------
-    Newey, W. K. & West, K. D. (1994). Automatic lag selection in covariance matrix estimation.
-    Rev. Econ. Stud. 61(4), 631–653 (the rule of thumb of their §3).
-    """
-    return int(math.floor(4.0 * (max(n, 1) / 100.0) ** (2.0 / 9.0)))
+    model: Literal["linear", "constant"] = "linear"
+    start: str | None = None  # ISO date, first day used
+    end: str | None = None  # ISO date, last day used
+    max_rain: float = setting(0.0005, unit="m/d", low=0.0)  # days with more rain are not used
+    rain_buffer: int = setting(1, unit="days", low=0)  # days around a rainy day left out too
+    exclude_spill: bool = True  # leave out days when the outlet spills
+    exclude_flags: bool = True  # leave out flagged days
 
 
 def andrews_lags(scores: np.ndarray) -> int:

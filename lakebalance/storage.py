@@ -48,11 +48,13 @@ from .errors import (
     InputError,
     RangeError,
 )
+from .options import Options, setting
 
 if TYPE_CHECKING:  # pragma: no cover
     import pandas as pd
 
 __all__ = [
+    "StorageOptions",
     "Policy",
     "Integration",
     "VolumeCheck",
@@ -64,6 +66,40 @@ __all__ = [
     "storage_from_outline",
     "compare_curves",
 ]
+
+
+@dataclass(frozen=True)
+class StorageOptions(Options):
+    """``[storage]``: the stage-area-storage relation of the basin."""
+
+    source: Literal["table", "contours", "outline"] = "table"
+    file: Path | None = None  # table (CSV/XLSX) or vector layer (GPKG/SHP/GeoJSON)
+    sheet: str | None = None  # Excel sheet of a table
+    layer: str | None = None  # layer of a multi-layer vector file
+    stage: str = "stage"  # table column of stage
+    area: str = "area"  # table column of area
+    volume: str | None = None  # table column of volume (integrated from area when absent)
+    stage_units: str = "m"
+    area_units: str = "m**2"
+    volume_units: str = "m**3"
+    elevation_field: str = "elevation"  # contour attribute holding the elevation
+    elevation_units: str = "m"
+    datum_offset: float = setting(0.0, unit="m")  # stage = elevation - datum_offset
+    integration: Literal["prismoidal", "average_end_area"] = "prismoidal"
+    below: Literal["error", "clamp", "extend"] = "clamp"  # policy below the lowest level
+    above: Literal["error", "clamp", "extend"] = "extend"  # policy above the highest level
+    # outline source: depth from the outline level to the bottom
+    max_depth: float | None = setting(None, unit="m", low=0.0, low_open=True)
+    # outline source: area(z) proportional to ((z - z_bottom)/depth)^p
+    shape_exponent: float = setting(1.0, unit="-", low=0.0, low_open=True)
+    outline_stage: float | None = setting(None, unit="m")  # outline source: shoreline stage
+    bottom: float | None = setting(None, unit="m")  # stage of the deepest point (area 0)
+    # table volume vs integrated area: allowed share of the range
+    volume_tolerance: float = setting(0.01, unit="-", low=0.0)
+    compare: Path | None = None  # a second survey (table or contour layer) to compare against
+    delimiter: str | None = None  # CSV field delimiter of a table (sniffed when absent)
+    decimal: str = "."  # decimal mark of a CSV table
+
 
 Policy = Literal["error", "clamp", "extend"]
 Integration = Literal["prismoidal", "average_end_area"]

@@ -47,9 +47,10 @@ from __future__ import annotations
 
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
-from functools import lru_cache
 
 import numpy as np
+
+from ..stats import gauss_legendre
 
 __all__ = ["LakeTables", "EngineResult", "build_tables", "simulate", "crossing_fraction"]
 
@@ -492,12 +493,6 @@ def _table_path(
     return h1, mean_draw
 
 
-@lru_cache(maxsize=8)
-def _gauss_legendre(nodes: int) -> tuple[np.ndarray, np.ndarray]:
-    """Gauss-Legendre nodes and weights on [-1, 1] (computed once per order)."""
-    return np.polynomial.legendre.leggauss(nodes)
-
-
 def crossing_fraction(
     ev: _Eval,
     h0: np.ndarray,
@@ -513,7 +508,7 @@ def crossing_fraction(
     Within a day the forcing is constant, so the path is monotone and the time to go from ``h0`` to
     ``level`` is ``t = integral dh / g(h)`` (Gauss-Legendre quadrature on ``nodes`` points).
     """
-    x, w = _gauss_legendre(nodes)
+    x, w = gauss_legendre(nodes)
     n = h0.size
     half = 0.5 * (level - h0)
     mid = 0.5 * (level + h0)

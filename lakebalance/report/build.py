@@ -19,6 +19,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import LakebalanceError
+from ..stats import water_year_of
 from ..units import SECONDS_PER_DAY, from_si
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -288,17 +289,9 @@ def run_site(
 # --------------------------------------------------------------------------------------------
 # Choosing the year
 # --------------------------------------------------------------------------------------------
-def _water_year_label(index: pd.DatetimeIndex, start_month: int) -> np.ndarray:
-    """Water year of each day, named by the calendar year in which it ends."""
-    years = index.year.to_numpy()
-    if start_month == 1:
-        return years
-    return years + (index.month.to_numpy() >= start_month)
-
-
 def choose_year(daily_index: pd.DatetimeIndex, start_month: int, year: int | None) -> int:
     """The water year to report: ``year`` when the record covers it, else the last complete one."""
-    labels = _water_year_label(daily_index, start_month)
+    labels = water_year_of(daily_index, start_month)
     present = sorted(set(labels.tolist()))
     if year is not None:
         if year not in present:
@@ -716,7 +709,7 @@ def _balance_tables(run: SiteRun, year: int) -> tuple[Table, Table, pd.DataFrame
         "Totals over complete days only.",
     )
     m = bal.monthly()
-    keys = _water_year_label(m.index, bal.water_year_start)
+    keys = water_year_of(m.index, bal.water_year_start)
     m = m[keys == year]
     monthly = pd.DataFrame({"month": [t.strftime("%Y-%m") for t in m.index]})
     monthly["complete_days"] = m["complete_days"].to_numpy()
@@ -1015,8 +1008,6 @@ def _safe_name(text: str) -> str:
 
 def build_sections(run: SiteRun, year: int) -> tuple[list[Section], dict[str, Any], list[str]]:
     """The sections, the headline numbers and the plain-words summary of ``year``."""
-    from ..balance import water_year_of
-
     index = run.records.daily.index
     keys = water_year_of(index, run.site.site.water_year_start)
     days = index[keys == year]
@@ -1089,8 +1080,6 @@ def make_report(
 
     site = api.load_site(site_file)
     run = run_site(site, seed=seed, draws=draws, members=members, progress=progress)
-    from ..balance import water_year_of
-
     keys = water_year_of(run.records.daily.index, site.site.water_year_start)
     present = sorted(set(np.asarray(keys).tolist()))
     if year is not None and year not in present:

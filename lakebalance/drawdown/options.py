@@ -1,0 +1,40 @@
+"""Options of the drought drawdown forecast (``[drawdown]`` in the site file)."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Literal
+
+from ..options import Options, setting
+
+__all__ = ["DemandRule", "DrawdownOptions"]
+
+
+@dataclass(frozen=True)
+class DemandRule(Options):
+    """``[[drawdown.restriction]]``: below ``trigger`` (m, stage) demand is cut by ``cut`` (-)."""
+
+    trigger: float = setting(unit="m")
+    cut: float = setting(unit="-", low=0.0, high=1.0)
+
+
+@dataclass(frozen=True)
+class DrawdownOptions(Options):
+    """``[drawdown]``: defaults of the drought forecast."""
+
+    scenario: Literal["replay", "percentile", "stochastic", "constant"] = "replay"
+    members: int = setting(1000, unit="members", low=1)
+    days: int = setting(365, unit="days", low=1)
+    percentile: float = setting(10.0, unit="%", low=0.0, high=100.0, low_open=True, high_open=True)
+    inflow: float = setting(0.0, unit="m3/s", low=0.0)  # constant scenario
+    demand: float | list[float] | None = setting(None, unit="m3/s", low=0.0)  # or 12 monthly
+    environmental_release: float = setting(0.0, unit="m3/s", low=0.0)
+    restriction: tuple[DemandRule, ...] = ()
+    sample_uncertainty: bool = False  # draw rating and evaporation errors per member
+    start: str | None = None  # ISO date of the start (default: last day with a recorded stage)
+    start_stage: float | None = setting(None, unit="m")  # default: recorded stage that day
+    stochastic: Literal["bootstrap", "ar1"] = "bootstrap"  # model of the stochastic scenario
+    block_days: int = setting(30, unit="days", low=1)  # block length of the bootstrap
+    dead_level: str | None = None  # [levels] name below which draws stop (default "dead")
+    rating_variants: int = setting(200, unit="ratings", low=1)  # shared by the members
+    seepage: bool = True  # include the seepage law estimated from the balance residual
