@@ -89,10 +89,9 @@ def test_options_out_of_their_declared_range_name_the_key_and_line(
 
 def test_options_objects_refuse_out_of_range_values_in_python():
     """The Python API gets a ValueError naming the option (the same declared range)."""
+    from lakebalance.balance import UncertaintyOptions
     from lakebalance.drawdown.options import DrawdownOptions
     from lakebalance.flags import FlagOptions
-
-    from lakebalance.balance import UncertaintyOptions
 
     with pytest.raises(ValueError, match="'draws' must be at least 0"):
         UncertaintyOptions(draws=-3)
