@@ -229,6 +229,39 @@ class TermErrors:
     stage_resolution_m: float = 0.003
     systematic: float = 0.5
 
+    @classmethod
+    def from_options(
+        cls, options: UncertaintyOptions, stage_resolution_m: float | None = None
+    ) -> TermErrors:
+        """The errors an ``[uncertainty]`` section asks for, over the defaults above.
+
+        Parameters
+        ----------
+        options : UncertaintyOptions
+            The section; unset values keep the defaults.
+        stage_resolution_m : float, optional
+            The stage gauge's resolution (m) when the section gives none (e.g. from the stage
+            series' declared resolution).
+        """
+        changes = {
+            name: float(getattr(options, name))
+            for name in (
+                "inflow",
+                "rain",
+                "evaporation",
+                "withdrawal",
+                "release",
+                "area",
+                "systematic",
+            )
+            if getattr(options, name) is not None
+        }
+        if options.stage_resolution is not None:
+            changes["stage_resolution_m"] = float(options.stage_resolution)
+        elif stage_resolution_m is not None:
+            changes["stage_resolution_m"] = float(stage_resolution_m)
+        return replace(cls(), **changes)
+
     def __post_init__(self) -> None:
         for name in ("inflow", "rain", "evaporation", "withdrawal", "release", "area"):
             v = getattr(self, name)
@@ -488,6 +521,21 @@ class Balance:
     def period(self) -> tuple[pd.Timestamp, pd.Timestamp]:
         """First and last date of the balance."""
         return self.daily.index[0], self.daily.index[-1]
+
+    def residual_sigma_m3(self) -> Array | None:
+        """1-σ daily residual uncertainty (m³/d) from the 5–95 % band, when the bands exist.
+
+        Notes
+        -----
+        σ = (p95 − p05) / (2 z₀.₉₅) with z₀.₉₅ = Φ⁻¹(0.95), exact for a normal residual error.
+        """
+        d = self.daily
+        if "residual_p05_m3" not in d.columns or "residual_p95_m3" not in d.columns:
+            return None
+        from scipy.special import ndtri
+
+        width = (d["residual_p95_m3"] - d["residual_p05_m3"]).to_numpy(dtype=float)
+        return width / (2.0 * float(ndtri(0.95)))
 
     # -- aggregation ---------------------------------------------------------------------
     def _aggregate(self, keys: Array, label: str) -> pd.DataFrame:

@@ -180,7 +180,7 @@ def _warm_imports() -> None:
     import scipy.stats  # noqa: F401
     import statsmodels.api  # noqa: F401
 
-    from . import api  # noqa: F401
+    from . import analysis  # noqa: F401
     from .report import build  # noqa: F401
     from .units import registry
 

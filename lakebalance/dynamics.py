@@ -30,11 +30,16 @@ from __future__ import annotations
 import math
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import pandas as pd
 
+from .stats import water_year_of
 from .units import SECONDS_PER_DAY
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .laws import LakeLaws
 
 __all__ = [
     "LakeModel",
@@ -42,6 +47,9 @@ __all__ = [
     "WhatIf",
     "Dynamics",
     "analyse_dynamics",
+    "dynamics_of_lake",
+    "mean_depth_m_per_d",
+    "WhatIfRequest",
     "residence_times",
     "CAUTION",
 ]
@@ -398,8 +406,6 @@ def residence_times(
     -----
     τ_res = V̄ / Q̄ (common practice, no source).
     """
-    from .balance import water_year_of
-
     losses = daily[["outflow_m3", "evaporation_m3", "withdrawal_m3", "release_m3"]].copy()
     if seepage_m3 is not None:
         losses["seepage_m3"] = pd.Series(seepage_m3).reindex(daily.index)
@@ -662,4 +668,194 @@ def analyse_dynamics(
         },
         lake=lake,
         notes=tuple(notes),
+    )
+
+
+@dataclass(frozen=True)
+class WhatIfRequest:
+    """Changes to analyse beside the lake as it is (each one a what-if case).
+
+    Parameters
+    ----------
+    outlet : dict of str to float
+        Rating parameters changed (``{"sill.e": 9.5}``, SI), e.g. a lowered sill.
+    demand_m3s : float, optional
+        A changed stage-independent demand (withdrawals and releases), m³/s.
+    evaporation_scale : float, optional
+        A factor (-) on the mean evaporation depth.
+    """
+
+    outlet: dict[str, float] = field(default_factory=dict)
+    demand_m3s: float | None = None
+    evaporation_scale: float | None = None
+
+
+def mean_depth_m_per_d(daily: pd.DataFrame, column: str) -> float:
+    """Record mean of a surface term as a depth: Σ volume / Σ area over the days with both (m/d).
+
+    Parameters
+    ----------
+    daily : pandas.DataFrame
+        The daily balance table: ``area_m2`` (m²) and ``column`` (m³ per day).
+    column : str
+        ``"evaporation_m3"`` or ``"rain_m3"``.
+    """
+    ok = daily["area_m2"].notna()
+    if float(daily.loc[ok, "area_m2"].sum()) <= 0:
+        return 0.0
+    sel = ok & daily[column].notna()
+    if not sel.any():
+        return 0.0
+    return float(daily.loc[sel, column].sum() / daily.loc[sel, "area_m2"].sum())
+
+
+def _outlet_change(rating: Any, outlet: dict[str, float]) -> tuple[str, dict]:
+    """The what-if case of changed rating parameters (SI)."""
+    from .errors import ConfigError, suggest
+
+    if rating is None:
+        raise ConfigError("an outlet what-if needs an [outlet] rating")
+    names = list(rating.param_names)
+    vec = np.asarray(rating.vector, dtype=float).copy()
+    for key, value in outlet.items():
+        if key not in names:
+            raise ConfigError(
+                f"unknown rating parameter '{key}'{suggest(key, names)}; parameters are "
+                + ", ".join(names)
+            )
+        vec[names.index(key)] = float(value)
+    row = vec[None, :]
+
+    def changed(h, _row=row):
+        h = np.asarray(h, dtype=float)
+        return rating.discharge_with(_row, h[None, ...])[0]
+
+    label = "outlet " + ", ".join(f"{k} = {v:g}" for k, v in outlet.items())
+    return label, {"outflow_fn": changed}
+
+
+def _warn_levels_outside(laws: LakeLaws) -> None:
+    lo, hi = laws.min_stage_m, laws.max_stage_m
+    outside = {k: v for k, v in laws.levels.items() if not lo <= v <= hi}
+    if outside and laws.above != "error" and laws.below != "error":
+        import warnings
+
+        from .errors import ExtrapolationWarning
+
+        warnings.warn(
+            "named level(s) outside the storage relation "
+            f"({lo:.4g} to {hi:.4g} m): "
+            + ", ".join(f"{k} {v:.4g} m" for k, v in outside.items())
+            + f"; the area there follows the relation's policies (below '{laws.below}', "
+            f"above '{laws.above}')",
+            ExtrapolationWarning,
+            stacklevel=3,
+        )
+
+
+def dynamics_of_lake(
+    laws: LakeLaws,
+    daily: pd.DataFrame,
+    water_year_start: int,
+    *,
+    inflow_m3s: float | None = None,
+    what_if: WhatIfRequest | None = None,
+    stages: dict[str, float] | None = None,
+    notes: tuple[str, ...] = (),
+) -> Dynamics:
+    """Residence, response and equilibrium analysis of a lake from its laws and its balance.
+
+    Parameters
+    ----------
+    laws : LakeLaws
+        Storage relation, rating, seepage law (or None) and named levels.
+    daily : pandas.DataFrame
+        The daily balance table (:attr:`lakebalance.balance.Balance.daily`, m³ per day).
+    water_year_start : int
+        First month of the water year.
+    inflow_m3s : float, optional
+        Sustained inflow, m³/s (default: the mean gauged inflow of the record).
+    what_if : WhatIfRequest, optional
+        Changes analysed beside the lake as it is.
+    stages : dict, optional
+        Named stages (m) for the response times, added to the levels and the record's 10th,
+        50th and 90th percentile stages.
+    notes : tuple of str
+        Notes carried into the result.
+
+    Notes
+    -----
+    Evaporation and rain enter as their record means (m per day, :func:`mean_depth_m_per_d`)
+    times the area at each stage; demand as the record mean of withdrawals and releases.
+    """
+    from .errors import RangeError
+
+    d = daily
+    notes_list = list(notes)
+    evap = mean_depth_m_per_d(d, "evaporation_m3")
+    rain = mean_depth_m_per_d(d, "rain_m3")
+    demand = float((d["withdrawal_m3"] + d["release_m3"]).mean() / SECONDS_PER_DAY)
+    if not np.isfinite(demand):
+        raise RangeError(
+            "no day of the stage record has the withdrawals and releases: their records do not "
+            "overlap the stage record"
+        )
+    if inflow_m3s is None:
+        inflow_m3s = float(d["inflow_m3"].mean() / SECONDS_PER_DAY)
+        if not np.isfinite(inflow_m3s):
+            raise RangeError(
+                "no day of the stage record has a gauged inflow (the inflow records do not "
+                "overlap it): give the sustained inflow (m3/s) with --inflow"
+            )
+        notes_list.append(
+            f"sustained inflow: the record's mean gauged inflow, {inflow_m3s:.4g} m3/s"
+        )
+    levels = dict(laws.levels)
+    _warn_levels_outside(laws)
+    lo, hi = laws.min_stage_m, laws.max_stage_m
+    if laws.above == "extend" and levels:
+        hi = max(hi, *levels.values())  # named levels above the survey: area extended
+    lake = LakeModel(
+        area_fn=laws.area,
+        outflow_fn=laws.outflow,
+        seepage_fn=laws.seepage,
+        evaporation_m_per_d=evap,
+        rain_m_per_d=rain,
+        demand_m3s=demand,
+        stage_range_m=(lo, hi),
+    )
+    if laws.seepage is not None:
+        notes_list.append("net seepage law from the residual included in the losses")
+    changes: list[tuple[str, dict]] = []
+    what_if = what_if or WhatIfRequest()
+    if what_if.outlet:
+        changes.append(_outlet_change(laws.rating, what_if.outlet))
+    if what_if.demand_m3s is not None:
+        changes.append(
+            (f"demand {what_if.demand_m3s:g} m3/s", {"demand_m3s": float(what_if.demand_m3s)})
+        )
+    if what_if.evaporation_scale is not None:
+        scale = what_if.evaporation_scale
+        changes.append((f"evaporation x {scale:g}", {"evaporation_scale": scale}))
+    stage = d["stage_m"].dropna()
+    chosen = dict(levels)
+    for q in (10, 50, 90):
+        chosen[f"record p{q}"] = float(stage.quantile(q / 100))
+    chosen.update(stages or {})
+    seep_m3 = (
+        pd.Series(laws.seepage(d["stage_m"].to_numpy()) * SECONDS_PER_DAY, index=d.index)
+        if laws.seepage is not None
+        else None
+    )
+    residence = residence_times(d, water_year_start, seepage_m3=seep_m3)
+    return analyse_dynamics(
+        lake,
+        inflow_m3s=float(inflow_m3s),
+        today=stage.index[-1].date().isoformat(),
+        today_stage_m=float(stage.iloc[-1]),
+        levels=levels,
+        stages=chosen,
+        residence=residence,
+        changes=tuple(changes),
+        notes=tuple(notes_list),
     )

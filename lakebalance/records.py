@@ -14,6 +14,7 @@ from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Literal
 
 if TYPE_CHECKING:  # pragma: no cover
+    import numpy as np
     import pandas as pd
 
     from .config import Site
@@ -144,3 +145,26 @@ class Records:
             .where(self.daily[keys].notna().all(axis=1))
             .rename(role)
         )
+
+    def mean(self, role: str) -> pd.Series | None:
+        """Day-by-day mean of the series of ``role`` (NaN skipped), or None when there is none.
+
+        Several gauges of one weather role (two rain gauges, two thermometers) are averaged.
+        """
+        keys = self.keys(role) if self.series else [role]
+        keys = [k for k in keys if k in self.daily.columns]
+        if not keys:
+            return None
+        return self.daily[keys].mean(axis=1, skipna=True)
+
+    def flatline_days(self, series: str, index: pd.DatetimeIndex) -> np.ndarray:
+        """Days of ``index`` inside a flat-line of ``series`` found by the checks (already
+        reported as findings)."""
+        import numpy as np
+        import pandas as pd
+
+        out = np.zeros(len(index), dtype=bool)
+        for f in self.findings:
+            if f.series == series and f.kind == "flatline" and f.first and f.last:
+                out |= (index >= pd.Timestamp(f.first[:10])) & (index <= pd.Timestamp(f.last[:10]))
+        return out

@@ -701,6 +701,27 @@ class StorageCurve:
         h = np.concatenate([[lo], grid, [hi]])
         return pd.DataFrame({"stage_m": h, "area_m2": self.area(h), "volume_m3": self.volume(h)})
 
+    def check_record(self, stage_m: np.ndarray) -> None:
+        """Check a stage record (m) against the relation once, before the many quiet evaluations.
+
+        A record that lies wholly outside the relation is a :class:`RangeError` (the two are not
+        on one datum, or the stage is in the wrong unit); days outside it give one
+        :class:`ExtrapolationWarning` counted in days (or the relation's ``"error"`` policy
+        raises).
+        """
+        h = np.asarray(stage_m, dtype=float)
+        h = h[np.isfinite(h)]
+        lo, hi = float(self.min_stage_m), float(self.max_stage_m)
+        if h.size and not np.any((h >= lo) & (h <= hi)):
+            raise RangeError(
+                f"the stage record ({h.min():.4g} to {h.max():.4g} m) lies wholly outside the "
+                f"storage relation ({lo:.6g} to {hi:.6g} m): are both on the gauge datum (a "
+                "table's stage column is taken as stage, not elevation) and is the stage series "
+                "in its declared unit?"
+            )
+        if h.size:
+            self.area(h)  # one warning (or the "error" policy) for the days outside
+
     def summary(self) -> str:
         """A few lines describing the relation."""
         lines = [

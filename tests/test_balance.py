@@ -14,9 +14,9 @@ from hypothesis import strategies as st
 from lakebalance import (
     ClosureOptions,
     DailyTerms,
+    Lake,
     TermErrors,
     add_uncertainty,
-    close_balance,
     close_daily,
     load_site,
 )
@@ -215,7 +215,7 @@ def test_api_closes_a_closed_lake_end_to_end(write, tmp_path):
     """Vertical walls, constant inflow, no outlet: stage rises linearly, so the mean of adjacent
     daily means is the exact boundary stage and the residual vanishes (analytic)."""
     site = load_site(_closed_lake_site(write, tmp_path))
-    bal = close_balance(site)
+    bal = Lake(site).balance
     d = bal.daily[bal.daily["complete"]]
     assert len(d) == 88
     assert (d["residual_m3"].abs() / d["inflow_m3"]).max() < 1e-8
@@ -277,7 +277,7 @@ def test_sub_daily_stage_gives_the_day_boundaries(write, tmp_path):
         '[site]\nname = "logged pond (invented)"\n[storage]\nfile = "survey.csv"\n'
         '[series.stage]\nfile = "stage.csv"\nunits = "m"\n',
     )
-    bal = close_balance(load_site(path), draws=0)
+    bal = Lake(load_site(path), draws=0).balance
     assert bal.notes[0].startswith("day-boundary stage: 10 of 11 from the sub-daily record")
     d = bal.daily.iloc[:-1]
     days = np.arange(len(d) + 1) * T

@@ -13,7 +13,7 @@ def demo_balance():
     from conftest import DEMO
 
     site = lb.load_site(DEMO / "site.toml")
-    return lb.close_balance(site, draws=1000, rng=np.random.default_rng(7))
+    return lb.Lake(site, draws=1000, seed=7).balance
 
 
 def test_cumulative_band_ends_at_the_water_year_band(demo_balance):

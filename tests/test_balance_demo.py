@@ -8,7 +8,7 @@ import json
 import pandas as pd
 import pytest
 
-from lakebalance import close_balance, load_site
+from lakebalance import open_site
 
 
 @pytest.fixture(scope="module")
@@ -20,7 +20,7 @@ def demo(request):
         pytest.fail("data_demo/site.toml is missing: run data_demo/make_demo.py")
     truth = json.loads((root / "truth.json").read_text())
     daily = pd.read_csv(root / "truth_daily.csv", parse_dates=["date"], index_col="date")
-    balance = close_balance(load_site(root / "site.toml"))
+    balance = open_site(root / "site.toml").balance
     return balance, truth, daily
 
 

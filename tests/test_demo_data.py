@@ -19,7 +19,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from lakebalance.api import load_site
+from lakebalance import load_site
 
 DEMO = Path(__file__).resolve().parents[1] / "data_demo"
 NS = {

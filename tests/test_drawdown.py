@@ -17,7 +17,8 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from lakebalance.drawdown import build_forcing, build_tables, run_forecast, simulate
+from lakebalance.drawdown import ForecastPlan, build_forcing, build_tables, run_forecast, simulate
+from lakebalance.laws import LakeLaws
 
 DAY = 86400.0
 
@@ -246,19 +247,21 @@ def test_constant_scenario_and_forecast_odds():
     f = dataclasses.replace(
         f, rain_m=np.zeros_like(f.rain_m), evaporation_m=np.zeros_like(f.rain_m)
     )
-    fc = run_forecast(
+    laws = LakeLaws(
         area=_const_area(area),
         volume=lambda h: area * np.asarray(h),
         outflow=_zero,
         stage_range_m=(0.0, 20.0),
-        forcing=f,
+        levels={"a": 9.0, "b": 2.0},
+    )
+    plan = ForecastPlan(
         start=pd.Timestamp("2016-03-31"),
         start_stage_m=10.0,
         scenario="constant",
-        levels={"a": 9.0, "b": 2.0},
         dead_level_m=1.0,
         demand_m3s=1.0,
     )
+    fc = run_forecast(laws, f, plan)
     days_a = 1.0 / (DAY / area)
     assert fc.level("a").probability == 1.0
     assert fc.level("a").days_50 == pytest.approx(days_a, rel=1e-9)

@@ -25,10 +25,7 @@ def demo():
 
     path = Path(__file__).resolve().parents[1] / "data_demo" / "site.toml"
     site = lb.load_site(path)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", lb.errors.LakebalanceWarning)
-        records = lb.load_records(site)
-    return site, records
+    return site, None
 
 
 def test_replay_member_reproduces_its_year_within_the_balance_residual(demo):
@@ -38,8 +35,9 @@ def test_replay_member_reproduces_its_year_within_the_balance_residual(demo):
     start, days = "2015-06-30", 90
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", lb.errors.LakebalanceWarning)
-        balance = lb.close_balance(site, draws=0, records=records)
-        fc = lb.forecast_drawdown(site, start=start, days=days, scenario="replay", records=records)
+        lake = lb.Lake(site, draws=0)
+        balance = lake.balance
+        fc = lake.forecast(start, days=days, scenario="replay")
     member = fc.labels.index("2015")
     daily = balance.daily.loc[start:].iloc[: days + 1]
     observed = daily["stage_m"].to_numpy()
@@ -57,9 +55,7 @@ def test_restrictions_side_by_side(demo):
     site, records = demo
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", lb.errors.LakebalanceWarning)
-        fc = lb.forecast_drawdown(
-            site, start="2022-06-30", days=200, scenario="constant", records=records
-        )
+        fc = lb.Lake(site).forecast("2022-06-30", days=200, scenario="constant")
     assert fc.restricted and fc.unrestricted is not None
     table = fc.restriction_effect()
     assert set(table.index) == set(site.levels)
@@ -119,20 +115,11 @@ def test_sampled_uncertainty_spreads_a_single_scenario(demo):
     sampled = dataclasses.replace(plain, sample_uncertainty=True, rating_variants=50)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", lb.errors.LakebalanceWarning)
-        one = lb.forecast_drawdown(
-            dataclasses.replace(site, drawdown=plain),
-            start="2022-06-30",
-            days=120,
-            scenario="percentile",
-            records=records,
+        one = lb.Lake(dataclasses.replace(site, drawdown=plain)).forecast(
+            "2022-06-30", days=120, scenario="percentile"
         )
-        many = lb.forecast_drawdown(
-            dataclasses.replace(site, drawdown=sampled),
-            start="2022-06-30",
-            days=120,
-            scenario="percentile",
-            members=200,
-            records=records,
+        many = lb.Lake(dataclasses.replace(site, drawdown=sampled)).forecast(
+            "2022-06-30", days=120, scenario="percentile", members=200
         )
     assert one.members == 1 and many.members == 200 and many.sampled_uncertainty
     end = many.stage_percentiles.iloc[-1]

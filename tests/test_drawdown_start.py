@@ -15,9 +15,9 @@ from lakebalance.errors import RangeError
 def test_start_stage_far_above_the_survey_is_one_error(demo_site_path):
     site = lb.load_site(demo_site_path)
     with pytest.raises(RangeError, match="outside the storage relation"):
-        lb.forecast_drawdown(site, start_stage_m=100.0, members=5, days=10)
+        lb.Lake(site).forecast(start_stage_m=100.0, members=5, days=10)
     with pytest.raises(RangeError, match="outside the storage relation"):
-        lb.forecast_drawdown(site, start_stage_m=-1.0, members=5, days=10)
+        lb.Lake(site).forecast(start_stage_m=-1.0, members=5, days=10)
 
 
 def test_cli_start_stage_in_wrong_unit_exits_2_with_one_line(demo_site_path):

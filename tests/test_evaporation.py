@@ -300,13 +300,14 @@ def test_api_lake_evaporation_with_records_and_volumes(tmp_path):
         for k in daily.columns
     )  # fmt: skip
     records = Records(site=site, daily=daily, flags=daily.notna() & False, series=series)
-    res = lakebalance.lake_evaporation(site, records, storage=_FlatLake())
+    lake = lakebalance.Lake.with_results(site, records=records, storage=_FlatLake())
+    res = lake.evaporation
     assert res.method == "penman"
     assert "10 m to 2 m" in res.inputs["wind"]
     np.testing.assert_allclose(res.evaporation_m3, res.depth_m * 2.5e6)
     np.testing.assert_allclose(res.rain_m3, 0.002 * 2.5e6)  # mean of the two gauges × area
     assert any("rain is the daily mean of 2 series" in n for n in res.notes)
-    pt = lakebalance.lake_evaporation(site, records, method="priestley_taylor")
+    pt = lakebalance.Lake.with_results(site, records=records).evaporation_by("priestley_taylor")
     assert pt.method == "priestley_taylor" and pt.rain_m3 is None
 
 

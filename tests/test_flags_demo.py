@@ -1,4 +1,4 @@
-"""The invented demo reservoir: planted problems recovered by ``find_flags`` and the commands.
+"""The invented demo reservoir: planted problems recovered by ``Lake.flags`` and the commands.
 
 Truth from ``data_demo/truth.json`` (written by the demo generator with the planted dates).
 """
@@ -11,8 +11,7 @@ import warnings
 import pandas as pd
 import pytest
 
-from lakebalance import estimate_seepage, find_flags, load_records, load_site
-from lakebalance.api import close_balance
+from lakebalance import Lake, load_site
 from lakebalance.cli import main
 from lakebalance.errors import LakebalanceWarning
 
@@ -25,13 +24,13 @@ def demo(request):
     if not path.exists():
         pytest.fail("data_demo/site.toml is missing: run data_demo/make_demo.py")
     site = load_site(path)
+    lake = Lake(site)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", LakebalanceWarning)
-        records = load_records(site)
-        balance = close_balance(site, records=records)
-        flags = find_flags(site, balance=balance, records=records)
+        balance = lake.balance
+        flags = lake.flags
     truth = json.loads((path.parent / "truth.json").read_text(encoding="utf-8"))
-    return site, records, balance, flags, truth
+    return site, lake, balance, flags, truth
 
 
 def _planted(truth):
@@ -71,10 +70,10 @@ def test_datum_shift_proposes_the_offset(demo):
 
 
 def test_seepage_runs_and_reports(demo):
-    site, records, balance, flags, truth = demo
+    site, lake, balance, flags, truth = demo
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", LakebalanceWarning)
-        fit = estimate_seepage(site, balance=balance, flags=flags, records=records)
+        fit = lake.seepage
     lo, hi = fit.conf_int()["k"]
     assert lo <= truth["seepage"]["k"] <= hi
     table = fit.rate_table()

@@ -24,7 +24,7 @@ def site(tmp_path, body: str, timezone: str = "UTC"):
 
 
 def records(tmp_path, body, **kw):
-    return lb.load_records(site(tmp_path, body, **kw))
+    return lb.Lake(site(tmp_path, body, **kw)).records
 
 
 def kinds(rec, key=None):

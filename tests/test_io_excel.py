@@ -26,7 +26,7 @@ def workbook(path, rows, title="Meter readings"):
 def load(tmp_path, body):
     p = tmp_path / "site.toml"
     p.write_text('[site]\nname = "Invented Pond"\n\n' + body, encoding="utf-8")
-    return lb.load_records(lb.load_site(p))
+    return lb.open_site(p).records
 
 
 BODY = (

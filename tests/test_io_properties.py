@@ -53,7 +53,7 @@ def test_corrupted_csv_gives_records_or_an_input_error(tmp_path, edits):
     site_file.write_text(SITE, encoding="utf-8")
     site = lb.load_site(site_file)
     try:
-        rec = lb.load_records(site)
+        rec = lb.Lake(site).records
     except LakebalanceError as exc:
         assert exc.file is not None
         assert exc.one_line().startswith("error: ")
@@ -94,7 +94,7 @@ def test_row_accounting_adds_up_for_any_cells(tmp_path, cells, repeats):
         encoding="utf-8",
     )
     try:
-        rec = lb.load_records(lb.load_site(site_file))
+        rec = lb.open_site(site_file).records
     except LakebalanceError as exc:
         assert exc.file is not None
         return

@@ -93,7 +93,7 @@ def load(tmp_path, series_body: str, xml: str, timezone: str = "Etc/GMT-1"):
         f'file = "q.xml"\n{series_body}',
         encoding="utf-8",
     )
-    return lb.load_records(lb.load_site(site))
+    return lb.open_site(site).records
 
 
 def test_measurement_timeseries_values_nil_and_zone(tmp_path):

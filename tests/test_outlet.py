@@ -345,7 +345,7 @@ def test_extrapolation_check_counts_days_and_distance():
 
 # ---- gaugings file, site file and command ---------------------------------------------------------
 def test_gaugings_file_in_litres_per_second_through_the_site(write):
-    from lakebalance import fit_rating, load_site
+    from lakebalance import Lake, load_site
 
     rng = np.random.default_rng(21)
     h = np.linspace(0.4, 2.4, 15)
@@ -361,18 +361,18 @@ def test_gaugings_file_in_litres_per_second_through_the_site(write):
         'stage = "level"\ndischarge = "flow"\ndischarge_units = "L/s"\ndelimiter = ";"\n'
         "dayfirst = true\n",
     )
-    fit = fit_rating(load_site(site))
+    fit = Lake(load_site(site)).rating
     assert fit.params["C"] == pytest.approx(4.0, rel=0.15)
     assert fit.table["date"].iloc[1] == pd.Timestamp("2015-04-01")
 
 
 def test_gaugings_missing_column_names_file(write):
-    from lakebalance import fit_rating, load_site
+    from lakebalance import Lake, load_site
 
     write("g.csv", "date,stage,flow\n2020-01-01,1.0,2.0\n")
     site = write("site.toml", '[site]\nname = "Invented Pond"\n[outlet]\ngaugings = "g.csv"\n')
     with pytest.raises(InputError, match="discharge") as exc:
-        fit_rating(load_site(site))
+        _ = Lake(load_site(site)).rating
     assert exc.value.file.endswith("g.csv")
 
 

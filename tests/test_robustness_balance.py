@@ -24,7 +24,7 @@ def test_storage_table_of_elevations_is_an_error_naming_the_table(tmp_path, caps
     site_path = write_site(tmp_path, storage_offset_m=1500.0)
     site = lb.load_site(site_path)
     with pytest.raises(RangeError, match="wholly outside the storage relation"):
-        lb.close_balance(site)
+        _ = lb.Lake(site).balance
     assert main(["balance", str(site_path)]) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and err[0].startswith("error: ") and "storage.csv" in err[0]
@@ -45,7 +45,7 @@ def test_days_above_the_storage_relation_warn_once(tmp_path, capsys):
     site = lb.load_site(site_path)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
-        balance = lb.close_balance(site, draws=50)
+        balance = lb.Lake(site, draws=50).balance
     extrap = [w for w in caught if issubclass(w.category, ExtrapolationWarning)]
     assert len(extrap) == 1
     stage = balance.daily["stage_m"].to_numpy()

@@ -18,7 +18,7 @@ def test_dynamics_without_overlapping_inflow_asks_for_one(tmp_path, capsys):
     site_path = write_site(tmp_path, inflow_shift_days=3000)
     site = lb.load_site(site_path)
     with pytest.raises(RangeError, match="--inflow"):
-        lb.lake_dynamics(site)
+        lb.Lake(site).dynamics()
     assert main(["dynamics", str(site_path)]) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and err[0].startswith("error: ")
@@ -39,7 +39,7 @@ def test_flags_on_a_balance_without_any_residual_is_an_error(tmp_path, capsys):
     site_path = write_site(tmp_path, inflow_shift_days=3000)
     site = lb.load_site(site_path)
     with pytest.raises(FitError, match="have a residual"):
-        lb.find_flags(site)
+        _ = lb.Lake(site).flags
     assert main(["flags", str(site_path)]) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and "0 of 120 day(s)" in err[0]

@@ -33,7 +33,7 @@ def test_undeclared_decimal_comma_is_named(tmp_path, capsys):
     stage = tmp_path / "stage.csv"
     stage.write_text(stage.read_text().replace(",", ";").replace(".", ","))
     with pytest.raises(InputError, match="decimal comma\\? set decimal = ','"):
-        lb.load_records(lb.load_site(site))
+        _ = lb.open_site(site).records
     assert main(["check", str(site)]) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and "e.g. '1,0" in err[0]
@@ -46,7 +46,7 @@ def test_decimal_comma_in_a_comma_delimited_file_is_stopped_at_its_line(tmp_path
     lines = inflow.read_text().splitlines()
     inflow.write_text("\n".join([lines[0]] + [ln.replace(".", ",") for ln in lines[1:]]) + "\n")
     with pytest.raises(InputError) as info:
-        lb.load_records(lb.load_site(site))
+        _ = lb.open_site(site).records
     assert info.value.line == 2
     assert "decimal comma" in info.value.message
 
@@ -58,7 +58,7 @@ def test_extra_text_column_without_header_is_still_read(tmp_path):
     inflow = tmp_path / "inflow.csv"
     lines = inflow.read_text().splitlines()
     inflow.write_text("\n".join([lines[0]] + [ln + ",A" for ln in lines[1:]]) + "\n")
-    records = lb.load_records(lb.load_site(site))
+    records = lb.open_site(site).records
     assert records.daily["inflow"].notna().all()
     assert records.daily["inflow"].iloc[0] == pytest.approx(0.2, abs=1e-12)
 
@@ -83,7 +83,7 @@ def test_weekly_stage_and_monthly_meter_totals_are_warned_about(tmp_path):
     site.write_text(text)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
-        lb.load_records(lb.load_site(site))
+        _ = lb.open_site(site).records
     messages = [str(w.message) for w in caught if issubclass(w.category, DataQualityWarning)]
     assert any("series.stage: readings about every 7 days" in m for m in messages)
     assert any("withdrawal" in m and "not spread over them" in m for m in messages)

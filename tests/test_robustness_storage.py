@@ -29,7 +29,7 @@ def test_contour_stage_after_a_datum_offset_is_the_surveyed_zero(tmp_path):
         'file = "contours.geojson"\nelevation_field = "ELEV"\nelevation_units = "ft"\n'
         "datum_offset = 30.48\n"
     )
-    curve = lb.load_storage(lb.load_site(tmp_path / "site.toml"))
+    curve = lb.open_site(tmp_path / "site.toml").storage
     # 100 ft - 30.48 m is 0 m exactly on paper; in floating point it was -3.6e-15 m
     assert curve.min_stage_m == 0.0
     assert str(curve.min_stage_m) == "0.0"

@@ -29,7 +29,7 @@ units = "m"
 def _write(tmp_path, stamps: list[str], values: np.ndarray, zone: str, extra: str = ""):
     pd.DataFrame({"time": stamps, "value": values}).to_csv(tmp_path / "stage.csv", index=False)
     (tmp_path / "site.toml").write_text(SITE.format(zone=zone, extra=extra))
-    return lb.load_records(lb.load_site(tmp_path / "site.toml"))
+    return lb.open_site(tmp_path / "site.toml").records
 
 
 def _kinds(records):

@@ -330,7 +330,7 @@ def test_storage_command_text_and_errors(write, tmp_path, capsys):
 
 
 def test_location_from_contours_when_site_gives_none(write, tmp_path):
-    from lakebalance.api import lake_location, load_site
+    from lakebalance import Lake, load_site
 
     _site(write, tmp_path)
     site = load_site(
@@ -339,6 +339,6 @@ def test_location_from_contours_when_site_gives_none(write, tmp_path):
             '[site]\nname = "x"\n[storage]\nsource = "contours"\nfile = "contours.gpkg"\n',
         )
     )
-    lat, lon = lake_location(site)
+    lat, lon = Lake(site).location
     # EPSG:3035 point (4.7e6 E, 2.7e6 N) lies in central Europe
     assert 40 < lat < 55 and 0 < lon < 25

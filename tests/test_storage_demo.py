@@ -15,7 +15,7 @@ import numpy as np
 import pyproj
 import pytest
 
-from lakebalance.api import lake_location, load_site, load_storage
+from lakebalance import Lake, load_site
 from lakebalance.storage import StorageCurve, compare_curves
 
 ROUNDING_M2 = 500.0  # half of the table's 0.1 ha step
@@ -27,14 +27,14 @@ def surveys(demo_site_path):
     contour_site = load_site(demo_site_path.with_name("site_contours.toml"))
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        return table_site, load_storage(table_site), load_storage(contour_site), contour_site
+        return table_site, Lake(table_site).storage, Lake(contour_site).storage, contour_site
 
 
 def _areal_scale(site) -> float:
     """UTM areal scale factor at the lake (pyproj ``Proj.get_factors``)."""
     import pyogrio
 
-    lat, lon = lake_location(site)
+    lat, lon = Lake(site).location
     crs = pyogrio.read_info(site.storage.file, layer=site.storage.layer)["crs"]
     return float(pyproj.Proj(crs).get_factors(lon, lat).areal_scale)
 

@@ -1,5 +1,5 @@
-"""Helpers shared by the subcommands: arguments and output (standard library at import; the
-residual pipeline imports the API only when it runs)."""
+"""Helpers shared by the subcommands: arguments, the analysis object, warnings and output
+(standard library at import; the analysis is imported only when a command runs)."""
 
 from __future__ import annotations
 
@@ -29,34 +29,49 @@ def add_seed(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--seed", type=int, default=None, help="random seed (default: site file)")
 
 
-def residual_inputs(site, seed: int, *, seepage: bool = False) -> tuple:
-    """Records, the daily balance and its flags (and the seepage fit when asked) for ``site``.
+def open_lake(args: argparse.Namespace, **settings):
+    """The analysis object of the command's site file, seeded from ``--seed`` when given."""
+    from ..analysis import open_site
 
-    The flags and seepage commands both start from these; the balance's own notes carry its
-    warnings, so lakebalance's warnings are not printed again here.
+    seed = getattr(args, "seed", None)
+    return open_site(args.site, seed=seed, **settings)
+
+
+class LakebalanceWarnings:
+    """Collect lakebalance's warnings raised inside a ``with`` block, to be stated once each.
+
+    Other libraries' warnings are passed on as they came.
     """
-    import warnings
 
-    import numpy as np
+    def __enter__(self) -> list[str]:
+        import warnings
 
-    from ..api import close_balance, estimate_seepage, find_flags, load_records
-    from ..errors import LakebalanceWarning
+        self._ctx = warnings.catch_warnings(record=True)
+        self._seen = self._ctx.__enter__()
+        warnings.simplefilter("always")
+        self.messages: list[str] = []
+        return self.messages
 
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", LakebalanceWarning)
-        records = load_records(site)
-        balance = close_balance(site, records=records, rng=np.random.default_rng(seed))
-        flags = find_flags(site, balance=balance, records=records)
-        fit = (
-            estimate_seepage(site, balance=balance, flags=flags, records=records)
-            if seepage
-            else None
-        )
-    return records, balance, flags, fit
+    def __exit__(self, *exc) -> None:
+        import warnings
+
+        from ..errors import LakebalanceWarning
+
+        self._ctx.__exit__(*exc)
+        other = []
+        for w in self._seen:
+            if issubclass(w.category, LakebalanceWarning):
+                self.messages.append(str(w.message))
+            else:
+                other.append(w)
+        self.messages[:] = list(dict.fromkeys(self.messages))
+        for w in other:  # someone else's warning: as it came
+            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
 
 
-def emit(args: argparse.Namespace, site, seed: int, doc: dict, summary: str, written: list) -> None:
+def emit(args: argparse.Namespace, lake, doc: dict, summary: object, written: list) -> None:
     """Print a result as one JSON document (``--json``) or as its text summary."""
+    site, seed = lake.site, lake.seed
     if args.json:
         from .._json import dumps
 

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from ._common import add_json, add_out, add_seed, add_site
+from ._common import LakebalanceWarnings, add_json, add_out, add_seed, add_site, open_lake
 
 HELP = (
     "close the daily water balance: monthly and water-year tables with 5-95 percent residual bands"
@@ -45,21 +45,17 @@ _BANDS = ["residual_p05_m3", "residual_p95_m3", "p_gain", "p_nonzero"]
 
 def run(args: argparse.Namespace) -> int:
     import sys
-    import warnings
 
     from .._json import dumps
-    from ..api import close_balance, load_site
     from ..balance import CAUTION
-    from ..errors import LakebalanceError, LakebalanceWarning
+    from ..errors import LakebalanceError
 
     if args.draws is not None and args.draws < 0:
         raise LakebalanceError("--draws must be 0 or more")
-    site = load_site(args.site)
-    seed = site.site.seed if args.seed is None else args.seed
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always", LakebalanceWarning)
-        balance = close_balance(site, draws=args.draws, seed=seed)
-    messages = list(dict.fromkeys(str(w.message) for w in caught))
+    lake = open_lake(args, draws=args.draws)
+    site, seed = lake.site, lake.seed
+    with LakebalanceWarnings() as messages:
+        balance = lake.balance
     annual = balance.water_years()
     monthly = balance.monthly()
     files = _write_outputs(args.out, balance, annual, monthly, seed) if args.out else []

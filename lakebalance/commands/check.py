@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from ._common import add_json, add_site
+from ._common import LakebalanceWarnings, add_json, add_site, open_lake
 
 HELP = "load and check the gauge records of a site: periods, missing days, findings, row accounting"
 
@@ -15,19 +15,14 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     add_json(parser)
 
 
-def _storage_findings(site, records) -> tuple[list, str | None]:
+def _storage_findings(lake) -> tuple[list, str | None]:
     """Findings of stage outside the storage relation, when one can be loaded."""
-    from .. import api
-
-    load_storage = getattr(api, "load_storage", None)
-    if site.storage is None or load_storage is None or not records.has("stage"):
+    records = lake.records
+    if lake.site.storage is None or not records.has("stage"):
         return [], None
-    from ..errors import LakebalanceError
-
-    try:
-        curve = load_storage(site)
-    except LakebalanceError as exc:
-        return [], f"storage relation not checked against stage: {exc.one_line()[7:]}"
+    curve = lake.get("storage")
+    if curve is None:
+        return [], f"storage relation not checked against stage: {lake.reason('storage')}"
     from ..qa import outside_storage_findings
 
     key = records.keys("stage")[0]
@@ -39,22 +34,15 @@ def _storage_findings(site, records) -> tuple[list, str | None]:
 def run(args: argparse.Namespace) -> int:
     """Load the records, print the report (text or JSON), return 0."""
     import sys
-    import warnings
 
-    from .. import api
     from .._json import dumps
-    from ..errors import LakebalanceWarning
 
-    site = api.load_site(args.site)
-    with warnings.catch_warnings(record=True) as caught:
-        # stated once, plainly, after the report (not as Python's file:line warning text)
-        warnings.simplefilter("always", LakebalanceWarning)
-        records = api.load_records(site, progress=not args.json)
-        extra, note = _storage_findings(site, records)
-    messages = list(dict.fromkeys(str(w.message) for w in caught))
-    for w in caught:
-        if not issubclass(w.category, LakebalanceWarning):  # someone else's: as it came
-            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
+    lake = open_lake(args, progress=not args.json)
+    site = lake.site
+    # stated once, plainly, after the report (not as Python's file:line warning text)
+    with LakebalanceWarnings() as messages:
+        records = lake.records
+        extra, note = _storage_findings(lake)
     findings = list(records.findings) + extra
     if args.json:
         doc = {

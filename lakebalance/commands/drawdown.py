@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from ._common import add_json, add_out, add_seed, add_site
+from ._common import LakebalanceWarnings, add_json, add_out, add_seed, add_site, open_lake
 
 HELP = "forecast the drawdown of the lake: odds and dates of reaching each named level"
 
@@ -44,30 +44,19 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run(args: argparse.Namespace) -> int:
     import sys
-    import warnings
 
     from .._json import dumps
-    from ..api import forecast_drawdown, load_site
-    from ..errors import LakebalanceWarning
 
-    site = load_site(args.site)
-    seed = site.site.seed if args.seed is None else args.seed
-    caught: list[str] = []
-    with warnings.catch_warnings(record=True) as seen:
-        warnings.simplefilter("always", LakebalanceWarning)
-        forecast = forecast_drawdown(
-            site,
-            start=args.start,
+    lake = open_lake(args, progress=not args.no_progress and sys.stderr.isatty())
+    site, seed = lake.site, lake.seed
+    with LakebalanceWarnings() as caught:
+        forecast = lake.forecast(
+            args.start,
             days=args.days,
             scenario=args.scenario,
             members=args.members,
-            seed=seed,
             start_stage_m=args.start_stage,
-            progress=not args.no_progress and sys.stderr.isatty(),
         )
-    for w in seen:
-        if issubclass(w.category, LakebalanceWarning):
-            caught.append(str(w.message))
     written = []
     if args.out is not None:
         from ..io.output import save_figure, write_csv, write_text

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from ._common import add_json, add_site
+from ._common import LakebalanceWarnings, add_json, add_site, open_lake
 
 HELP = "residence and response times, equilibrium stages, inflow limits and what-if changes"
 
@@ -70,30 +70,30 @@ def _flow(text: str | None, what: str) -> float | None:
 
 def run(args: argparse.Namespace) -> int:
     import sys
-    import warnings
 
     from .._json import dumps
-    from ..api import lake_dynamics, load_site
-    from ..errors import LakebalanceError, LakebalanceWarning
+    from ..dynamics import WhatIfRequest
+    from ..errors import LakebalanceError
 
-    site = load_site(args.site)
+    lake = open_lake(args)
+    site = lake.site
     outlet = {}
     for name, value in args.outlet:
         try:
             outlet[name] = float(value)
         except ValueError:
             raise LakebalanceError(f"--outlet {name}: {value!r} is not a number") from None
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always", LakebalanceWarning)
-        dyn = lake_dynamics(
-            site,
+    what_if = WhatIfRequest(
+        outlet=outlet,
+        demand_m3s=_flow(args.demand, "--demand"),
+        evaporation_scale=args.evaporation_scale,
+    )
+    with LakebalanceWarnings() as messages:
+        dyn = lake.dynamics(
             _flow(args.inflow, "--inflow"),
-            outlet=outlet or None,
-            demand_m3s=_flow(args.demand, "--demand"),
-            evaporation_scale=args.evaporation_scale,
+            what_if=what_if,
             stages={f"{h:g} m": h for h in args.stage} or None,
         )
-    messages = list(dict.fromkeys(str(w.message) for w in caught))
     if args.json:
         doc = {"site": site.site.name, **dyn.to_dict(), "warnings": messages}
         print(dumps(doc))

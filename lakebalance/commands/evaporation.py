@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from ._common import add_json, add_site
+from ._common import LakebalanceWarnings, add_json, add_site, open_lake
 
 HELP = "lake evaporation: monthly totals of every method the weather allows, side by side"
 
@@ -34,17 +34,12 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    import warnings
-
-    from .. import api
     from .._json import dumps
-    from ..errors import LakebalanceWarning
 
-    site = api.load_site(args.site)
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always", LakebalanceWarning)
-        result = api.lake_evaporation(site, method=args.method)
-    messages = [str(w.message) for w in caught if issubclass(w.category, LakebalanceWarning)]
+    lake = open_lake(args)
+    site = lake.site
+    with LakebalanceWarnings() as messages:
+        result = lake.evaporation_by(args.method)
     monthly = result.monthly(args.unit)
     diffs = result.monthly_differences(args.unit)
     if args.json:

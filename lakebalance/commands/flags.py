@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from ._common import add_json, add_out, add_seed, add_site, emit, residual_inputs
+from ._common import LakebalanceWarnings, add_json, add_out, add_seed, add_site, emit, open_lake
 
 HELP = "flag spikes, datum shifts, runs and drift in the residual of the daily balance"
 
@@ -17,11 +17,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from ..api import load_site
-
-    site = load_site(args.site)
-    seed = site.site.seed if args.seed is None else args.seed
-    _, _, flags, _ = residual_inputs(site, seed)
+    lake = open_lake(args)
+    with LakebalanceWarnings():  # the balance's own notes carry them
+        flags = lake.flags
     written = []
     if args.out is not None:
         from ..io.output import save_figure, write_csv, write_text
@@ -30,5 +28,5 @@ def run(args: argparse.Namespace) -> int:
         written.append(write_csv(args.out / "flags.csv", flags.to_frame(), index=False))
         written.append(write_text(args.out / "flags.txt", flags.summary() + "\n"))
         written.append(save_figure(args.out / "flags.png", flags_figure(flags)))
-    emit(args, site, seed, flags.to_dict(), flags.summary(), written)
+    emit(args, lake, flags.to_dict(), flags.summary(), written)
     return 0

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from ._common import add_json, add_out, add_seed, add_site
+from ._common import LakebalanceWarnings, add_json, add_out, add_seed, add_site, open_lake
 
 HELP = "fit the outlet rating curve to the spot gaugings, with its uncertainty"
 
@@ -22,31 +22,17 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     add_seed(parser)
 
 
-def _stage_record(site):  # -> pandas Series or None
-    if not site.series_of("stage"):
-        return None
-    from ..api import load_records
-
-    records = load_records(site)
-    daily = records.daily
-    return daily["stage"] if "stage" in daily.columns else None
-
-
 def run(args: argparse.Namespace) -> int:
-    import warnings
-
-    import numpy as np
-
     from .._json import dumps
-    from ..api import fit_rating, load_site
-    from ..errors import FitError, LakebalanceWarning
+    from ..errors import ConfigError, FitError
     from ..outlet.diagnostics import extrapolation_check, shift_test
 
-    site = load_site(args.site)
-    seed = site.site.seed if args.seed is None else args.seed
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", LakebalanceWarning)  # collected in fit.warnings
-        fit = fit_rating(site, rng=np.random.default_rng(seed))
+    lake = open_lake(args)
+    site, seed = lake.site, lake.seed
+    with LakebalanceWarnings():  # collected in fit.warnings
+        fit = lake.rating
+    if fit is None:
+        raise ConfigError("the site file has no [outlet] section", file=site.path)
     messages = list(fit.warnings)
     shift = None
     try:
@@ -54,7 +40,10 @@ def run(args: argparse.Namespace) -> int:
         messages += shift.messages()
     except FitError as exc:
         messages.append(f"no rating-shift test: {exc.message}")
-    stage = _stage_record(site)
+    stage = None
+    if site.series_of("stage"):
+        daily = lake.records.daily
+        stage = daily["stage"] if "stage" in daily.columns else None
     extra = extrapolation_check(fit, stage) if stage is not None else None
     if extra is not None:
         messages += extra.messages()

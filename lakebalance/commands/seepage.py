@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from ._common import add_json, add_out, add_seed, add_site, emit, residual_inputs
+from ._common import LakebalanceWarnings, add_json, add_out, add_seed, add_site, emit, open_lake
 
 HELP = "estimate seepage (net loss to the ground) from the residual, with 95 per cent intervals"
 
@@ -17,11 +17,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from ..api import load_site
-
-    site = load_site(args.site)
-    seed = site.site.seed if args.seed is None else args.seed
-    _, _, _, fit = residual_inputs(site, seed, seepage=True)
+    lake = open_lake(args)
+    with LakebalanceWarnings():  # the balance's own notes carry them
+        fit = lake.seepage
     written = []
     if args.out is not None:
         from ..io.output import save_figure, write_csv, write_text
@@ -30,5 +28,5 @@ def run(args: argparse.Namespace) -> int:
         written.append(write_csv(args.out / "seepage_rates.csv", fit.rate_table(), index=False))
         written.append(write_text(args.out / "seepage.txt", fit.summary() + "\n"))
         written.append(save_figure(args.out / "seepage.png", seepage_figure(fit)))
-    emit(args, site, seed, fit.to_dict(), fit.summary(), written)
+    emit(args, lake, fit.to_dict(), fit.summary(), written)
     return 0

@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from ._common import add_json, add_out, add_site
+from ._common import LakebalanceWarnings, add_json, add_out, add_site, open_lake
 
 HELP = "the stage-area-storage relation at a regular stage step, with a figure"
 
@@ -37,33 +37,24 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    import warnings
-
-    from .. import api
     from .._json import dumps
-    from ..errors import LakebalanceError, LakebalanceWarning
+    from ..errors import LakebalanceError
     from ..storage import compare_curves
 
     if not (args.step > 0):
         raise LakebalanceError(f"--step must be a positive number of metres, got {args.step}")
-    site = api.load_site(args.site)
-    messages: list[str] = []
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always", LakebalanceWarning)
-        curve = api.load_storage(site)
+    lake = open_lake(args)
+    site = lake.site
+    with LakebalanceWarnings() as messages:
+        curve = lake.storage
         compare_file = args.compare or (site.storage.compare if site.storage else None)
         other = None
         comparison = None
         if compare_file is not None:
-            other = api.load_storage(site, file=Path(compare_file).expanduser().resolve())
+            other = lake.survey(Path(compare_file).expanduser().resolve())
             comparison = compare_curves(curve, other, args.step)
-        location = api.lake_location(site)
+        location = lake.location
         table = curve.table(args.step)
-    for w in caught:
-        if issubclass(w.category, LakebalanceWarning):
-            messages.append(str(w.message))
-        else:  # pragma: no cover - someone else's warning: show it as it is
-            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
     location_from = None
     if location is not None:
         given = site.site.latitude is not None and site.site.longitude is not None

@@ -10,7 +10,19 @@ See ``docs/drawdown.md``.
 from __future__ import annotations
 
 from .engine import EngineResult, LakeTables, build_tables, simulate
-from .forecast import CAUTION, PERCENTILES, Forecast, LevelOdds, run_forecast
+from .forecast import (
+    CAUTION,
+    PERCENTILES,
+    Forecast,
+    ForecastPlan,
+    LevelOdds,
+    ModelSamples,
+    check_start_stage,
+    forecast_stage_max,
+    run_forecast,
+    sample_model_uncertainty,
+)
+from .options import DemandRule, DrawdownOptions
 from .scenarios import TERMS, Forcing, build_forcing, climatology
 
 __all__ = [
@@ -23,6 +35,13 @@ __all__ = [
     "Forecast",
     "LevelOdds",
     "run_forecast",
+    "ForecastPlan",
+    "ModelSamples",
+    "check_start_stage",
+    "forecast_stage_max",
+    "sample_model_uncertainty",
+    "DemandRule",
+    "DrawdownOptions",
     "TERMS",
     "Forcing",
     "build_forcing",

@@ -18,7 +18,7 @@ from __future__ import annotations
 import datetime as _dt
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import pandas as pd
@@ -27,7 +27,21 @@ from ..units import SECONDS_PER_DAY
 from .engine import EngineResult, build_tables, simulate
 from .scenarios import Forcing
 
-__all__ = ["Forecast", "LevelOdds", "run_forecast", "CAUTION", "PERCENTILES"]
+if TYPE_CHECKING:  # pragma: no cover
+    from ..laws import LakeLaws
+
+__all__ = [
+    "Forecast",
+    "LevelOdds",
+    "ForecastPlan",
+    "ModelSamples",
+    "run_forecast",
+    "sample_model_uncertainty",
+    "check_start_stage",
+    "forecast_stage_max",
+    "CAUTION",
+    "PERCENTILES",
+]
 
 #: Stage percentiles of the fan chart (%).
 PERCENTILES = (5, 10, 25, 50, 75, 90, 95)
@@ -289,25 +303,147 @@ def _demand_schedule(
     return values[dates.month.to_numpy() - 1]
 
 
+@dataclass(frozen=True)
+class ForecastPlan:
+    """What a forecast is asked: where it starts and how the lake is operated.
+
+    Parameters
+    ----------
+    start : date
+        Start day (the state is the end of this day).
+    start_stage_m : float
+        Stage at the start (m).
+    scenario : str
+        Scenario name, for the outputs.
+    stage_max_m : float, optional
+        Highest stage the tables need (m; default: the laws' surveyed range).
+    dead_level_m : float, optional
+        Stage (m) below which withdrawals and releases stop (default: the empty lake).
+    demand_m3s : float or 12 floats, optional
+        Withdrawal demand, constant or monthly (m³/s); default: the forcing's withdrawals.
+    environmental_release_m3s : float
+        Minimum downstream flow kept while above the dead level (m³/s).
+    restriction : tuple of (trigger_m, cut)
+        Demand cut by ``cut`` (-) on days starting below ``trigger_m`` (m).
+    """
+
+    start: _dt.date | pd.Timestamp
+    start_stage_m: float
+    scenario: str
+    stage_max_m: float | None = None
+    dead_level_m: float | None = None
+    demand_m3s: float | Sequence[float] | None = None
+    environmental_release_m3s: float = 0.0
+    restriction: tuple[tuple[float, float], ...] = ()
+
+
+@dataclass(frozen=True, eq=False)
+class ModelSamples:
+    """Sampled model uncertainty of an ensemble: one evaporation factor per member and rating
+    variants shared by the members.
+
+    Parameters
+    ----------
+    evaporation_factor : ndarray (members,), optional
+        Per-member factor (-) on evaporation.
+    outflow_variants : callable, optional
+        Stage array (n,) -> discharge (variants, n), m³/s: one row per sampled rating.
+    variants : int
+        Number of rating variants; members are assigned to them at random.
+    notes : tuple of str
+    """
+
+    evaporation_factor: np.ndarray | None = None
+    outflow_variants: Callable[[np.ndarray], np.ndarray] | None = None
+    variants: int = 0
+    notes: tuple[str, ...] = ()
+
+
+def sample_model_uncertainty(
+    rating: Any,
+    members: int,
+    evaporation_sigma: float | None,
+    rating_variants: int,
+    rng: np.random.Generator,
+) -> ModelSamples:
+    """Draw the model uncertainty of an ensemble.
+
+    Parameters
+    ----------
+    rating : RatingFit, optional
+        The fitted rating (None: no rating uncertainty).
+    members : int
+        Ensemble members.
+    evaporation_sigma : float, optional
+        Relative (1-σ) error of lake evaporation (-); 10 % when not given (assumed, no source).
+    rating_variants : int
+        Ratings drawn from the rating's parameter covariance, shared by the members.
+    rng : numpy.random.Generator
+        Source of the draws (evaporation factors first, then the ratings).
+
+    Notes
+    -----
+    Each member draws an evaporation factor ``max(1 + s z, 0)`` with z standard normal.
+    """
+    from ..errors import FitError
+
+    notes: list[str] = []
+    sigma = evaporation_sigma
+    if sigma is None:
+        sigma = 0.10
+        notes.append("evaporation error taken as 10 % (1 sigma): assumed, no source")
+    factor = np.maximum(1.0 + sigma * rng.standard_normal(int(members)), 0.0)
+    variants_fn = None
+    n_var = 0
+    if rating is not None:
+        try:
+            params = rating.sample_params(rng, max(1, int(rating_variants)))
+            n_var = params.shape[0]
+
+            def variants_fn(x, params=params):
+                grid = np.broadcast_to(np.asarray(x, dtype=float), (params.shape[0], len(x)))
+                return rating.discharge_with(params, grid)
+
+        except FitError as exc:
+            notes.append(f"rating uncertainty left out: {exc.message}")
+    return ModelSamples(factor, variants_fn, n_var, tuple(notes))
+
+
+def check_start_stage(start_stage_m: float, laws: LakeLaws) -> None:
+    """Stop a forecast that would start outside the storage relation.
+
+    A forecast may start above the survey by a tenth of its span when area is extended there;
+    anywhere else outside the relation it would extrapolate blindly (often a stage in the wrong
+    unit or on another datum), so it is one :class:`~lakebalance.errors.RangeError`.
+    """
+    from ..errors import RangeError
+
+    lo, hi = laws.min_stage_m, laws.max_stage_m
+    top = hi + (0.1 * (hi - lo) if laws.above == "extend" else 0.0)
+    if not (lo - 1e-9 <= start_stage_m <= top + 1e-9):
+        raise RangeError(
+            f"the forecast's start stage {start_stage_m:.3f} m lies outside the storage relation "
+            f"({lo:.2f} to {hi:.2f} m"
+            + (f", extended to {top:.2f} m" if top > hi else "")
+            + "); check the stage's units and datum, or give --start-stage"
+        )
+
+
+def forecast_stage_max(laws: LakeLaws, start_stage_m: float) -> float:
+    """Highest stage the forecast's tables cover (m): a metre above the start and the highest
+    level where the relation extends its area, else the surveyed top."""
+    if laws.above != "extend":
+        return laws.max_stage_m
+    top_level = max(laws.levels.values(), default=laws.min_stage_m)
+    return max(laws.max_stage_m, top_level + 1.0, float(start_stage_m) + 1.0)
+
+
 def run_forecast(
-    *,
-    area: Callable[[np.ndarray], np.ndarray],
-    volume: Callable[[np.ndarray], np.ndarray],
-    outflow: Callable[[np.ndarray], np.ndarray],
-    stage_range_m: tuple[float, float],
+    laws: LakeLaws,
     forcing: Forcing,
-    start: _dt.date | pd.Timestamp,
-    start_stage_m: float,
-    scenario: str,
-    levels: dict[str, float] | None = None,
-    dead_level_m: float | None = None,
-    seepage: Callable[[np.ndarray], np.ndarray] | None = None,
-    demand_m3s: float | Sequence[float] | None = None,
-    environmental_release_m3s: float = 0.0,
-    restriction: Sequence[tuple[float, float]] = (),
-    outflow_variants: Callable[[np.ndarray], np.ndarray] | None = None,
-    variants: int = 0,
-    evaporation_factor: np.ndarray | None = None,
+    plan: ForecastPlan,
+    *,
+    samples: ModelSamples | None = None,
     rng: np.random.Generator | None = None,
     seed: int | None = None,
     progress: Callable[[int], None] | None = None,
@@ -317,38 +453,15 @@ def run_forecast(
 
     Parameters
     ----------
-    area, volume : callable
-        Lake area (m²) and storage (m³) of an array of stages (m).
-    outflow : callable
-        Outlet discharge (m³/s, spillway included) of an array of stages (m).
-    stage_range_m : (float, float)
-        Empty-lake stage and the highest stage the tables need (m).
+    laws : LakeLaws
+        Area, volume, outflow (m³/s; zero when None) and seepage of a stage, and the named
+        levels whose crossing odds are reported.
     forcing : Forcing
         The scenario's forcing (:func:`~lakebalance.drawdown.scenarios.build_forcing`).
-    start : date
-        Start day (the state is the end of this day).
-    start_stage_m : float
-        Stage at the start (m).
-    scenario : str
-        Scenario name, for the outputs.
-    levels : dict, optional
-        Named stages (m) whose crossing odds are reported.
-    dead_level_m : float, optional
-        Stage (m) below which withdrawals and releases stop (default: the empty lake).
-    seepage : callable, optional
-        Net loss to groundwater (m³/s, positive leaving) of an array of stages (m).
-    demand_m3s : float or 12 floats, optional
-        Withdrawal demand, constant or monthly (m³/s); default: the forcing's withdrawals.
-    environmental_release_m3s : float
-        Minimum downstream flow kept while above the dead level (m³/s).
-    restriction : sequence of (trigger_m, cut)
-        Demand cut by ``cut`` (-) on days starting below ``trigger_m`` (m).
-    outflow_variants : callable, optional
-        Stage array (n,) -> discharge (variants, n), m³/s: one row per sampled rating.
-    variants : int
-        Number of rating variants of ``outflow_variants``; members are assigned at random.
-    evaporation_factor : ndarray (members,), optional
-        Per-member factor (-) on evaporation (sampled evaporation error).
+    plan : ForecastPlan
+        Start, scenario name, dead level, demand, environmental release and restriction rules.
+    samples : ModelSamples, optional
+        Sampled evaporation factors and rating variants (:func:`sample_model_uncertainty`).
     rng : numpy.random.Generator, optional
         Used to assign members to rating variants.
     seed : int, optional
@@ -362,7 +475,20 @@ def run_forecast(
     -------
     Forecast
     """
-    levels = dict(levels or {})
+    samples = samples or ModelSamples()
+    notes = (*notes, *samples.notes)
+    area, volume = laws.area, laws.volume
+    outflow = laws.outflow if laws.outflow is not None else _no_outflow
+    seepage = laws.seepage
+    levels = dict(laws.levels)
+    lo = laws.min_stage_m
+    hi = plan.stage_max_m if plan.stage_max_m is not None else laws.max_stage_m
+    stage_range_m = (lo, hi)
+    start, start_stage_m, scenario = plan.start, plan.start_stage_m, plan.scenario
+    dead_level_m, demand_m3s = plan.dead_level_m, plan.demand_m3s
+    environmental_release_m3s, restriction = plan.environmental_release_m3s, plan.restriction
+    outflow_variants, variants = samples.outflow_variants, samples.variants
+    evaporation_factor = samples.evaporation_factor
     lo, hi = stage_range_m
     floor = lo if dead_level_m is None else float(dead_level_m)
     out_fn = outflow_variants if outflow_variants is not None and variants > 0 else outflow
@@ -472,6 +598,10 @@ def run_forecast(
         free = wrap(one((), None), False, None)
         return wrap(one(rules, progress), True, free)
     return wrap(one((), progress), False, None)
+
+
+def _no_outflow(h: np.ndarray) -> np.ndarray:
+    return np.zeros_like(np.asarray(h, dtype=float))
 
 
 def _take_members(forcing: Forcing, idx: np.ndarray) -> Forcing:

@@ -2,7 +2,7 @@
 
 :func:`estimate_lake_evaporation` takes a daily weather table (one column per weather role, in
 the internal units of :mod:`lakebalance.units`) and returns an :class:`EvaporationResult`. It is
-pure: the site file and the records are unpacked by :func:`lakebalance.api.lake_evaporation`.
+pure: the site file and the records are unpacked by :class:`lakebalance.analysis.Lake`.
 
 Missing weather
 ---------------

@@ -1,6 +1,6 @@
 """Reading the files of a site: one reader per format, daily aggregation, QA, row accounting.
 
-:func:`read_records` is the entry point (the API's :func:`lakebalance.api.load_records` calls it).
+:func:`read_records` is the entry point (:attr:`lakebalance.analysis.Lake.records` calls it).
 Formats, chosen by file suffix: delimited text (:mod:`lakebalance.io.csv`), Excel workbooks
 (:mod:`lakebalance.io.excel`), WaterML 2.0 documents (:mod:`lakebalance.io.waterml2`); small
 strict tables (storage relations, gaugings) through :func:`lakebalance.io.tables.read_table`.

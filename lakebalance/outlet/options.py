@@ -54,3 +54,29 @@ class OutletOptions(Options):
     component: tuple[OutletComponent, ...] = ()  # compound/segmented controls
     shift_date: str | None = None  # ISO date for a before/after rating-shift test
     bootstrap: int = setting(0, unit="refits", low=0)  # 0 = delta method only
+
+    def fit_options(self):
+        """The :class:`~lakebalance.outlet.fit.FitOptions` this section asks for (component keys
+        become ``name.param``)."""
+        from ..errors import ConfigError
+        from .fit import FitOptions
+
+        fixed, initial, bounds = dict(self.fixed), dict(self.initial), {}
+        for key, pair in self.bounds.items():
+            bounds[key] = tuple(pair)
+        for comp in self.component:
+            fixed.update({f"{comp.name}.{k}": v for k, v in comp.fixed.items()})
+            initial.update({f"{comp.name}.{k}": v for k, v in comp.initial.items()})
+            bounds.update({f"{comp.name}.{k}": tuple(v) for k, v in comp.bounds.items()})
+        for key, pair in bounds.items():
+            if len(pair) != 2:
+                raise ConfigError(
+                    f"[outlet] bounds of '{key}' must be [lower, upper], got {list(pair)}"
+                )
+        return FitOptions(
+            residuals=self.residuals,
+            fixed=fixed,
+            initial=initial,
+            bounds=bounds,
+            bootstrap=self.bootstrap,
+        )

@@ -23,9 +23,9 @@ from ..stats import water_year_of
 from ..units import SECONDS_PER_DAY, from_si
 
 if TYPE_CHECKING:  # pragma: no cover
-    from ..config import Site
+    from ..analysis import Lake
 
-__all__ = ["Table", "Figure", "Section", "SiteRun", "ReportResult", "run_site", "make_report"]
+__all__ = ["Table", "Figure", "Section", "ReportResult", "REPORT_STEPS", "run_steps", "make_report"]
 
 
 # --------------------------------------------------------------------------------------------
@@ -139,151 +139,33 @@ def _fmt(x: float, decimals: int = 0) -> str:
 # --------------------------------------------------------------------------------------------
 # Running every step once
 # --------------------------------------------------------------------------------------------
-@dataclass(frozen=True)
-class SiteRun:
-    """Every result of one site, each None with a reason in ``unavailable`` when its step could not run."""
-
-    site: Site
-    seed: int
-    records: Any
-    storage: Any = None
-    rating: Any = None
-    evaporation: Any = None
-    balance: Any = None
-    flags: Any = None
-    seepage: Any = None
-    dynamics: Any = None
-    forecast: Any = None
-    unavailable: dict[str, str] = field(default_factory=dict)
-    warnings: tuple[str, ...] = ()
+#: The steps a report shows, in the order they run.
+REPORT_STEPS = (
+    "storage",
+    "rating",
+    "evaporation",
+    "balance",
+    "flags",
+    "seepage",
+    "dynamics",
+    "forecast",
+)
 
 
-def _step(name: str, fn: Any, unavailable: dict[str, str]) -> Any:
-    try:
-        return fn()
-    except LakebalanceError as exc:
-        unavailable[name] = exc.one_line().removeprefix("error: ")
-    except (KeyError, ValueError) as exc:  # an input this step needs is absent
-        unavailable[name] = f"{type(exc).__name__}: {exc}"
-    return None
-
-
-def run_site(
-    site: Site,
-    *,
-    seed: int | None = None,
-    draws: int | None = None,
-    members: int | None = None,
-    forecast_start: str | None = None,
-    progress: bool = False,
-) -> SiteRun:
-    """Run every step of the job on ``site`` once, passing each result on to the next.
-
-    Parameters
-    ----------
-    site : Site
-        The validated site file.
-    seed : int, optional
-        Seed of every random draw (default: ``[site] seed``).
-    draws : int, optional
-        Monte Carlo draws of the balance (default: ``[uncertainty] draws``).
-    members : int, optional
-        Ensemble members of the drawdown forecast (default: ``[drawdown] members``).
-    forecast_start : str, optional
-        ISO date the forecast starts from (default: the last day of the record).
-    progress : bool
-        Show progress bars on stderr.
-    """
-    from .. import api
-
-    seed = int(site.site.seed if seed is None else seed)
-    unavailable: dict[str, str] = {}
+def run_steps(lake: Lake) -> list[str]:
+    """Run every step of ``lake`` once (a step that cannot run keeps its reason) and return the
+    warnings raised on the way, each once, as ``"Category: message"``."""
     caught: list[str] = []
     with warnings.catch_warnings(record=True) as seen:
         warnings.simplefilter("always")
-        records = api.load_records(site, progress=progress)
-        storage = _step("storage", lambda: api.load_storage(site), unavailable)
-        rating = _step("rating", lambda: api.fit_rating(site), unavailable)
-        evaporation = _step(
-            "evaporation", lambda: api.lake_evaporation(site, records, storage), unavailable
-        )
-        balance = None
-        if storage is not None:
-            balance = _step(
-                "balance",
-                lambda: api.close_balance(
-                    site,
-                    records=records,
-                    storage=storage,
-                    rating=rating,
-                    evaporation_m=None if evaporation is None else evaporation.depth_m,
-                    draws=draws,
-                    rng=np.random.default_rng(seed),
-                ),
-                unavailable,
-            )
-        else:
-            unavailable["balance"] = "needs the storage relation"
-        flags = seepage = dynamics = forecast = None
-        if balance is not None:
-            flags = _step(
-                "flags", lambda: api.find_flags(site, balance=balance, records=records), unavailable
-            )
-            seepage = _step(
-                "seepage",
-                lambda: api.estimate_seepage(site, balance=balance, flags=flags, records=records),
-                unavailable,
-            )
-        if balance is not None:
-            dynamics = _step(
-                "dynamics",
-                lambda: api.lake_dynamics(
-                    site,
-                    balance=balance,
-                    records=records,
-                    storage=storage,
-                    rating=rating,
-                    seepage=seepage,
-                    use_seepage=seepage is not None,
-                ),
-                unavailable,
-            )
-            forecast = _step(
-                "drawdown",
-                lambda: api.forecast_drawdown(
-                    site,
-                    start=forecast_start,
-                    members=members,
-                    rng=np.random.default_rng(seed + 1),
-                    seed=seed + 1,
-                    records=records,
-                    storage=storage,
-                    rating=rating,
-                    seepage=seepage,
-                    evaporation_m=None if evaporation is None else evaporation.depth_m,
-                    progress=progress,
-                ),
-                unavailable,
-            )
+        lake.records  # noqa: B018 - the report cannot start without them
+        for step in REPORT_STEPS:
+            lake.get(step)
     for w in seen:
         text = f"{w.category.__name__}: {w.message}"
         if text not in caught:
             caught.append(text)
-    return SiteRun(
-        site=site,
-        seed=seed,
-        records=records,
-        storage=storage,
-        rating=rating,
-        evaporation=evaporation,
-        balance=balance,
-        flags=flags,
-        seepage=seepage,
-        dynamics=dynamics,
-        forecast=forecast,
-        unavailable=unavailable,
-        warnings=tuple(caught),
-    )
+    return caught
 
 
 # --------------------------------------------------------------------------------------------
@@ -319,7 +201,7 @@ _TERM_LABELS = {
 }
 
 
-def _qa_section(run: SiteRun, year_days: pd.DatetimeIndex) -> Section:
+def _qa_section(run: Lake, year_days: pd.DatetimeIndex) -> Section:
     rec = run.records
     per_series = pd.DataFrame(
         [
@@ -385,17 +267,17 @@ def _qa_section(run: SiteRun, year_days: pd.DatetimeIndex) -> Section:
     return Section("qa", "Data quality", paragraphs=paragraphs, tables=tuple(tables))
 
 
-def _provenance_dict(run: SiteRun) -> dict[str, Any]:
+def _provenance_dict(run: Lake) -> dict[str, Any]:
     from .provenance import provenance
 
     return provenance(run.site, {"balance": run.seed, "drawdown": run.seed + 1}).to_dict()
 
 
-def _missing(run: SiteRun, *steps: str) -> tuple[str, ...]:
+def _missing(run: Lake, *steps: str) -> tuple[str, ...]:
     return tuple(
-        f"The {s} step could not run for this site: {run.unavailable[s]}"
+        f"The {s} step could not run for this site: {run.reason(s)}"
         for s in steps
-        if s in run.unavailable
+        if run.reason(s) is not None
     )
 
 
@@ -416,17 +298,19 @@ def _simulated_storage(daily: pd.DataFrame) -> pd.Series:
     return pd.Series(out, index=daily.index)
 
 
-def _stage_figure(run: SiteRun, days: pd.DatetimeIndex) -> Figure:
+def _stage_figure(run: Lake, days: pd.DatetimeIndex) -> Figure:
     from .style import PALETTE, new_figure, shade_periods
 
-    d = run.balance.daily.loc[days[0] : days[-1]]
+    d = run.get("balance").daily.loc[days[0] : days[-1]]
     sim_v = _simulated_storage(d)
     with warnings.catch_warnings(record=True) as outside:
         warnings.simplefilter("always")
-        sim_h = pd.Series(np.asarray(run.storage.stage(sim_v.to_numpy()), float), index=d.index)
+        sim_h = pd.Series(
+            np.asarray(run.get("storage").stage(sim_v.to_numpy()), float), index=d.index
+        )
     note = (
         " The simulated storage left the storage relation's range on some days; there its stage "
-        f"follows the relation's '{run.storage.below}'/'{run.storage.above}' policy."
+        f"follows the relation's '{run.get('storage').below}'/'{run.get('storage').above}' policy."
         if outside
         else ""
     )
@@ -441,8 +325,8 @@ def _stage_figure(run: SiteRun, days: pd.DatetimeIndex) -> Figure:
         label="from measured terms only (residual = 0)",
     )
     periods = []
-    if run.flags is not None:
-        for f in run.flags.items:
+    if run.get("flags") is not None:
+        for f in run.get("flags").items:
             s, e = pd.Timestamp(f.start), pd.Timestamp(f.end)
             if e >= d.index[0] and s <= d.index[-1]:
                 periods.append((s, e + pd.Timedelta(days=1)))
@@ -513,10 +397,10 @@ def _components_figure(monthly: pd.DataFrame) -> Figure:
     )
 
 
-def _cumulative_figure(run: SiteRun, days: pd.DatetimeIndex) -> Figure | None:
+def _cumulative_figure(run: Lake, days: pd.DatetimeIndex) -> Figure | None:
     from .style import PALETTE, new_figure
 
-    bal = run.balance
+    bal = run.get("balance")
     d = bal.daily.loc[days[0] : days[-1]]
     res = d["residual_m3"].where(d["complete"], 0.0).cumsum() / 1e3
     fig, ax = new_figure(height=3.2)
@@ -546,12 +430,12 @@ def _cumulative_figure(run: SiteRun, days: pd.DatetimeIndex) -> Figure | None:
     )
 
 
-def _storage_section(run: SiteRun) -> Section:
-    if run.storage is None:
+def _storage_section(run: Lake) -> Section:
+    if run.get("storage") is None:
         return Section("storage", "Stage–area–storage relation", missing=_missing(run, "storage"))
     from .figures_storage import storage_figure
 
-    curve = run.storage
+    curve = run.get("storage")
     span = curve.max_stage_m - curve.min_stage_m
     step = max(0.1, round(span / 25, 1))
     tab = curve.table(step).copy()
@@ -603,12 +487,12 @@ def _parameter_frame(
     )
 
 
-def _rating_section(run: SiteRun, year_stage: pd.Series) -> Section:
-    if run.rating is None:
+def _rating_section(run: Lake, year_stage: pd.Series) -> Section:
+    if run.get("rating") is None:
         return Section("rating", "Outlet rating", missing=_missing(run, "rating"))
     from .figures_rating import rating_figure
 
-    fit = run.rating
+    fit = run.get("rating")
     fixed = {n: p["fixed"] for n, p in fit.parameter_table().items()}
     params = _parameter_frame(fit.param_names, fit.params, fit.stderr, fit.conf_int())
     params["fixed"] = ["fixed" if fixed[n] else "fitted" for n in fit.param_names]
@@ -648,10 +532,10 @@ def _rating_section(run: SiteRun, year_stage: pd.Series) -> Section:
     )
 
 
-def _evaporation_section(run: SiteRun, days: pd.DatetimeIndex) -> Section:
-    if run.evaporation is None:
+def _evaporation_section(run: Lake, days: pd.DatetimeIndex) -> Section:
+    if run.get("evaporation") is None:
         return Section("evaporation", "Evaporation", missing=_missing(run, "evaporation"))
-    ev = run.evaporation
+    ev = run.get("evaporation")
     monthly = ev.monthly("mm")
     monthly = monthly[
         (monthly.index.start_time >= days[0]) & (monthly.index.start_time <= days[-1])
@@ -674,8 +558,8 @@ def _evaporation_section(run: SiteRun, days: pd.DatetimeIndex) -> Section:
     )
 
 
-def _balance_tables(run: SiteRun, year: int) -> tuple[Table, Table, pd.DataFrame]:
-    bal = run.balance
+def _balance_tables(run: Lake, year: int) -> tuple[Table, Table, pd.DataFrame]:
+    bal = run.get("balance")
     wy = bal.water_years().reset_index()
     cols = [
         "water_year",
@@ -722,15 +606,15 @@ def _balance_tables(run: SiteRun, year: int) -> tuple[Table, Table, pd.DataFrame
     return annual_t, monthly_t, m
 
 
-def _balance_section(run: SiteRun, year: int, days: pd.DatetimeIndex) -> Section:
-    if run.balance is None:
+def _balance_section(run: Lake, year: int, days: pd.DatetimeIndex) -> Section:
+    if run.get("balance") is None:
         return Section("balance", "Water balance", missing=_missing(run, "balance"))
     annual_t, monthly_t, m = _balance_tables(run, year)
     figures = [_stage_figure(run, days), _components_figure(m)]
     cum = _cumulative_figure(run, days)
     if cum is not None:
         figures.append(cum)
-    paragraphs = list(run.balance.notes)
+    paragraphs = list(run.get("balance").notes)
     return Section(
         "balance",
         "Water balance",
@@ -740,11 +624,11 @@ def _balance_section(run: SiteRun, year: int, days: pd.DatetimeIndex) -> Section
     )
 
 
-def _flags_section(run: SiteRun, days: pd.DatetimeIndex) -> Section:
-    if run.flags is None:
+def _flags_section(run: Lake, days: pd.DatetimeIndex) -> Section:
+    if run.get("flags") is None:
         return Section("flags", "Unexplained residuals", missing=_missing(run, "flags", "balance"))
     lo, hi = days[0].strftime("%Y-%m-%d"), days[-1].strftime("%Y-%m-%d")
-    items = [f for f in run.flags.items if f.start <= hi and f.end >= lo]
+    items = [f for f in run.get("flags").items if f.start <= hi and f.end >= lo]
     frame = pd.DataFrame(
         [
             {
@@ -771,14 +655,14 @@ def _flags_section(run: SiteRun, days: pd.DatetimeIndex) -> Section:
         ],
     )
     paragraphs = [
-        f"{len(run.flags.items)} flags over the whole record, {len(items)} touching the reported "
+        f"{len(run.get('flags').items)} flags over the whole record, {len(items)} touching the reported "
         "year. Flags never change the data; a correction is applied only when it is accepted in "
         "the site file."
     ]
     paragraphs += [f"{f.start} to {f.end}: {f.hint}" for f in items if f.significant][:12]
     lasting = [
         f
-        for f in run.flags.items
+        for f in run.get("flags").items
         if f.kind in ("datum_shift", "level_shift") and f.start < lo and not f.accepted
     ]
     for f in lasting:
@@ -793,12 +677,12 @@ def _flags_section(run: SiteRun, days: pd.DatetimeIndex) -> Section:
                 f"value = {f.correction.value:+.3f}."
             )
         paragraphs.append(text)
-    if run.flags.corrections:
+    if run.get("flags").corrections:
         paragraphs.append(
             "Corrections accepted in the site file and applied: "
             + "; ".join(
                 f"{c.series} {c.value:+g} from {c.start} ({c.reason or 'no reason given'})"
-                for c in run.flags.corrections
+                for c in run.get("flags").corrections
             )
         )
     tables = ()
@@ -814,10 +698,10 @@ def _flags_section(run: SiteRun, days: pd.DatetimeIndex) -> Section:
     return Section("flags", "Unexplained residuals", paragraphs=tuple(paragraphs), tables=tables)
 
 
-def _seepage_section(run: SiteRun) -> Section:
-    if run.seepage is None:
+def _seepage_section(run: Lake) -> Section:
+    if run.get("seepage") is None:
         return Section("seepage", "Seepage", missing=_missing(run, "seepage", "balance"))
-    s = run.seepage
+    s = run.get("seepage")
     rates = s.rate_table(levels=dict(run.site.levels))
     keep = [
         "name",
@@ -871,15 +755,15 @@ def _seepage_section(run: SiteRun) -> Section:
 # --------------------------------------------------------------------------------------------
 # The year in plain words
 # --------------------------------------------------------------------------------------------
-def _headline(run: SiteRun, year: int, days: pd.DatetimeIndex) -> dict[str, Any]:
+def _headline(run: Lake, year: int, days: pd.DatetimeIndex) -> dict[str, Any]:
     """Headline numbers of the year (rounded as shown)."""
     out: dict[str, Any] = {
         "water_year": year,
         "first_day": days[0].strftime("%Y-%m-%d"),
         "last_day": days[-1].strftime("%Y-%m-%d"),
     }
-    if run.balance is not None:
-        wy = run.balance.water_years()
+    if run.get("balance") is not None:
+        wy = run.get("balance").water_years()
         if year in wy.index:
             row = wy.loc[year]
             out["closure_percent"] = _r(row.get("closure_error_pct"), 1)
@@ -893,11 +777,11 @@ def _headline(run: SiteRun, year: int, days: pd.DatetimeIndex) -> dict[str, Any]
                 out["residual_p95_m3"] = _r(row["residual_p95_m3"], 0)
             if "p_nonzero" in row:
                 out["p_nonzero"] = _r(row["p_nonzero"], 2)
-        d = run.balance.daily.loc[days[0] : days[-1], "stage_end_m"].dropna()
+        d = run.get("balance").daily.loc[days[0] : days[-1], "stage_end_m"].dropna()
         if len(d):
             out["stage_end_m"] = _r(float(d.iloc[-1]), 3)
-    if run.seepage is not None:
-        rate = float(np.asarray(run.seepage.rate_m3s(run.seepage.mean_stage_m)))
+    if run.get("seepage") is not None:
+        rate = float(np.asarray(run.get("seepage").rate_m3s(run.get("seepage").mean_stage_m)))
         out["seepage_m3_per_day"] = _r(rate * SECONDS_PER_DAY, 0)
     return out
 
@@ -910,13 +794,13 @@ def _r(value: Any, decimals: int) -> float | None:
     return round(v, decimals) if math.isfinite(v) else None
 
 
-def _year_in_words(run: SiteRun, head: dict[str, Any], previous: dict[str, Any]) -> list[str]:
+def _year_in_words(run: Lake, head: dict[str, Any], previous: dict[str, Any]) -> list[str]:
     name = run.site.site.name
     out = [
         f"This report covers water year {head['water_year']} of {name}, "
         f"{head['first_day']} to {head['last_day']}."
     ]
-    if run.balance is None:
+    if run.get("balance") is None:
         out.append("The water balance could not be closed for this site; see the sections below.")
         return out
     res = head.get("residual_m3")
@@ -946,7 +830,7 @@ def _year_in_words(run: SiteRun, head: dict[str, Any], previous: dict[str, Any])
             f"{head['complete_days']} days had every term measured; the others are left "
             "out of the totals, never counted as zero."
         )
-    wy = run.balance.water_years()
+    wy = run.get("balance").water_years()
     full = wy[wy["complete_days"] >= 300]
     if head.get("inflow_m3") is not None and len(full) > 1:
         mean_inflow = float(full["inflow_m3"].mean())
@@ -1006,7 +890,7 @@ def _safe_name(text: str) -> str:
     return re.sub(r"[^A-Za-z0-9_.-]+", "_", text).strip("_") or "site"
 
 
-def build_sections(run: SiteRun, year: int) -> tuple[list[Section], dict[str, Any], list[str]]:
+def build_sections(run: Lake, year: int) -> tuple[list[Section], dict[str, Any], list[str]]:
     """The sections, the headline numbers and the plain-words summary of ``year``."""
     index = run.records.daily.index
     keys = water_year_of(index, run.site.site.water_year_start)
@@ -1029,14 +913,14 @@ def build_sections(run: SiteRun, year: int) -> tuple[list[Section], dict[str, An
     ]
     head = _headline(run, year, days)
     previous: dict[str, Any] = {}
-    if run.balance is not None:
+    if run.get("balance") is not None:
         earlier = index[keys == year - 1]
         if len(earlier):
             previous = _headline(run, year - 1, earlier)
-    if run.dynamics is not None:
+    if run.get("dynamics") is not None:
         head.update(_dynamics_headline(run))
     summary = _year_in_words(run, head, previous)
-    if run.forecast is not None:
+    if run.get("forecast") is not None:
         summary += list(_forecast_sentences(run))[:3]
     return sections, head, summary
 
@@ -1073,13 +957,19 @@ def make_report(
     progress : bool
         Show progress on stderr.
     """
-    from .. import __version__, api
+    from .. import __version__
     from .._json import dumps
+    from ..analysis import Lake
+    from ..config import load_site
     from ..io.output import write_csv, write_text, write_xlsx
     from .html import CAUTIONS, png_base64, render
 
-    site = api.load_site(site_file)
-    run = run_site(site, seed=seed, draws=draws, members=members, progress=progress)
+    site = load_site(site_file)
+    seed = int(site.site.seed if seed is None else seed)
+    # the outlook draws from seed + 1, so that its streams are not the balance's
+    run = Lake(site, seed=seed, forecast_seed=seed + 1, draws=draws, members=members,
+               progress=progress)  # fmt: skip
+    caught = run_steps(run)
     keys = water_year_of(run.records.daily.index, site.site.water_year_start)
     present = sorted(set(np.asarray(keys).tolist()))
     if year is not None and year not in present:
@@ -1109,7 +999,7 @@ def make_report(
         for k, label, unit, d in _KEY_NUMBERS
         if head.get(k) is not None
     ]
-    location = api.lake_location(site)
+    location = run.location
     messages = [f"{step} not available: {why}" for step, why in run.unavailable.items()]
     document = {
         "tool": "lakebalance",
@@ -1120,7 +1010,7 @@ def make_report(
         "summary": summary,
         "tables": {t.id: t.to_json() for t in tables},
         "unavailable": run.unavailable,
-        "warnings": list(run.warnings),
+        "warnings": caught,
         "cautions": list(CAUTIONS),
         "provenance": prov,
     }
@@ -1173,8 +1063,8 @@ def make_report(
     )
 
 
-def _dynamics_headline(run: SiteRun) -> dict[str, Any]:
-    dyn = run.dynamics
+def _dynamics_headline(run: Lake) -> dict[str, Any]:
+    dyn = run.get("dynamics")
     out: dict[str, Any] = {}
     res = dyn.residence
     if "all" in res.index:
@@ -1183,12 +1073,12 @@ def _dynamics_headline(run: SiteRun) -> dict[str, Any]:
     return out
 
 
-def _dynamics_section(run: SiteRun) -> Section:
-    if run.dynamics is None:
+def _dynamics_section(run: Lake) -> Section:
+    if run.get("dynamics") is None:
         return Section(
             "dynamics", "Residence, response and equilibrium", missing=_missing(run, "dynamics")
         )
-    dyn = run.dynamics
+    dyn = run.get("dynamics")
     res = dyn.residence.reset_index()
     res["water_year"] = res["water_year"].astype(str)
     res = res[
@@ -1253,12 +1143,12 @@ def _dynamics_section(run: SiteRun) -> Section:
     )
 
 
-def _drawdown_section(run: SiteRun) -> Section:
-    if run.forecast is None:
-        return Section("drawdown", "Drought drawdown outlook", missing=_missing(run, "drawdown"))
+def _drawdown_section(run: Lake) -> Section:
+    if run.get("forecast") is None:
+        return Section("drawdown", "Drought drawdown outlook", missing=_missing(run, "forecast"))
     from .figures_drawdown import fan_chart
 
-    fc = run.forecast
+    fc = run.get("forecast")
     rows = [
         {
             "level": o.name,
@@ -1338,9 +1228,11 @@ def _drawdown_section(run: SiteRun) -> Section:
     )
 
 
-def _forecast_sentences(run: SiteRun) -> tuple[str, ...]:
-    if run.forecast is None:
+def _forecast_sentences(run: Lake) -> tuple[str, ...]:
+    if run.get("forecast") is None:
         return ()
     from .html import CAUTIONS
 
-    return tuple(s for s in run.forecast.sentences() if s not in CAUTIONS and "licensed" not in s)
+    return tuple(
+        s for s in run.get("forecast").sentences() if s not in CAUTIONS and "licensed" not in s
+    )

@@ -195,7 +195,7 @@ def _demo_weather():
     import lakebalance
 
     site = lakebalance.load_site(DEMO_SITE)
-    records = lakebalance.load_records(site)
+    records = lakebalance.Lake(site).records
     return site, records
 
 
@@ -204,7 +204,7 @@ def test_demo_weather_one_year_vs_pyet_1_5():
     site, records = _demo_weather()
     import lakebalance
 
-    res = lakebalance.lake_evaporation(site, records)
+    res = lakebalance.Lake.with_results(site, records=records).evaporation
     daily = records.daily
     need = {"tmax", "tmin"}
     assert need <= set(daily.columns) and site.site.latitude is not None
