@@ -64,8 +64,10 @@ import numpy as np
 import pandas as pd
 
 from .options import Options, setting
+from .results import Summary
 from .stats import gauss_legendre, water_year_of
 from .units import SECONDS_PER_DAY, factor
+from .vocabulary import MEASURED_TERMS
 
 __all__ = [
     "UncertaintyOptions",
@@ -459,7 +461,7 @@ _BASE_COLUMNS = (
     "residual_m3",
     "complete",
 )
-_TERMS = ("inflow", "rain", "evaporation", "outflow", "withdrawal", "release")
+_TERMS = MEASURED_TERMS  # inflow, rain, evaporation, outflow, withdrawal, release
 
 
 @dataclass(frozen=True)
@@ -592,7 +594,29 @@ class Balance:
             out = out.join(self.annual_bands)
         return out
 
-    def summary(self) -> str:
+    def to_frame(self) -> pd.DataFrame:
+        """The daily table (:attr:`daily`)."""
+        return self.daily
+
+    def to_dict(self) -> dict:
+        """The JSON document of ``lakebalance balance --json`` (volumes in m³, SI)."""
+        first, last = self.period
+        return {
+            "period": {"start": first.date(), "end": last.date(), "days": len(self.daily)},
+            "missing_days": self.missing_days,
+            "water_year_start": self.water_year_start,
+            "draws": self.draws,
+            "seed": self.seed if self.draws else None,
+            "errors": self.errors,
+            "absent_terms": list(self.absent_terms),
+            "totals_m3": self.totals,
+            "water_years": self.water_years().reset_index().to_dict(orient="records"),
+            "monthly": self.monthly().reset_index().to_dict(orient="records"),
+            "notes": list(self.notes),
+            "caution": CAUTION,
+        }
+
+    def summary(self) -> Summary:
         """A short plain-text summary of the whole period."""
         wy = self.water_years()
         first, last = self.period
@@ -610,7 +634,7 @@ class Balance:
         with pd.option_context("display.width", 200, "display.max_columns", 30):
             lines.append(wy[cols].to_string(float_format=lambda v: f"{v:,.4g}"))
         lines += ["", *self.notes]
-        return "\n".join(lines)
+        return Summary("\n".join(lines), "water balance")
 
     @cached_property
     def totals(self) -> dict[str, float]:

@@ -34,6 +34,7 @@ from .records import Correction
 from .report.options import ReportOptions
 from .seepage import SeepageOptions
 from .storage import StorageOptions
+from .vocabulary import SERIES_ROLES
 
 __all__ = [
     "SiteInfo",
@@ -56,25 +57,6 @@ __all__ = [
     "parse_site",
 ]
 
-SERIES_ROLES = (
-    "stage",
-    "inflow",
-    "rain",
-    "evaporation",
-    "pan",
-    "withdrawal",
-    "release",
-    "tmax",
-    "tmin",
-    "tmean",
-    "rh",
-    "rh_max",
-    "rh_min",
-    "dewpoint",
-    "wind",
-    "solar",
-    "sunshine",
-)
 
 Statistic = Literal["mean", "sum", "min", "max", "first", "last", "median"]
 

@@ -35,6 +35,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
+from .results import Summary
 from .stats import water_year_of
 from .units import SECONDS_PER_DAY
 
@@ -493,6 +494,10 @@ class Dynamics:
     notes: tuple[str, ...] = ()
     caution: str = CAUTION
 
+    def to_frame(self) -> pd.DataFrame:
+        """Response times by stage (:attr:`response`)."""
+        return self.response
+
     def to_dict(self) -> dict:
         """Plain structure for JSON output."""
 
@@ -528,7 +533,7 @@ class Dynamics:
             "caution": self.caution,
         }
 
-    def summary(self) -> str:
+    def summary(self) -> Summary:
         """Plain-text summary."""
         e = self.equilibrium
         lines = [
@@ -589,7 +594,7 @@ class Dynamics:
                 )
                 lines.append(f"  {w.label}: {st}")
         lines += ["", *self.notes, "", self.caution]
-        return "\n".join(lines)
+        return Summary("\n".join(lines), "lake dynamics")
 
 
 def analyse_dynamics(

@@ -18,6 +18,7 @@ import numpy as np
 
 from .options import Options, setting
 from .stats import MAD_TO_SIGMA
+from .vocabulary import ROLES
 
 if TYPE_CHECKING:  # pragma: no cover
     import pandas as pd
@@ -60,43 +61,20 @@ class QAOptions(Options):
 
 #: Roles that are states of the lake or the air (a stuck sensor repeats them); flows and depths
 #: are left out because zero or a constant pumping rate are legitimately constant.
-STATE_ROLES = frozenset(
-    {"stage", "tmax", "tmin", "tmean", "dewpoint", "rh", "rh_max", "rh_min", "wind", "solar"}
-)
+STATE_ROLES = frozenset(name for name, role in ROLES.items() if role.state)
 
 #: Roles checked for spikes: smooth states. Inflows, rain, evaporation, wind, humidity and solar
 #: radiation are event-driven or gusty, where a robust z-score would flag every storm or cloudy
 #: day (common practice, no source).
-SPIKE_ROLES = frozenset({"stage", "tmax", "tmin", "tmean", "dewpoint"})
+SPIKE_ROLES = frozenset(name for name, role in ROLES.items() if role.smooth)
 
 #: Roles whose values cannot be negative (a negative one is rejected).
-NON_NEGATIVE_ROLES = frozenset(
-    {
-        "inflow",
-        "withdrawal",
-        "release",
-        "rain",
-        "evaporation",
-        "pan",
-        "rh",
-        "rh_max",
-        "rh_min",
-        "wind",
-        "solar",
-        "sunshine",
-    }
-)
+NON_NEGATIVE_ROLES = frozenset(name for name, role in ROLES.items() if role.non_negative)
 
-#: Physical bounds of single readings in internal units; outside them a reading is rejected.
+#: Physical bounds of single readings in internal units; outside them a reading is rejected
+#: (declared with each role in :mod:`lakebalance.vocabulary`).
 ROLE_BOUNDS: dict[str, tuple[float, float]] = {
-    "rh": (0.0, 100.0),  # % by definition
-    "rh_max": (0.0, 100.0),
-    "rh_min": (0.0, 100.0),
-    "sunshine": (0.0, 24.0),  # h per day, by definition
-    "tmax": (-90.0, 60.0),  # °C, beyond the recorded extremes of air temperature (from memory)
-    "tmin": (-90.0, 60.0),
-    "tmean": (-90.0, 60.0),
-    "dewpoint": (-90.0, 40.0),
+    name: role.bounds for name, role in ROLES.items() if role.bounds != (-np.inf, np.inf)
 }
 
 

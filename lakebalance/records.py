@@ -168,3 +168,35 @@ class Records:
             if f.series == series and f.kind == "flatline" and f.first and f.last:
                 out |= (index >= pd.Timestamp(f.first[:10])) & (index <= pd.Timestamp(f.last[:10]))
         return out
+
+    def to_frame(self) -> pd.DataFrame:
+        """The daily table (:attr:`daily`, SI)."""
+        return self.daily
+
+    def to_dict(self, extra_findings: tuple[Finding, ...] = ()) -> dict:
+        """The JSON document of ``lakebalance check --json``: period, each series with its
+        findings, the row accounting (``extra_findings`` are checks made beside the records, e.g.
+        stage outside the storage relation)."""
+        findings = list(self.findings) + list(extra_findings)
+        index = self.daily.index
+        fields = (
+            "key", "role", "name", "file", "declared_units", "internal_units", "statistic",
+            "first", "last", "days", "missing", "flagged", "rejected",
+        )  # fmt: skip
+        return {
+            "site": self.site.site.name,
+            "site_file": str(self.site.path),
+            "timezone": self.site.site.timezone,
+            "period": {
+                "first": index[0].date().isoformat() if len(index) else None,
+                "last": index[-1].date().isoformat() if len(index) else None,
+            },
+            "series": [
+                {
+                    **{k: getattr(s, k) for k in fields},
+                    "findings": [f for f in findings if f.series == s.key],
+                }
+                for s in self.series
+            ],
+            "accounting": list(self.accounting),
+        }

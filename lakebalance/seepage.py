@@ -25,6 +25,7 @@ import numpy as np
 
 from .errors import DataQualityWarning, FitError
 from .options import Options, setting
+from .results import Estimate, Summary, estimate
 from .stats import newey_west_lags
 from .units import SECONDS_PER_DAY, from_si
 
@@ -272,16 +273,25 @@ class SeepageFit:
         _, lo, hi = self.predict(self.mean_stage_m, interval="confidence")
         return bool(lo > 0 or hi < 0)
 
+    def estimates(self) -> dict[str, Estimate]:
+        """Each parameter as an :class:`~lakebalance.results.Estimate` (value, standard error,
+        95 % interval, unit)."""
+        ci = self.conf_int(0.05)
+        return {
+            name: estimate(value, self.stderr[name], *ci[name], unit=_PARAM_UNITS[name])
+            for name, value in self.params.items()
+        }
+
+    def to_frame(self) -> pd.DataFrame:
+        """The loss at the mean stage and the named stages (:meth:`rate_table`)."""
+        return self.rate_table()
+
     def to_dict(self, alpha: float = 0.05) -> dict:
         """A JSON-ready summary (used by ``lakebalance seepage --json``)."""
-        ci = self.conf_int(alpha)
         table = self.rate_table(alpha=alpha)
         return {
             "model": self.model,
-            "params": self.params,
-            "stderr": self.stderr,
-            "conf_int": {k: list(v) for k, v in ci.items()},
-            "units": {"k": "m2/s", "h0": "m", "rate": "m3/s"},
+            "parameters": {k: v.to_dict() for k, v in self.estimates().items()},
             "mean_stage_m": self.mean_stage_m,
             "n_days": self.n,
             "hac_lags": self.hac_lags,
@@ -301,7 +311,7 @@ class SeepageFit:
             "note": NOTE,
         }
 
-    def summary(self, alpha: float = 0.05) -> str:
+    def summary(self, alpha: float = 0.05) -> Summary:
         """Plain text: the law, parameters with intervals, rates by stage, diagnostics, warnings."""
         pct = round(100 * (1 - alpha))
         ci = self.conf_int(alpha)
@@ -346,11 +356,14 @@ class SeepageFit:
         for note in self.notes:
             lines.append(f"\n  Warning: {note}")
         lines.append("\n" + NOTE)
-        return "\n".join(lines)
+        return Summary("\n".join(lines), "seepage")
 
     def __str__(self) -> str:  # pragma: no cover - convenience
         return self.summary()
 
+
+#: Units of the seepage parameters.
+_PARAM_UNITS = {"k": "m2/s", "h0": "m", "rate": "m3/s"}
 
 NOTE = (
     "Seepage from a balance residual also holds every unmeasured error of the other terms. Where "

@@ -49,6 +49,7 @@ from .errors import (
     RangeError,
 )
 from .options import Options, setting
+from .results import Summary
 
 if TYPE_CHECKING:  # pragma: no cover
     import pandas as pd
@@ -722,7 +723,7 @@ class StorageCurve:
         if h.size:
             self.area(h)  # one warning (or the "error" policy) for the days outside
 
-    def summary(self) -> str:
+    def summary(self) -> Summary:
         """A few lines describing the relation."""
         lines = [
             f"storage relation{' (approximate)' if self.approximate else ''}: {self.source or '-'}",
@@ -733,7 +734,15 @@ class StorageCurve:
         ]
         if self.check is not None:
             lines.append("  " + self.check.summary())
-        return "\n".join(lines)
+        return Summary("\n".join(lines), "storage relation")
+
+    def to_frame(self) -> pd.DataFrame:
+        """The surveyed levels: ``stage_m``, ``area_m2``, ``volume_m3``."""
+        import pandas as pd
+
+        return pd.DataFrame(
+            {"stage_m": self.stage_m, "area_m2": self.area_m2, "volume_m3": self.volume_m3}
+        )
 
     def to_dict(self) -> dict:
         """Plain values for JSON output."""

@@ -34,6 +34,7 @@ from typing import TYPE_CHECKING, Literal
 import numpy as np
 
 from .errors import UnitError
+from .vocabulary import ROLES
 
 if TYPE_CHECKING:  # pragma: no cover
     import pint
@@ -85,26 +86,8 @@ INTERNAL_UNITS: dict[str, str] = {
     "duration": "hour",  # per day
 }
 
-#: The kind of each series role of the site file.
-ROLE_KINDS: dict[str, str] = {
-    "stage": "length",
-    "inflow": "flow",
-    "withdrawal": "flow",
-    "release": "flow",
-    "rain": "depth",
-    "evaporation": "depth",
-    "pan": "depth",
-    "tmax": "temperature",
-    "tmin": "temperature",
-    "tmean": "temperature",
-    "dewpoint": "temperature",
-    "rh": "humidity",
-    "rh_max": "humidity",
-    "rh_min": "humidity",
-    "wind": "speed",
-    "solar": "radiation",
-    "sunshine": "duration",
-}
+#: The kind of each series role of the site file (declared in :mod:`lakebalance.vocabulary`).
+ROLE_KINDS: dict[str, str] = {name: role.kind for name, role in ROLES.items()}
 
 # Spellings users write that pint does not know, mapped to pint's (case-sensitive, whole token).
 _ALIASES: list[tuple[str, str]] = [

@@ -61,23 +61,12 @@ def run(args: argparse.Namespace) -> int:
     files = _write_outputs(args.out, balance, annual, monthly, seed) if args.out else []
 
     if args.json:
-        first, last = balance.period
         doc = {
             "site": site.site.name,
-            "period": {"start": first.date(), "end": last.date(), "days": len(balance.daily)},
-            "missing_days": balance.missing_days,
-            "water_year_start": balance.water_year_start,
-            "draws": balance.draws,
+            **balance.to_dict(),
             "seed": seed if balance.draws else None,
-            "errors": balance.errors,
-            "absent_terms": list(balance.absent_terms),
-            "totals_m3": balance.totals,
-            "water_years": annual.reset_index().to_dict(orient="records"),
-            "monthly": monthly.reset_index().to_dict(orient="records"),
-            "notes": list(balance.notes),
             "warnings": messages,
             "files": [str(f) for f in files],
-            "caution": CAUTION,
         }
         print(dumps(doc))
         return 0

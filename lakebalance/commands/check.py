@@ -46,38 +46,7 @@ def run(args: argparse.Namespace) -> int:
     findings = list(records.findings) + extra
     if args.json:
         doc = {
-            "site": site.site.name,
-            "site_file": str(site.path),
-            "timezone": site.site.timezone,
-            "period": {
-                "first": records.daily.index[0].date().isoformat() if len(records.daily) else None,
-                "last": records.daily.index[-1].date().isoformat() if len(records.daily) else None,
-            },
-            "series": [
-                {
-                    **{
-                        k: getattr(s, k)
-                        for k in (
-                            "key",
-                            "role",
-                            "name",
-                            "file",
-                            "declared_units",
-                            "internal_units",
-                            "statistic",
-                            "first",
-                            "last",
-                            "days",
-                            "missing",
-                            "flagged",
-                            "rejected",
-                        )
-                    },
-                    "findings": [f for f in findings if f.series == s.key],
-                }
-                for s in records.series
-            ],
-            "accounting": list(records.accounting),
+            **records.to_dict(tuple(extra)),
             "notes": [note] if note else [],
             "warnings": messages,
         }

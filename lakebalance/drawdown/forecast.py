@@ -23,6 +23,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
+from ..results import Summary
 from ..units import SECONDS_PER_DAY
 from .engine import EngineResult, build_tables, simulate
 from .scenarios import Forcing
@@ -204,6 +205,10 @@ class Forecast:
         frame.attrs["withdrawn_m3_unrestricted"] = float(np.mean(self.unrestricted.withdrawn_m3))
         return frame
 
+    def to_frame(self) -> pd.DataFrame:
+        """Stage percentiles by day (:attr:`stage_percentiles`, m)."""
+        return self.stage_percentiles
+
     def to_dict(self) -> dict[str, Any]:
         """A JSON-ready summary: per level the probability by the horizon and the 10/50/90 %
         days to crossing; start, scenario, members, seed and notes."""
@@ -248,7 +253,7 @@ class Forecast:
             }
         return out
 
-    def summary(self) -> str:
+    def summary(self) -> Summary:
         """A short text report."""
         lines = [
             f"Drawdown forecast: {self.scenario}, {self.members} members, {self.days} days from "
@@ -273,7 +278,7 @@ class Forecast:
         ]
         if self.notes:
             lines += ["", "notes:", *(f"  - {n}" for n in self.notes)]
-        return "\n".join(lines)
+        return Summary("\n".join(lines), "drawdown forecast")
 
     def __str__(self) -> str:  # pragma: no cover - convenience
         return self.summary()

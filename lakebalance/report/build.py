@@ -21,6 +21,7 @@ import pandas as pd
 from ..errors import LakebalanceError
 from ..stats import water_year_of
 from ..units import SECONDS_PER_DAY, from_si
+from ..vocabulary import TERMS
 
 if TYPE_CHECKING:  # pragma: no cover
     from ..analysis import Lake
@@ -189,16 +190,7 @@ def choose_year(daily_index: pd.DatetimeIndex, start_month: int, year: int | Non
 # --------------------------------------------------------------------------------------------
 # Sections
 # --------------------------------------------------------------------------------------------
-_TERM_LABELS = {
-    "inflow_m3": "gauged inflow",
-    "rain_m3": "rain on the lake",
-    "evaporation_m3": "evaporation",
-    "outflow_m3": "outlet outflow",
-    "withdrawal_m3": "withdrawals",
-    "release_m3": "releases",
-    "storage_change_m3": "storage change",
-    "residual_m3": "residual (unexplained)",
-}
+_TERM_LABELS = {t.column: t.label for t in TERMS}
 
 
 def _qa_section(run: Lake, year_days: pd.DatetimeIndex) -> Section:
