@@ -472,6 +472,7 @@ class Lake:
                 draws=self.draws,
                 rng=np.random.default_rng(self.seed),
                 seed=self.seed,
+                rating_variants=site.uncertainty.rating_variants,
             )
         return dataclasses.replace(balance, notes=(*balance.notes, *notes))
 

@@ -63,6 +63,7 @@ from typing import Literal
 import numpy as np
 import pandas as pd
 
+from .errormodel import ResidualErrors, rating_variant_volumes
 from .options import Options, setting
 from .results import Summary
 from .stats import gauss_legendre, water_year_of
@@ -78,6 +79,7 @@ __all__ = [
     "Balance",
     "close_daily",
     "add_uncertainty",
+    "residual_errors",
     "water_year_of",
     "day_path",
     "boundary_stage_from_readings",
@@ -104,6 +106,10 @@ class UncertaintyOptions(Options):
     draws: int = setting(1000, unit="draws", low=0, rule=_draws_rule)  # Monte Carlo draws
     # share of a term's error variance lasting a water year
     systematic: float | None = setting(None, unit="-", low=0.0, high=1.0)
+    # over what the persistent part of each term's error is held
+    systematic_period: Literal["record", "water_year"] = "record"
+    # rating parameter sets drawn for the rating's share of the residual error
+    rating_variants: int = setting(256, unit="ratings", low=2)
     boundary_rule: Literal["adjacent_mean", "fourth_order"] = (
         "adjacent_mean"  # day-boundary stage from daily means where no sub-daily record
     )
@@ -206,8 +212,8 @@ class TermErrors:
     component uncertainties of 1.5–45% for the Great Lakes. A stage resolution of 0.003 m
     (0.01 ft) is a common gauge resolution (from memory); an area error of 2% of the storage
     relation is common practice, no source. The split of each term's error into a part that
-    persists over a water year (``systematic`` share of the variance) and a day-to-day
-    independent part is a modelling assumption (common practice, no source).
+    persists (``systematic`` share of the variance, held over the record or each water year) and a
+    day-to-day independent part is a modelling assumption (common practice, no source).
 
     Parameters
     ----------
@@ -219,7 +225,11 @@ class TermErrors:
     stage_resolution_m : float
         Resolution of the stage gauge, m (uniform error ±resolution/2 at each day boundary).
     systematic : float
-        Share (0–1) of each term's error variance that persists through a water year.
+        Share (0–1) of each term's error variance that persists (a calibration bias of a gauge,
+        a pan coefficient, a meter).
+    systematic_period : {"record", "water_year"}
+        Over what the persistent part is held: the whole record (one bias per term; a gauge
+        re-calibrated every year is better described by ``"water_year"``).
     """
 
     inflow: float = 0.10
@@ -230,6 +240,7 @@ class TermErrors:
     area: float = 0.02
     stage_resolution_m: float = 0.003
     systematic: float = 0.5
+    systematic_period: Literal["record", "water_year"] = "record"
 
     @classmethod
     def from_options(
@@ -258,6 +269,7 @@ class TermErrors:
             )
             if getattr(options, name) is not None
         }
+        changes["systematic_period"] = options.systematic_period
         if options.stage_resolution is not None:
             changes["stage_resolution_m"] = float(options.stage_resolution)
         elif stage_resolution_m is not None:
@@ -492,6 +504,9 @@ class Balance:
         Monte Carlo draws (0 when no uncertainty was run).
     seed : int or None
         Seed of the generator the bands were drawn with, when known.
+    error_model : ResidualErrors or None
+        The error model of the residual (:mod:`lakebalance.errormodel`), after
+        :func:`add_uncertainty`: what the flags' significance and the seepage interval use.
     """
 
     daily: pd.DataFrame
@@ -505,6 +520,7 @@ class Balance:
     annual_bands: pd.DataFrame | None = field(default=None, repr=False)
     errors: TermErrors | None = None
     nodes: int = 3
+    error_model: ResidualErrors | None = field(default=None, repr=False)
 
     # -- properties ----------------------------------------------------------------------
     @property
@@ -816,22 +832,98 @@ def close_daily(
 # --------------------------------------------------------------------------------------------
 # Monte Carlo
 # --------------------------------------------------------------------------------------------
-def _rating_jacobian(
-    outlet: OutletParameters, path: Array, weights: Array, ok: Array
-) -> tuple[Array, Array]:
-    """Daily outflow volume sensitivities: to the parameters (days, k) m³/unit and to stage."""
-    v = np.asarray(outlet.values, dtype=float)
-    k = v.size
-    days, nodes = path.shape
-    h = np.where(np.isfinite(path), path, 0.0)
-    step = np.maximum(np.abs(v) * 1e-6, 1e-7)
-    params = np.vstack([v + np.diag(step), v - np.diag(step)])  # (2k, k)
-    stacked = np.broadcast_to(h, (2 * k, days, nodes))
-    q = np.asarray(outlet.discharge_with(params, stacked), dtype=float)
-    grad = (q[:k] - q[k:]) / (2 * step)[:, None, None]  # (k, days, nodes)
-    jac = np.einsum("kdn,n->dk", grad, weights) * SECONDS_PER_DAY
-    jac[~ok] = 0.0
-    return jac, v
+def residual_errors(
+    balance: Balance,
+    *,
+    area_fn: StageFn,
+    outflow_fn: StageFn | None = None,
+    outlet: OutletParameters | None = None,
+    errors: TermErrors = TermErrors(),
+    rng: np.random.Generator,
+    rating_variants: int = 256,
+    nodes: int | None = None,
+) -> ResidualErrors:
+    """The error model of the residual of ``balance`` (:mod:`lakebalance.errormodel`).
+
+    Parameters
+    ----------
+    balance : Balance
+        From :func:`close_daily`.
+    area_fn : callable
+        Lake area (m²) at stage (m).
+    outflow_fn : callable, optional
+        Outlet discharge (m³/s) at stage (m), for the stage sensitivity of the outflow.
+    outlet : OutletParameters, optional
+        Rating parameters and covariance (or sampler); None leaves the rating without error.
+    errors : TermErrors
+        One-sigma errors of the terms, their persistent share and its period.
+    rng : numpy.random.Generator
+        Source of the rating variants.
+    rating_variants : int
+        Rating parameter sets drawn from the fit's covariance (or its sampler).
+    nodes : int, optional
+        Gauss–Legendre nodes (default: those of the closure).
+    """
+    d = balance.daily
+    n = len(d)
+    complete = d["complete"].to_numpy()
+    rho = errors.systematic
+    tau, w = gauss_legendre(balance.nodes if nodes is None else nodes, (0.0, 1.0))
+    hs = d["stage_start_m"].to_numpy()
+    he = d["stage_end_m"].to_numpy()
+    path = day_path(hs, he, d["stage_m"].to_numpy(), tau)
+    ok = np.isfinite(path).all(axis=1) & complete
+
+    # signed term volumes (sign as they enter the residual: residual = ΔV − Σ s T)
+    term_cols: list[tuple[str, Array]] = []
+    for nm in balance.inflow_names:
+        term_cols.append((f"inflow:{nm}", -d[f"inflow:{nm}_m3"].to_numpy()))
+    for t in ("rain", "evaporation", "withdrawal", "release"):
+        if t not in balance.absent_terms:
+            term_cols.append((t, -TERM_SIGNS[t] * d[f"{t}_m3"].to_numpy()))
+    sig = np.array([errors.relative(nm) for nm, _ in term_cols])
+    tv = np.vstack([np.where(ok, v, 0.0) for _, v in term_cols]) if term_cols else np.zeros((0, n))
+    scaled = tv * sig[:, None]  # (K, days) residual change per unit z
+    random_sd = np.sqrt((1.0 - rho) * np.sum(scaled**2, axis=0))
+    if errors.systematic_period == "record":
+        period = np.zeros(n, dtype=np.int64)
+    else:
+        period = np.asarray(water_year_of(d.index, balance.water_year_start), dtype=np.int64)
+
+    area_col = np.where(
+        ok,
+        d["storage_change_m3"].to_numpy()
+        - d["rain_m3"].to_numpy()
+        + d["evaporation_m3"].to_numpy(),
+        0.0,
+    )
+    rating_m3 = None
+    if outlet is not None and outflow_fn is not None and rating_variants > 1:
+        values = np.asarray(outlet.values, dtype=float)
+        params = values + outlet.draw(rng, int(rating_variants))
+        rating_m3 = rating_variant_volumes(outlet.discharge_with, params, values, path, w, ok)
+
+    a_s = np.nan_to_num(_at(area_fn, hs))
+    a_e = np.nan_to_num(_at(area_fn, he))
+    if outflow_fn is not None:
+        eps = 1e-4  # m, central-difference step for dQ/dh
+        dq = np.nan_to_num((_at(outflow_fn, path + eps) - _at(outflow_fn, path - eps)) / (2 * eps))
+        g_s = (dq * (1 - tau)[None, :]) @ w * SECONDS_PER_DAY
+        g_e = (dq * tau[None, :]) @ w * SECONDS_PER_DAY
+    else:
+        g_s = g_e = np.zeros(n)
+    return ResidualErrors(
+        random_sd_m3=np.where(ok, random_sd, 0.0),
+        systematic_m3=math.sqrt(rho) * scaled,
+        period=period,
+        area_m3=errors.area * area_col,
+        boundary_prev_m3=np.where(ok, -a_s + g_s, 0.0),
+        boundary_next_m3=np.where(ok, a_e + g_e, 0.0),
+        resolution_m=float(errors.stage_resolution_m),
+        rating_m3=rating_m3,
+        ok=ok,
+        term_names=tuple(nm for nm, _ in term_cols),
+    )
 
 
 def add_uncertainty(
@@ -845,6 +937,7 @@ def add_uncertainty(
     rng: np.random.Generator,
     seed: int | None = None,
     nodes: int | None = None,
+    rating_variants: int = 256,
 ) -> Balance:
     """Monte Carlo bands of the residual (daily, monthly, water-year) and P(residual ≠ 0).
 
@@ -868,124 +961,112 @@ def add_uncertainty(
         Recorded in the result.
     nodes : int, optional
         Gauss–Legendre nodes (default: those of the closure).
+    rating_variants : int
+        Rating parameter sets drawn for the rating part (at most ``draws``); each draw uses one.
 
     Returns
     -------
     Balance
-        A copy with ``residual_p05_m3``/``residual_p95_m3`` columns and the monthly and annual
-        bands.
+        A copy with ``residual_p05_m3``/``residual_p95_m3`` columns, the monthly and annual
+        bands and the error model (:attr:`Balance.error_model`).
 
     Notes
     -----
-    Each draw m perturbs the residual of day d by::
-
-        e_md = Σ_k s_k T_kd σ_k (√ρ z_mky + √(1−ρ) ε_mkd)          (terms, year y of day d)
-             + a_m (ΔV_d − P_d + E_d)                              (area, a_m ~ N(0, σ_A²))
-             + J_d · δθ_m                                          (rating parameters)
-             + A(h_e) δ_m,d+1 − A(h_s) δ_m,d + T Σ_j w_j Q'(h_j)[(1−τ_j) δ_m,d + τ_j δ_m,d+1]
-
-    with s_k the sign of term k in the residual, ρ the systematic share, z and ε standard
-    normal, δ ~ U(−r/2, r/2) the boundary stage errors (the daily mean's error is taken as the
-    mean of its two boundaries'), and J_d the outflow volume's gradient in the parameters
-    (first order in the parameter deviation δθ_m, drawn from the fit's covariance or sampler).
-    The day-independent parts of all terms are summed into one normal deviate per draw and day
-    (a sum of independent normals is normal), so the cost is two random numbers per draw-day.
+    Each draw m is one realisation of the error model of :mod:`lakebalance.errormodel`: the
+    persistent deviates z (one per term and period), the area deviate a and the rating variant
+    are drawn once per draw; the random parts of all terms of a day are summed into one normal
+    deviate (a sum of independent normals is normal), so the cost is two random numbers per
+    draw-day. The daily mean stage's error is taken as the mean of its two boundaries'.
     """
     if draws < 2:
         raise ValueError("draws must be >= 2")
+    model = residual_errors(
+        balance,
+        area_fn=area_fn,
+        outflow_fn=outflow_fn,
+        outlet=outlet,
+        errors=errors,
+        rng=rng,
+        rating_variants=min(int(rating_variants), int(draws)),
+        nodes=nodes,
+    )
+    bands = _draw_bands(balance, model, draws, rng)
+    notes = list(balance.notes)
+    if model.rating_m3 is not None:
+        notes.append(
+            f"rating parameter uncertainty: {model.rating_variants} ratings drawn from the fit's "
+            "covariance, applied to each day's stage path"
+        )
+    notes.append(
+        f"Monte Carlo: {draws} draws; 5-95% bands; relative errors inflow {errors.inflow:g}, "
+        f"rain {errors.rain:g}, evaporation {errors.evaporation:g}, withdrawal "
+        f"{errors.withdrawal:g}, release {errors.release:g}, area {errors.area:g}; stage "
+        f"resolution {errors.stage_resolution_m:g} m; systematic share {errors.systematic:g} "
+        f"held over {'the record' if errors.systematic_period == 'record' else 'each water year'}"
+    )
+    daily, monthly_bands, annual_bands = bands
+    return replace(
+        balance,
+        daily=daily,
+        draws=draws,
+        seed=seed,
+        monthly_bands=monthly_bands,
+        annual_bands=annual_bands,
+        notes=tuple(notes),
+        errors=errors,
+        error_model=model,
+    )
+
+
+def _draw_bands(
+    balance: Balance, model: ResidualErrors, draws: int, rng: np.random.Generator
+) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
+    """Draw the residual's errors water year by water year: daily, cumulative, monthly and
+    annual bands."""
     d = balance.daily
     n = len(d)
-    complete = d["complete"].to_numpy()
+    ok = model.ok
     residual = d["residual_m3"].to_numpy()
-    rho = errors.systematic
-    tau, w = gauss_legendre(balance.nodes if nodes is None else nodes, (0.0, 1.0))
-    hs = d["stage_start_m"].to_numpy()
-    he = d["stage_end_m"].to_numpy()
-    path = day_path(hs, he, d["stage_m"].to_numpy(), tau)
-    ok = np.isfinite(path).all(axis=1) & complete
-
-    # ---- signed term volumes (sign as they enter the residual: residual = ΔV − Σ s T) -----
-    term_cols: list[tuple[str, Array]] = []
-    if balance.inflow_names:
-        for nm in balance.inflow_names:
-            term_cols.append((f"inflow:{nm}", -d[f"inflow:{nm}_m3"].to_numpy()))
-    for t in ("rain", "evaporation", "withdrawal", "release"):
-        if t not in balance.absent_terms:
-            term_cols.append((t, -TERM_SIGNS[t] * d[f"{t}_m3"].to_numpy()))
-    sig = np.array([errors.relative(nm) for nm, _ in term_cols])
-    tv = np.vstack([np.where(ok, v, 0.0) for _, v in term_cols]) if term_cols else np.zeros((0, n))
-    scaled = tv * sig[:, None]  # (K, days) residual change per unit z
-    indep_sd = np.sqrt((1.0 - rho) * np.sum(scaled**2, axis=0))  # (days,)
-    sys_cols = math.sqrt(rho) * scaled  # (K, days)
-
-    # ---- area: one draw per member ------------------------------------------------------
-    area_col = np.where(
-        ok,
-        d["storage_change_m3"].to_numpy()
-        - d["rain_m3"].to_numpy()
-        + d["evaporation_m3"].to_numpy(),
-        0.0,
-    )
-    # ---- rating ---------------------------------------------------------------------------
-    record_cols = [errors.area * area_col]  # coefficient columns of record-wide N(0,1) draws
-    record_z: list[Array] = [rng.standard_normal((draws, 1))]
-    notes = list(balance.notes)
-    if outlet is not None and outflow_fn is not None:
-        jac, _ = _rating_jacobian(outlet, path, w, ok)  # (days, k)
-        dtheta = outlet.draw(rng, draws)  # (draws, k)
-        record_cols.extend(jac.T)
-        record_z.append(dtheta)
-        notes.append("rating parameter uncertainty propagated to first order in the parameters")
-    rec_b = np.vstack(record_cols)  # (1 + k, days)
-    rec_z = np.hstack(record_z)  # (draws, 1 + k)
-
-    # ---- stage resolution -----------------------------------------------------------------
-    res = errors.stage_resolution_m
-    a_s = np.nan_to_num(_at(area_fn, hs))
-    a_e = np.nan_to_num(_at(area_fn, he))
-    if outflow_fn is not None:
-        eps = 1e-4  # m, central-difference step for dQ/dh
-        dq = np.nan_to_num((_at(outflow_fn, path + eps) - _at(outflow_fn, path - eps)) / (2 * eps))
-        g_s = (dq * (1 - tau)[None, :]) @ w * SECONDS_PER_DAY
-        g_e = (dq * tau[None, :]) @ w * SECONDS_PER_DAY
-    else:
-        g_s = g_e = np.zeros(n)
-    c_prev = np.where(ok, -a_s + g_s, 0.0)
-    c_next = np.where(ok, a_e + g_e, 0.0)
-
-    # ---- chunks: whole water years ---------------------------------------------------------
     wy = water_year_of(d.index, balance.water_year_start)
     month_key = np.asarray(d.index.to_period("M").to_timestamp())
     starts = np.flatnonzero(np.r_[True, wy[1:] != wy[:-1]])
     ends = np.r_[starts[1:], n]
-    lo = np.full(n, np.nan)
-    hi = np.full(n, np.nan)
+    lo, hi, cum_lo, cum_hi = (np.full(n, np.nan) for _ in range(4))
     k5, k95 = _order_indices(draws)
-    cum_lo = np.full(n, np.nan)
-    cum_hi = np.full(n, np.nan)
     month_draws: list[Array] = []
     month_labels: list[pd.Timestamp] = []
     year_draws: list[Array] = []
     year_labels: list[int] = []
-    n_sys = sys_cols.shape[0]
+    n_sys = model.systematic_m3.shape[0]
     base = np.where(ok, residual, 0.0)
     carry: Array | None = None
-    rec_z32 = rec_z.astype(np.float32)
+    area_z = rng.standard_normal((draws, 1)).astype(np.float32)
+    variant = None
+    if model.rating_m3 is not None:
+        variant = np.arange(draws) % model.rating_variants
+        rng.shuffle(variant)
+    period_z: dict[int, Array] = {}
+    res = model.resolution_m
     for a, b in zip(starts, ends, strict=True):
         m = b - a
-        # persistent errors: one deviate per member (record-wide) or per member and year
-        z = np.hstack([rec_z32, rng.standard_normal((draws, n_sys), dtype=np.float32)])
-        coef = np.ascontiguousarray(np.vstack([rec_b[:, a:b], sys_cols[:, a:b]]), np.float32)
+        p = int(model.period[a])
+        if p not in period_z:  # one persistent deviate per term and period
+            period_z[p] = rng.standard_normal((draws, n_sys), dtype=np.float32)
+        z = np.hstack([area_z, period_z[p]])
+        coef = np.vstack([model.area_m3[None, a:b], model.systematic_m3[:, a:b]])
+        coef = np.ascontiguousarray(coef, np.float32)
         e = np.einsum("mk,kd->md", z, coef)  # small k: einsum's loops, no BLAS threads
-        e += _normal(rng, (draws, m)) * indep_sd[a:b].astype(np.float32)
+        e += _normal(rng, (draws, m)) * model.random_sd_m3[a:b].astype(np.float32)
+        if variant is not None:
+            e += model.rating_m3[variant, a:b]
         if res > 0:
             # boundary errors: the last boundary of a chunk is the first of the next one
             u = np.empty((draws, m + 1), dtype=np.float32)
             u[:, 0] = _uniform(rng, draws, res) if carry is None else carry
             u[:, 1:] = _uniform(rng, (draws, m), res)
             carry = u[:, -1].copy()
-            e += u[:, :-1] * c_prev[a:b].astype(np.float32)
-            e += u[:, 1:] * c_next[a:b].astype(np.float32)
+            e += u[:, :-1] * model.boundary_prev_m3[a:b].astype(np.float32)
+            e += u[:, 1:] * model.boundary_next_m3[a:b].astype(np.float32)
         e += base[a:b].astype(np.float32)
         # order statistics per day: numpy's vectorised sort along contiguous rows is several
         # times faster than a two-index partition
@@ -1004,34 +1085,18 @@ def add_uncertainty(
         year_labels.append(int(wy[a]))
     lo[~ok] = np.nan
     hi[~ok] = np.nan
-
-    mdraw = np.hstack(month_draws)
-    ydraw = np.hstack(year_draws)
     mcomplete = pd.Series(ok).groupby(month_key).sum().to_numpy()
     ycomplete = pd.Series(ok).groupby(wy).sum().to_numpy()
-    monthly_bands = _band_table(mdraw, pd.DatetimeIndex(month_labels, name="month"), mcomplete)
-    annual_bands = _band_table(ydraw, pd.Index(year_labels, name="water_year"), ycomplete)
+    monthly = _band_table(
+        np.hstack(month_draws), pd.DatetimeIndex(month_labels, name="month"), mcomplete
+    )
+    annual = _band_table(np.hstack(year_draws), pd.Index(year_labels, name="water_year"), ycomplete)
     daily = d.copy()
     daily["residual_p05_m3"] = lo
     daily["residual_p95_m3"] = hi
     daily["cumulative_residual_p05_m3"] = cum_lo
     daily["cumulative_residual_p95_m3"] = cum_hi
-    notes.append(
-        f"Monte Carlo: {draws} draws; 5-95% bands; relative errors inflow {errors.inflow:g}, "
-        f"rain {errors.rain:g}, evaporation {errors.evaporation:g}, withdrawal "
-        f"{errors.withdrawal:g}, release {errors.release:g}, area {errors.area:g}; stage "
-        f"resolution {errors.stage_resolution_m:g} m; systematic share {errors.systematic:g}"
-    )
-    return replace(
-        balance,
-        daily=daily,
-        draws=draws,
-        seed=seed,
-        monthly_bands=monthly_bands,
-        annual_bands=annual_bands,
-        notes=tuple(notes),
-        errors=errors,
-    )
+    return daily, monthly, annual
 
 
 @cache

@@ -310,7 +310,7 @@ def test_rating_coefficient_error_band():
     errs = TermErrors(inflow=0, rain=0, evaporation=0, withdrawal=0, release=0, area=0,
                       stage_resolution_m=0.0)  # fmt: skip
     out = add_uncertainty(bal, area_fn=lambda h: np.full(np.shape(h), A), outflow_fn=law,
-                          outlet=outlet, errors=errs, draws=4000,
+                          outlet=outlet, errors=errs, draws=4000, rating_variants=4000,
                           rng=np.random.default_rng(11))  # fmt: skip
     total = bal.daily["outflow_m3"].sum()
     m = out.water_years().iloc[0]
