@@ -513,7 +513,8 @@ class Lake:
                 )
             spill = self.site.levels.get("spill") if self.site.outlet is None else None
             mask, counts = select_days(daily, options, flagged=flagged, spill_stage_m=spill)
-            used = daily[mask.to_numpy()]
+            chosen = mask.to_numpy()
+            used = daily[chosen]
             sigma = balance.residual_sigma_m3()
             return fit_seepage(
                 used["stage_m"],
@@ -522,7 +523,8 @@ class Lake:
                 area_stage_m=daily["stage_m"].to_numpy(),
                 area_m2=daily["area_m2"].to_numpy(),
                 levels=dict(self.site.levels),
-                other_sigma_m3=None if sigma is None else sigma[mask.to_numpy()],
+                other_sigma_m3=None if sigma is None else sigma[chosen],
+                persistent_cov_m6=_persistent_errors(balance, chosen, used["residual_m3"]),
                 selection=counts,
             )
 
@@ -542,12 +544,41 @@ class Lake:
         Returns the laws and, when the seepage law was asked for but could not be estimated,
         the reason (the laws then carry none).
         """
+        import numpy as np
+
+        from .errors import DataQualityWarning
+
         laws = self.laws_without_seepage
         if not seepage:
             return laws, None
+        choice = self.site.seepage.in_forecasts
+        if choice == "none":
+            return laws, "[seepage] in_forecasts = 'none'"
         fit = self.get("seepage")
         if fit is None:
             return laws, self.reason("seepage")
+        if choice == "auto" and not fit.law_supported:
+            why = (
+                "k is not positive and told from zero"
+                if fit.model == "linear"
+                else "the rate cannot be told from zero"
+            )
+            message = (
+                f"the fitted seepage law is not carried into the dynamics and the forecast: {why}; "
+                "choose [seepage] in_forecasts = 'constant' (the rate at the mean stage), 'law' "
+                "(the fit as it is) or 'none'"
+            )
+            warnings.warn(message, DataQualityWarning, stacklevel=2)
+            return laws, message.removeprefix(
+                "the fitted seepage law is not carried into the dynamics and the forecast: "
+            )
+        if choice == "constant":
+            rate = fit.constant_rate_m3s()
+
+            def constant(h, rate=rate):
+                return np.full(np.shape(h), rate)
+
+            return dataclasses.replace(laws, seepage=constant), None
         return dataclasses.replace(laws, seepage=fit.rate_m3s), None
 
     def dynamics(
@@ -791,6 +822,27 @@ class Lake:
         finally:
             if bar is not None:
                 bar.close()
+
+
+def _persistent_errors(balance: Balance, chosen: Any, used: pd.Series) -> Callable | None:
+    """The covariance of weighted sums of the persistent residual errors over the days used,
+    from the balance's error model (None without one)."""
+    import numpy as np
+
+    model = balance.error_model
+    if model is None:
+        return None
+    keep = np.asarray(chosen, dtype=bool) & np.isfinite(balance.daily["residual_m3"].to_numpy())
+    keep &= np.isfinite(balance.daily["stage_m"].to_numpy())
+    if int(keep.sum()) != len(used.dropna()):
+        return None  # the fit's days are not the chosen days: leave the extra errors out
+
+    def cov(weights: np.ndarray) -> np.ndarray:
+        full = np.zeros((weights.shape[0], model.days))
+        full[:, keep] = weights
+        return model.covariance_of_sums(full, ("systematic", "area", "rating"))
+
+    return cov
 
 
 def _name(key: Any) -> str:

@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import math
 import warnings
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Literal
 
@@ -55,6 +56,10 @@ class SeepageOptions(Options):
     rain_buffer: int = setting(1, unit="days", low=0)  # days around a rainy day left out too
     exclude_spill: bool = True  # leave out days when the outlet spills
     exclude_flags: bool = True  # leave out flagged days
+    # what the dynamics and the drawdown forecast carry: "auto" the fitted law when its k is
+    # positive and told from zero (else nothing, with a warning), "law" the fitted law as it is,
+    # "constant" the rate at the mean stage of the days used, "none" no seepage
+    in_forecasts: Literal["auto", "law", "constant", "none"] = "auto"
 
 
 def andrews_lags(scores: np.ndarray) -> int:
@@ -137,6 +142,11 @@ class SeepageFit:
         Days considered and left out, by reason.
     notes : tuple of str
         Warnings raised by the fit, in plain words.
+    regression_cov : ndarray or None
+        The regression's own (Newey–West) covariance of the coefficients, before the persistent
+        errors of the other terms were added to :attr:`coef_cov`.
+    persistent_errors : bool
+        Whether :attr:`coef_cov` carries the persistent errors of the other terms.
     """
 
     model: SeepageModel
@@ -160,6 +170,8 @@ class SeepageFit:
     other_sigma_m3s: float | None = None
     selection: dict[str, int] = field(default_factory=dict)
     notes: tuple[str, ...] = ()
+    regression_cov: np.ndarray | None = field(default=None, repr=False)
+    persistent_errors: bool = False
 
     # ---- parameters ------------------------------------------------------------------------
     @property
@@ -282,6 +294,29 @@ class SeepageFit:
             for name, value in self.params.items()
         }
 
+    @property
+    def h0_identified(self) -> bool:
+        """The data separate h0 from k: k's 95 % interval excludes zero and h0's standard error
+        is within the spread of the stages used (common practice, no source). When not, only
+        the rate at the stages used is meaningful."""
+        if self.model != "linear" or self.stage_m.size == 0:
+            return False
+        lo, hi = self.conf_int()["k"]
+        spread = float(np.ptp(self.stage_m))
+        return bool((lo > 0 or hi < 0) and self.stderr["h0"] <= spread)
+
+    @property
+    def law_supported(self) -> bool:
+        """The fitted law is fit to carry into the dynamics and the forecast: a linear law with
+        k positive and told from zero, or a constant rate told from zero."""
+        if self.model == "linear":
+            return bool(self.conf_int()["k"][0] > 0)
+        return self.distinguishable_from_zero
+
+    def constant_rate_m3s(self) -> float:
+        """The rate (m³/s) at the mean stage of the days used, for a constant-rate seepage."""
+        return float(self.rate_m3s(self.mean_stage_m))
+
     def to_frame(self) -> pd.DataFrame:
         """The loss at the mean stage and the named stages (:meth:`rate_table`)."""
         return self.rate_table()
@@ -289,9 +324,15 @@ class SeepageFit:
     def to_dict(self, alpha: float = 0.05) -> dict:
         """A JSON-ready summary (used by ``lakebalance seepage --json``)."""
         table = self.rate_table(alpha=alpha)
+        estimates = self.estimates()
+        if self.model == "linear" and not self.h0_identified:
+            estimates.pop("h0")  # not separated from k: only the rates are meaningful
         return {
             "model": self.model,
-            "parameters": {k: v.to_dict() for k, v in self.estimates().items()},
+            "parameters": {k: v.to_dict() for k, v in estimates.items()},
+            "h0_identified": self.h0_identified,
+            "law_supported": self.law_supported,
+            "interval_includes_persistent_errors": self.persistent_errors,
             "mean_stage_m": self.mean_stage_m,
             "n_days": self.n,
             "hac_lags": self.hac_lags,
@@ -324,6 +365,14 @@ class SeepageFit:
                 else ""
             )
             + f"; Newey–West lags {self.hac_lags}",
+            "  intervals: "
+            + (
+                "the regression's scatter (Newey–West) and the persistent errors of the other "
+                "terms on the days used (the balance's error model)"
+                if self.persistent_errors
+                else "the regression's scatter only (Newey–West); the persistent errors of the "
+                "other terms are not included"
+            ),
         ]
         if self.selection:
             lines.append(
@@ -338,7 +387,15 @@ class SeepageFit:
                 f"{from_si([self.k], 'flow', 'm**3/day')[0]:,.0f} m³/d per m of stage"
             )
             lo, hi = ci["h0"]
-            lines.append(f"  h0 = {self.h0:.3f} m  ({pct}% CI {lo:.3f} to {hi:.3f}, delta method)")
+            if self.h0_identified:
+                lines.append(
+                    f"  h0 = {self.h0:.3f} m  ({pct}% CI {lo:.3f} to {hi:.3f}, delta method)"
+                )
+            else:
+                lines.append(
+                    "  h0 not reported: the days used do not separate it from k (only the rates "
+                    "at the stages used below are meaningful)"
+                )
         else:
             lo, hi = ci["rate"]
             lines.append(
@@ -472,6 +529,7 @@ def fit_seepage(
     area_m2: np.ndarray | None = None,
     levels: dict[str, float] | None = None,
     other_sigma_m3: np.ndarray | None = None,
+    persistent_cov_m6: Callable[[np.ndarray], np.ndarray] | None = None,
     maxlags: int | None = None,
     selection: dict[str, int] | None = None,
     alpha: float = 0.05,
@@ -495,6 +553,12 @@ def fit_seepage(
     other_sigma_m3 : ndarray, optional
         1-σ uncertainty of each day's residual from the other terms (m³/d), e.g. the balance's
         Monte Carlo band, for the "cannot be told from the other terms" warning.
+    persistent_cov_m6 : callable, optional
+        ``W (q, n) -> (q, q)``: covariance (m⁶) of the weighted sums ``Σ_t W_qt e_t`` of the
+        persistent errors of the residual on the days used (the balance's error model:
+        :meth:`~lakebalance.errormodel.ResidualErrors.covariance_of_sums` with the systematic,
+        area and rating parts). Their share of the coefficients' covariance is added to the
+        regression's: a bias common to the days used does not show in the regression's scatter.
     maxlags : int, optional
         Newey–West truncation lag (default: :func:`andrews_lags` of the OLS scores).
     selection : dict, optional
@@ -572,6 +636,12 @@ def fit_seepage(
     res = sm.OLS(y, x).fit(cov_type="HAC", cov_kwds={"maxlags": lags, "use_correction": True})
     coef = np.asarray(res.params, dtype=float)
     coef_cov = np.asarray(res.cov_params(), dtype=float)
+    regression_cov = coef_cov.copy()
+    if persistent_cov_m6 is not None:
+        # b = (XᵀX)⁻¹ Xᵀ y with y = −r / T: Cov(δb) = A Cov(δr) Aᵀ / T²
+        design = np.linalg.solve(x.T @ x, x.T)  # (p, n)
+        extra = np.asarray(persistent_cov_m6(design), dtype=float) / SECONDS_PER_DAY**2
+        coef_cov = coef_cov + extra
     fitted = x @ coef
     if model == "linear":
         b0, b1 = coef
@@ -625,6 +695,8 @@ def fit_seepage(
         levels=dict(levels or {}),
         other_sigma_m3s=other,
         selection=dict(selection or {}),
+        regression_cov=regression_cov,
+        persistent_errors=persistent_cov_m6 is not None,
     )
     notes = _diagnose(fit, alpha)
     for note in notes:
@@ -644,7 +716,11 @@ def _diagnose(fit: SeepageFit, alpha: float) -> list[str]:
             f"the seepage at the mean stage ({rate * SECONDS_PER_DAY:,.0f} m³/d, {pct}% CI "
             f"{lo * SECONDS_PER_DAY:,.0f} to {hi * SECONDS_PER_DAY:,.0f}) cannot be told from zero"
         )
-    if fit.other_sigma_m3s is not None and abs(rate) < _z(alpha) * fit.other_sigma_m3s:
+    if (
+        not fit.persistent_errors  # else the interval above already carries them
+        and fit.other_sigma_m3s is not None
+        and abs(rate) < _z(alpha) * fit.other_sigma_m3s
+    ):
         notes.append(
             f"the seepage at the mean stage ({rate * SECONDS_PER_DAY:,.0f} m³/d) is smaller than "
             f"the combined uncertainty of the other terms (±{_z(alpha) * fit.other_sigma_m3s * SECONDS_PER_DAY:,.0f} "

@@ -132,3 +132,74 @@ def test_select_days_counts_each_reason():
     assert counts["outlet spilling"] == 0  # day 4 already left out as next to the rain
     assert mask.sum() == 5
     assert not mask.iloc[1] and not mask.iloc[3]
+
+
+def test_persistent_errors_widen_the_rate_interval_as_their_variance_says():
+    """Constant model: the rate is the mean loss; a bias common to the days adds its variance
+    to the regression's exactly (variance of a mean plus an independent shift, analytic)."""
+    rng = np.random.default_rng(4)
+    stage = 100.0 + 0.01 * rng.standard_normal(400)
+    residual = -86400 * (0.05 + 0.02 * rng.standard_normal(400))  # m³/d: loss 0.05 m³/s
+    bias_sd = 0.03 * 86400  # m³/d, one persistent deviate for every day (record-wide)
+
+    def persistent(weights):
+        s = weights.sum(axis=1) * bias_sd
+        return np.outer(s, s)
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", DataQualityWarning)
+        plain = fit_seepage(stage, residual, model="constant")
+        full = fit_seepage(stage, residual, model="constant", persistent_cov_m6=persistent)
+    assert full.params["rate"] == plain.params["rate"]
+    assert full.stderr["rate"] ** 2 == pytest.approx(plain.stderr["rate"] ** 2 + 0.03**2, rel=1e-9)
+    assert full.persistent_errors and not plain.persistent_errors
+    assert full.to_dict()["interval_includes_persistent_errors"]
+
+
+def test_h0_is_reported_only_when_the_days_separate_it_from_k():
+    rng = np.random.default_rng(5)
+    stage = 100.0 + 2.0 * np.sin(np.arange(500) / 40.0)  # 4 m of spread
+    loss = 0.02 * (stage - 96.0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", DataQualityWarning)
+        clear = fit_seepage(stage, -86400 * (loss + 0.005 * rng.standard_normal(500)))
+        flat = fit_seepage(stage, -86400 * (0.08 + 0.05 * rng.standard_normal(500)))
+    assert clear.h0_identified and clear.law_supported
+    assert "h0" in clear.to_dict()["parameters"]
+    assert not flat.h0_identified and "h0" not in flat.to_dict()["parameters"]
+    assert "h0 not reported" in flat.summary()
+
+
+def test_a_law_that_cannot_be_told_from_zero_is_not_carried_without_a_choice(tmp_path):
+    """[seepage] in_forecasts = 'auto' leaves out a law whose k is not positive and told from
+    zero, with a warning naming the choices; 'constant' carries the rate at the mean stage."""
+    import lakebalance as lb
+    from lakebalance.laws import LakeLaws
+
+    site = lb.load_site(_write_tiny_site(tmp_path))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", DataQualityWarning)
+        flat = fit_seepage(
+            np.linspace(1.0, 3.0, 200),
+            np.full(200, -864.0) + np.random.default_rng(1).normal(0, 100, 200),
+        )
+    storage = lb.Lake(site).storage
+    lake = lb.Lake.with_results(site, seepage=flat, rating=None)
+    with pytest.warns(DataQualityWarning, match="in_forecasts = 'constant'"):
+        laws, why = lake.laws()
+    assert laws.seepage is None and "not positive" in why
+    import dataclasses
+
+    constant = dataclasses.replace(
+        site, seepage=dataclasses.replace(site.seepage, in_forecasts="constant")
+    )
+    laws, why = lb.Lake.with_results(constant, seepage=flat, rating=None).laws()
+    assert why is None and isinstance(laws, LakeLaws)
+    np.testing.assert_allclose(laws.seepage(np.array([1.0, 5.0])), flat.constant_rate_m3s())
+    assert storage is not None
+
+
+def _write_tiny_site(root):
+    from _robust_sites import write_site
+
+    return write_site(root)
