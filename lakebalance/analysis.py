@@ -441,7 +441,7 @@ class Lake:
             water_year_start=site.site.water_year_start,
         )
         try:
-            storage.check_record(daily["stage"].to_numpy(dtype=float))
+            storage.check_record(daily["stage"].to_numpy(dtype=float), daily.index)
         except LakebalanceError as exc:
             where = site.storage.file if site.storage is not None else None
             raise _with_file(exc, where or site.path) from None

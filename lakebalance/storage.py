@@ -10,9 +10,11 @@ vectorised for numpy arrays of any shape. Between two levels the area follows th
 form that matches the declared integration rule, so that the volume is the *exact* integral of the
 area that is interpolated:
 
-``"prismoidal"`` (conic frustum)
+``"frustum"`` (conic frustum)
     sqrt(A) varies linearly with stage inside a segment; the volume of a segment is then the
-    frustum formula ΔV = Δh/3 (A1 + A2 + sqrt(A1 A2)).
+    frustum formula ΔV = Δh/3 (A1 + A2 + sqrt(A1 A2)) (e.g. Håkanson 1981). It is often called
+    "prismoidal", but a true prismoidal rule needs the area at mid-level, which a survey of
+    contours does not have; the name here says what the formula is.
 ``"average_end_area"``
     A varies linearly with stage; the volume of a segment is ΔV = Δh (A1 + A2)/2.
 
@@ -26,9 +28,11 @@ This module is pure (numpy only): readers for tables and GIS layers live in ``la
 
 References
 ----------
-Common practice, no source: the prismoidal (conic frustum) and average-end-area rules are the usual
+Common practice, no source: the conic frustum and average-end-area rules are the usual
 reservoir-survey integration rules; the frustum volume V = h/3 (A1 + A2 + sqrt(A1 A2)) is the exact
 volume of a frustum of a right circular cone (any handbook of mensuration).
+Håkanson, L. (1981). A Manual of Lake Morphometry. Springer (the frustum formula for the volume
+between contours; from memory).
 """
 
 from __future__ import annotations
@@ -86,8 +90,10 @@ class StorageOptions(Options):
     elevation_field: str = "elevation"  # contour attribute holding the elevation
     elevation_units: str = "m"
     datum_offset: float = setting(0.0, unit="m")  # stage = elevation - datum_offset
-    integration: Literal["prismoidal", "average_end_area"] = "prismoidal"
-    below: Literal["error", "clamp", "extend"] = "clamp"  # policy below the lowest level
+    integration: Literal["frustum", "average_end_area"] = "frustum"
+    # policy below the lowest level: "error" (default; "clamp" would hold the area and volume
+    # there, which silently zeroes the storage change of those days), or "extend" to `bottom`
+    below: Literal["error", "clamp", "extend"] = "error"
     above: Literal["error", "clamp", "extend"] = "extend"  # policy above the highest level
     # outline source: depth from the outline level to the bottom
     max_depth: float | None = setting(None, unit="m", low=0.0, low_open=True)
@@ -103,10 +109,10 @@ class StorageOptions(Options):
 
 
 Policy = Literal["error", "clamp", "extend"]
-Integration = Literal["prismoidal", "average_end_area"]
+Integration = Literal["frustum", "average_end_area"]
 
 _POLICIES = ("error", "clamp", "extend")
-_INTEGRATIONS = ("prismoidal", "average_end_area")
+_INTEGRATIONS = ("frustum", "average_end_area")
 _CHUNK = 1 << 13  # values per evaluation chunk (keeps temporaries in cache: ~4x faster)
 _MAX_LISTED = 5  # rows named in one error message
 
@@ -115,7 +121,7 @@ _MAX_LISTED = 5  # rows named in one error message
 # Integration and validation
 # --------------------------------------------------------------------------------------------
 def integrate_area(
-    stage_m: np.ndarray, area_m2: np.ndarray, integration: Integration = "prismoidal"
+    stage_m: np.ndarray, area_m2: np.ndarray, integration: Integration = "frustum"
 ) -> np.ndarray:
     """Cumulative volume above the lowest level, integrated from a stage-area table.
 
@@ -125,7 +131,7 @@ def integrate_area(
         Stages, strictly increasing, m.
     area_m2 : array_like, shape (n,)
         Lake areas at those stages, non-negative, m².
-    integration : {"prismoidal", "average_end_area"}
+    integration : {"frustum", "average_end_area"}
         Integration rule between consecutive levels.
 
     Returns
@@ -155,7 +161,7 @@ def integrate_area(
     if integration not in _INTEGRATIONS:
         raise ValueError(f"integration must be one of {_INTEGRATIONS}, got {integration!r}")
     dh = np.diff(h)
-    if integration == "prismoidal":
+    if integration == "frustum":
         dv = dh / 3.0 * (a[:-1] + a[1:] + np.sqrt(a[:-1] * a[1:]))
     else:
         dv = dh * 0.5 * (a[:-1] + a[1:])
@@ -381,7 +387,7 @@ def check_volumes(
     area_m2: np.ndarray,
     volume_m3: np.ndarray,
     *,
-    integration: Integration = "prismoidal",
+    integration: Integration = "frustum",
     tolerance: float = 0.01,
     rows: Sequence[int] | None = None,
 ) -> VolumeCheck:
@@ -391,7 +397,7 @@ def check_volumes(
     ----------
     stage_m, area_m2, volume_m3 : array_like, shape (n,)
         A validated table (see :func:`validate_relation`), m, m², m³.
-    integration : {"prismoidal", "average_end_area"}
+    integration : {"frustum", "average_end_area"}
         Integration rule.
     tolerance : float
         Allowed largest mismatch as a share of the full volume range (-).
@@ -454,7 +460,7 @@ class _Locator:
         return i
 
 
-def _prismoidal_increment(r: np.ndarray, b: np.ndarray, d: np.ndarray, out: np.ndarray) -> None:
+def _frustum_increment(r: np.ndarray, b: np.ndarray, d: np.ndarray, out: np.ndarray) -> None:
     """out = d (r² + r b d + b² d² / 3): volume above the segment start, m³ (frustum form)."""
     bd = b * d
     np.multiply(bd, bd, out=out)
@@ -492,7 +498,7 @@ class StorageCurve:
         under ``integration`` (relative 1e-9).
     below, above : {"error", "clamp", "extend"}
         Policy below the lowest / above the highest level.
-    integration : {"prismoidal", "average_end_area"}
+    integration : {"frustum", "average_end_area"}
         Interpolation form of the area between levels (see the module docstring).
     source : str
         Where the relation came from (file and kind), for reports.
@@ -505,7 +511,7 @@ class StorageCurve:
     -----
     In segment k (stage h_k to h_{k+1}, d = h - h_k):
 
-    * prismoidal: :math:`A = (a_k + b_k d)^2`, :math:`a_k = \\sqrt{A_k}`,
+    * frustum: :math:`A = (a_k + b_k d)^2`, :math:`a_k = \\sqrt{A_k}`,
       :math:`b_k = (\\sqrt{A_{k+1}} - \\sqrt{A_k}) / (h_{k+1} - h_k)`,
       :math:`V = V_k + d (a_k^2 + a_k b_k d + b_k^2 d^2 / 3)`;
       inverse :math:`u = (a_k^3 + 3 b_k \\Delta V)^{1/3}`, :math:`d = 3 \\Delta V / (u^2 + u a_k + a_k^2)`.
@@ -527,7 +533,7 @@ class StorageCurve:
     volume_m3: np.ndarray
     below: Policy = "clamp"
     above: Policy = "extend"
-    integration: Integration = "prismoidal"
+    integration: Integration = "frustum"
     source: str = ""
     check: VolumeCheck | None = None
     approximate: bool = False
@@ -554,14 +560,14 @@ class StorageCurve:
         dh = np.diff(h)
         inc = np.empty_like(dh)
         seg: dict = {"h": h[:-1].copy(), "a0": a[:-1].copy()}
-        if self.integration == "prismoidal":
+        if self.integration == "frustum":
             r = np.sqrt(a)
             b = (r[1:] - r[:-1]) / dh
             seg["r"] = r[:-1].copy()
             seg["b"] = b
             slope_bottom = 2.0 * r[0] * b[0]
             slope_top = 2.0 * r[-1] * b[-1]
-            _prismoidal_increment(seg["r"], b, dh, inc)
+            _frustum_increment(seg["r"], b, dh, inc)
         else:
             s = np.diff(a) / dh
             seg["s"] = s
@@ -599,7 +605,7 @@ class StorageCurve:
         area_m2: np.ndarray,
         *,
         base_volume_m3: float = 0.0,
-        integration: Integration = "prismoidal",
+        integration: Integration = "frustum",
         below: Policy = "clamp",
         above: Policy = "extend",
         source: str = "",
@@ -702,17 +708,36 @@ class StorageCurve:
         h = np.concatenate([[lo], grid, [hi]])
         return pd.DataFrame({"stage_m": h, "area_m2": self.area(h), "volume_m3": self.volume(h)})
 
-    def check_record(self, stage_m: np.ndarray) -> None:
+    def check_record(self, stage_m: np.ndarray, dates: Sequence | None = None) -> None:
         """Check a stage record (m) against the relation once, before the many quiet evaluations.
 
         A record that lies wholly outside the relation is a :class:`RangeError` (the two are not
         on one datum, or the stage is in the wrong unit); days outside it give one
-        :class:`ExtrapolationWarning` counted in days (or the relation's ``"error"`` policy
-        raises).
+        :class:`ExtrapolationWarning` counted in days, or, under the ``"error"`` policy, a
+        :class:`RangeError` that names the first such day (from ``dates``) and its stage.
         """
-        h = np.asarray(stage_m, dtype=float)
-        h = h[np.isfinite(h)]
+        h_all = np.asarray(stage_m, dtype=float)
         lo, hi = float(self.min_stage_m), float(self.max_stage_m)
+        for side, policy, outside in (
+            ("below the lowest", self.below, h_all < lo),
+            ("above the highest", self.above, h_all > hi),
+        ):
+            if policy == "error" and outside.any() and np.any((h_all >= lo) & (h_all <= hi)):
+                i = int(np.flatnonzero(outside)[0])
+                day = f"{str(dates[i])[:10]}" if dates is not None else f"day {i + 1}"
+                level = lo if side.startswith("below") else hi
+                raise RangeError(
+                    f"{int(outside.sum())} day(s) of the stage record lie {side} level of the "
+                    f"storage relation ({level:.6g} m), first {day} at {h_all[i]:.4g} m: extend "
+                    f"the survey, or set [storage] {side.split()[0]} = 'extend'"
+                    + (
+                        " (with bottom = the stage of the deepest point)"
+                        if side.startswith("below")
+                        else ""
+                    )
+                    + " or 'clamp' (which holds the storage constant there)"
+                )
+        h = h_all[np.isfinite(h_all)]
         if h.size and not np.any((h >= lo) & (h <= hi)):
             raise RangeError(
                 f"the stage record ({h.min():.4g} to {h.max():.4g} m) lies wholly outside the "
@@ -828,7 +853,7 @@ class StorageCurve:
         s = self._seg
         i = s["stage_locator"](x)
         d = x - s["h"][i]
-        if self.integration == "prismoidal":
+        if self.integration == "frustum":
             np.multiply(s["b"][i], d, out=out)
             out += s["r"][i]
             np.square(out, out=out)
@@ -841,8 +866,8 @@ class StorageCurve:
         s = self._seg
         i = s["stage_locator"](x)
         d = x - s["h"][i]
-        if self.integration == "prismoidal":
-            _prismoidal_increment(s["r"][i], s["b"][i], d, out)
+        if self.integration == "frustum":
+            _frustum_increment(s["r"][i], s["b"][i], d, out)
         else:
             _linear_increment(s["a0"][i], s["s"][i], d, out)
         out += s["v"][i]
@@ -857,7 +882,7 @@ class StorageCurve:
         i = loc(x)
         dv = x - s["v"][i]
         with np.errstate(invalid="ignore", divide="ignore"):
-            if self.integration == "prismoidal":
+            if self.integration == "frustum":
                 r = s["r"][i]
                 u = np.cbrt(r * r * r + 3.0 * s["b"][i] * dv)
                 den = u * u + u * r + r * r
@@ -946,7 +971,7 @@ def storage_from_table(
     area_m2: np.ndarray,
     volume_m3: np.ndarray | None = None,
     *,
-    integration: Integration = "prismoidal",
+    integration: Integration = "frustum",
     below: Policy = "clamp",
     above: Policy = "extend",
     rows: Sequence[int] | None = None,
@@ -969,7 +994,7 @@ def storage_from_table(
         compared with the integral of the areas (:func:`check_volumes`); a mismatch beyond
         ``tolerance`` warns :class:`~lakebalance.errors.DataQualityWarning`. The relation
         itself always integrates the areas, so that dV/dh equals the area.
-    integration : {"prismoidal", "average_end_area"}
+    integration : {"frustum", "average_end_area"}
         Integration rule and matching area interpolation.
     below, above : {"error", "clamp", "extend"}
         Policies outside the range.
@@ -1039,7 +1064,7 @@ def storage_from_outline(
     shape_exponent: float = 1.0,
     *,
     levels: int = 400,
-    integration: Integration = "prismoidal",
+    integration: Integration = "frustum",
     below: Policy = "clamp",
     above: Policy = "extend",
     source: str = "",

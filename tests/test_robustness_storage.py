@@ -59,3 +59,24 @@ def test_check_states_the_outline_approximation_once_and_plainly(tmp_path, capsy
     assert main(["check", str(tmp_path / "site.toml")]) == 0
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and err[0].startswith("warning: the storage relation is approximated")
+
+
+def test_a_stage_below_the_survey_stops_the_balance_naming_the_day(tmp_path, capsys):
+    """The default below = 'error': a day below the lowest surveyed level is one error that
+    names the day and its stage (clamping would zero its storage change silently; common
+    practice, no source)."""
+    from _robust_sites import write_site
+
+    from lakebalance.cli import main
+
+    site = write_site(tmp_path)
+    site.write_text(site.read_text().replace('below = "clamp"\n', ""))  # the default
+    stage = tmp_path / "stage.csv"
+    lines = stage.read_text().splitlines()
+    date, _ = lines[5].split(",")
+    lines[5] = f"{date},-0.5"
+    stage.write_text("\n".join(lines) + "\n")
+    assert main(["balance", str(site), "--draws", "0"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "below the lowest level" in err[0]
+    assert f"first {date} at -0.5 m" in err[0] and "below = 'extend'" in err[0]

@@ -93,7 +93,7 @@ def test_extend_policy_continues_area_linearly_and_stops_at_the_bottom():
     np.testing.assert_allclose(h, [8.0, 9.0, 13.0])  # below the empty basin: its bottom
 
 
-def test_prismoidal_extension_uses_the_end_slope_of_area():
+def test_frustum_extension_uses_the_end_slope_of_area():
     """Analytic: a cone of area pi (10 h)^2 continued along its end slope dA/dh (calculus)."""
     # cone: area = pi (10 h)^2, dA/dh at h=2 is 2 pi 100 h = 400 pi
     h = np.array([0.0, 1.0, 2.0])
@@ -113,10 +113,10 @@ def test_table_at_a_regular_step_includes_both_ends():
 
 
 def test_integrate_area_rules_differ_as_the_formulas_say():
-    """Frustum (prismoidal) rule dh/3 (A1 + A2 + sqrt(A1 A2)) and average end area dh (A1 + A2)/2
+    """Frustum rule dh/3 (A1 + A2 + sqrt(A1 A2)) and average end area dh (A1 + A2)/2
     worked by hand (solid geometry, common practice, no source)."""
     h, a = [0.0, 3.0], [100.0, 400.0]
-    assert integrate_area(h, a, "prismoidal")[-1] == pytest.approx(3 / 3 * (500 + 200))
+    assert integrate_area(h, a, "frustum")[-1] == pytest.approx(3 / 3 * (500 + 200))
     assert integrate_area(h, a, "average_end_area")[-1] == pytest.approx(3 * 250)
 
 

@@ -42,7 +42,7 @@ def test_cone_from_contour_polygons_matches_pi_r2_h_over_3(tmp_path):
     z = np.arange(1.0, 13.0)  # contours every metre above the apex (apex at elevation 0)
     path = _circles(tmp_path, r_top * z / depth, z + 500.0)
     opts = StorageOptions(
-        source="contours", file=path, datum_offset=500.0, bottom=0.0, integration="prismoidal"
+        source="contours", file=path, datum_offset=500.0, bottom=0.0, integration="frustum"
     )
     curve = read_storage(opts)
     exact = math.pi * r_top**2 * depth / 3.0
@@ -68,7 +68,7 @@ def test_vertical_walls_give_area_times_depth_exactly(tmp_path):
     frame = gpd.GeoDataFrame({"elevation": [0.0, 2.5, 7.0]}, geometry=[square] * 3, crs=CRS)
     path = tmp_path / "prism.geojson"
     frame.to_file(path)
-    for rule in ("prismoidal", "average_end_area"):
+    for rule in ("frustum", "average_end_area"):
         curve = read_storage(StorageOptions(source="contours", file=path, integration=rule))
         area = float(curve.area_m2[0])
         h = np.linspace(0.0, 7.0, 29)
@@ -91,7 +91,7 @@ def test_paraboloid_is_exact_with_average_end_area():
     )
 
 
-def test_cone_table_is_exact_with_prismoidal_rule():
+def test_cone_table_is_exact_with_frustum_rule():
     """The frustum rule is exact for a cone (sqrt(area) linear in stage) at every stage."""
     radius, depth = 250.0, 6.0
     h = np.array([0.0, 0.7, 2.0, 6.0])

@@ -33,7 +33,7 @@ def relations(draw) -> StorageCurve:
     area = first + np.concatenate([[0.0], np.cumsum(gains)])
     if area[-1] <= 0:
         area[-1] = 1.0
-    rule = draw(st.sampled_from(["prismoidal", "average_end_area"]))
+    rule = draw(st.sampled_from(["frustum", "average_end_area"]))
     volume0 = draw(st.sampled_from([0.0, 2.5e5]))
     return StorageCurve.from_areas(
         stage, area, base_volume_m3=volume0, integration=rule, below="extend", above="extend"
