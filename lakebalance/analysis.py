@@ -435,10 +435,13 @@ class Lake:
                 if records.subdaily_stage is not None
                 else None
             ),
+            subdaily_stage_m=records.subdaily_stage,
         )
+        stage_spec = next(iter(site.series_of("stage")), None)
         options = ClosureOptions(
             boundary_rule=site.uncertainty.boundary_rule,
             water_year_start=site.site.water_year_start,
+            subdaily_coverage=stage_spec.coverage if stage_spec is not None else 0.8,
         )
         try:
             storage.check_record(daily["stage"].to_numpy(dtype=float), daily.index)
