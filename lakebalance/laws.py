@@ -68,11 +68,18 @@ class LakeLaws:
         """Laws from a :class:`~lakebalance.storage.StorageCurve`, a fitted rating (or None) and
         a seepage fit (or None; its ``rate_m3s``)."""
 
-        def area(h):  # days outside the relation were reported where the record was checked
-            return storage.area(h, warn=False)
+        lo, hi = float(storage.min_stage_m), float(storage.max_stage_m)
+        low = lo if storage.below == "error" else -np.inf
+        high = hi if storage.above == "error" else np.inf
+
+        # Days outside the relation were reported where the record was checked; under an "error"
+        # policy a checked record's in-day path may still dip a little past the end level
+        # between its boundaries (the quadratic through them and the daily mean): held there.
+        def area(h):
+            return storage.area(np.clip(h, low, high), warn=False)
 
         def volume(h):
-            return storage.volume(h, warn=False)
+            return storage.volume(np.clip(h, low, high), warn=False)
 
         return cls(
             area=area,
