@@ -203,7 +203,7 @@ def _integrate(f: LakeFamily, forcing: dict, unmetered: np.ndarray, n: int, sub:
         gain = forcing["inflow"][d] - f.withdrawal_m3s - f.release_m3s - unmetered[d]
         net = forcing["rain"][d] - forcing["evaporation"][d]
 
-        def rate(y):
+        def rate(y, gain=gain, net=net):
             a = max(float(area_m2(f, y)), 1.0)
             loss = float(outflow_m3s(f, y)) + float(seepage_m3s(f, y))
             return (gain + net / T * a - loss) / a
