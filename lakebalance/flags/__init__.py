@@ -25,6 +25,7 @@ objects.
 from __future__ import annotations
 
 from ..stats import MAD_TO_SIGMA, robust_sigma
+from .changepoints import ChangePoints, change_points, date_run, refine_run
 from .context import MIN_RESIDUAL_DAYS as MIN_RESIDUAL_DAYS
 from .datum import aftermath_shape, lasting_outflow_change
 from .driver import detect_flags
@@ -33,7 +34,6 @@ from .options import FlagOptions
 from .result import NOTE as NOTE
 from .result import Flag, FlagKind, Flags
 from .robust import cusum, cusum_runs, long_run_variance_ratio, noise_scale, rolling_robust_z
-from .segments import ChangePoints, change_points, date_run, refine_run
 from .stage import flow_adjusted_stage_change, stage_step_anomaly
 
 __all__ = [

@@ -1,17 +1,152 @@
-"""Gauge datum shifts: the lone stage steps near a change of the residual, the aftermath a shift leaves
-in the computed outflow, and the lasting change that shows a shift hidden by a storm."""
+"""Gauge datum shifts: the one builder of a datum-shift flag, the lone stage steps near a change of
+the residual, the aftermath a shift leaves in the computed outflow, and the lasting change that
+shows a shift hidden by a storm.
+
+A datum shift is seen two ways: as a one-day storage jump that the residual mirrors (an event,
+:mod:`lakebalance.flags.events`), or, for a smaller step, by the level change it leaves in the
+residual through the outflow computed from the shifted stage (a segment,
+:mod:`lakebalance.flags.segments`). Both build their flag with :func:`datum_shift_flag`.
+"""
 
 from __future__ import annotations
 
 import math
-from typing import TYPE_CHECKING
+from collections.abc import Sequence
+from typing import TYPE_CHECKING, Literal
 
 import numpy as np
 
+from ..records import Correction
+from ..stats import Z95
+from ..units import MM_PER_M
+from .result import Flag
 from .robust import rolling_robust_z
 
 if TYPE_CHECKING:  # pragma: no cover
+    from .context import FlagContext
     from .options import FlagOptions
+
+#: How a datum shift was seen, and the hint each way gives (``{net}``: the step in m).
+_HINTS = {
+    "storage jump": (
+        "A one-day storage jump with no matching flow, and the stage stays offset by {net:+.3f} m: "
+        "check the gauge zero, staff plate or logger (re-installation, survey) and, if confirmed, "
+        "accept the offset."
+    ),
+    "level change": (
+        "The stage stepped by {net:+.3f} m with no matching flow and the residual changed level "
+        "from that day: check the gauge zero, staff plate or logger and, if confirmed, accept the "
+        "offset."
+    ),
+}
+
+
+def datum_shift_flag(
+    ctx: FlagContext,
+    day: int,
+    net_m: float,
+    *,
+    volume_m3: float,
+    depth_mm: float,
+    rate_m3_per_day: float,
+    significance: float,
+    seen_by: Literal["storage jump", "level change"],
+    evidence: Sequence[str],
+) -> Flag:
+    """The flag of a gauge datum shift of ``net_m`` (m) on day ``day``, with its correction.
+
+    The proposed correction is a stage offset of −``net_m`` from that day on; the flag is
+    accepted when the site file already has it (:func:`is_accepted`).
+    """
+    corr = Correction(
+        series="stage",
+        kind="offset",
+        start=ctx.iso(day),
+        end=None,
+        value=float(-net_m),
+        reason=f"gauge datum shift of {net_m:+.3f} m flagged by lakebalance",
+    )
+    return Flag(
+        kind="datum_shift",
+        start=ctx.iso(day),
+        end=ctx.iso(day),
+        series="stage",
+        volume_m3=volume_m3,
+        depth_mm=depth_mm,
+        rate_m3_per_day=rate_m3_per_day,
+        significance=significance,
+        significant=significance > Z95,
+        cause="gauge datum shift",
+        hint=_HINTS[seen_by].format(net=net_m),
+        evidence=tuple(evidence),
+        magnitude_m=float(net_m),
+        correction=corr,
+        accepted=is_accepted(corr, ctx.corrections),
+    )
+
+
+def is_accepted(proposed: Correction, corrections: Sequence[Correction]) -> bool:
+    """A site-file correction of the same series and kind starts on the proposed start day."""
+    return any(
+        c.series == proposed.series and c.start == proposed.start and c.kind == proposed.kind
+        for c in corrections
+    )
+
+
+def with_evidence(flags: Sequence[Flag], day_iso: str, text: str) -> list[Flag]:
+    """``flags`` with ``text`` added to the evidence of the datum shift that starts on ``day_iso``."""
+    import dataclasses
+
+    out = list(flags)
+    k = next(i for i, f in enumerate(out) if f.kind == "datum_shift" and f.start == day_iso)
+    out[k] = dataclasses.replace(out[k], evidence=(*out[k].evidence, text))
+    return out
+
+
+def outflow_note(ctx: FlagContext) -> str:
+    """Why a shift changes the residual, when the outflow is computed from the stage."""
+    return (
+        ", as the outflow is computed from the shifted stage" if ctx.outflow_m3 is not None else ""
+    )
+
+
+def mirrored_stage_step(ctx: FlagContext, a: int) -> int | None:
+    """The lone stage step near day ``a`` whose storage jump the residual mirrors, if any.
+
+    The residual summed over the step's day and a day each side must be within half of the
+    storage jump the step implies (step × area): no gauged flow matches it.
+    """
+    if ctx.step_z is None:
+        return None
+    dev0, area = ctx.departure_m3, ctx.area_m2
+    for cand in stage_steps_near(a, ctx.step_z, ctx.step_m, ctx.options):
+        seen = float(np.nansum(dev0[max(cand - 1, 0) : cand + 2]))
+        jump_m3 = float(ctx.step_m[cand] * area[cand]) if area is not None else float("nan")
+        if abs(seen - jump_m3) <= 0.5 * abs(jump_m3):
+            return cand
+    return None
+
+
+def level_change_shift(ctx: FlagContext, day: int) -> Flag:
+    """The datum-shift flag of a stage step on ``day`` seen by the level change that follows it."""
+    net = float(ctx.step_m[day])
+    area = ctx.area_m2
+    volume = float(net * area[day]) if area is not None else float("nan")
+    z = float(ctx.step_z[day]) if ctx.step_z is not None else float("nan")
+    return datum_shift_flag(
+        ctx,
+        day,
+        net,
+        volume_m3=volume,
+        depth_mm=net * MM_PER_M,
+        rate_m3_per_day=volume,
+        significance=abs(z),
+        seen_by="level change",
+        evidence=(
+            f"the stage stepped by {net:+.3f} m on {ctx.iso(day)} against the change of "
+            f"the days around it (robust z {z:+.1f})",
+        ),
+    )
 
 
 def stage_steps_near(a: int, z_h: np.ndarray, step: np.ndarray, options: FlagOptions) -> list[int]:
