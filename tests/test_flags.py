@@ -278,7 +278,8 @@ def test_flags_follow_the_result_protocol(planted):
     text = flags.summary()
     assert isinstance(flags, Result)
     assert isinstance(text, Summary) and text.title == "flags"
-    assert text.startswith("Residual flags, 2001-01-01 to 2005-12-31")
+    first, last = daily.index[0].date(), daily.index[-1].date()
+    assert text.startswith(f"Residual flags, {first} to {last}: {len(flags)} flag(s)")
     assert "<pre>" in text._repr_html_()
     assert len(flags.to_frame()) == len(flags) > 0
 
