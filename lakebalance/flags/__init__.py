@@ -20,6 +20,18 @@ read), and :class:`Flags` lists the corrections in force.
 
 All functions here are pure: they take pandas Series / DataFrames or ndarrays and return new
 objects.
+
+Layout, by detector family: :mod:`~lakebalance.flags.options` (``FlagOptions``),
+:mod:`~lakebalance.flags.robust` (rolling robust z, noise scale, long-run variance ratio, CUSUM),
+:mod:`~lakebalance.flags.stage` (the stage record's daily steps), :mod:`~lakebalance.flags.context`
+(the frozen :class:`~lakebalance.flags.context.FlagContext` every detector reads),
+:mod:`~lakebalance.flags.events` (single-day events: spikes, bad stage readings, datum shifts seen
+as a storage jump), :mod:`~lakebalance.flags.datum` (the one datum-shift flag builder, aftermath
+and lasting change of a shift), :mod:`~lakebalance.flags.level` (the usual level),
+:mod:`~lakebalance.flags.changepoints` (change points, dating of runs),
+:mod:`~lakebalance.flags.segments` (level shifts, runs, datum shifts seen by their aftermath),
+:mod:`~lakebalance.flags.drift`, :mod:`~lakebalance.flags.result` (``Flag``, ``Flags``) and
+:mod:`~lakebalance.flags.driver` (:func:`detect_flags`).
 """
 
 from __future__ import annotations

@@ -258,6 +258,7 @@ def cusum_runs(
 
 
 def quiet_nan_warnings():
+    """A context in which numpy's RuntimeWarnings (mean of an all-NaN slice, ...) are silenced."""
     import warnings
 
     class _Ctx:
@@ -273,5 +274,6 @@ def quiet_nan_warnings():
 
 
 def span_mean(x: np.ndarray, a: int, b: int) -> float:
+    """Mean of ``x[a..b]`` (inclusive) ignoring NaN (NaN when all are)."""
     with quiet_nan_warnings():
         return float(np.nanmean(x[a : b + 1]))
