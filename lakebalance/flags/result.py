@@ -1,5 +1,4 @@
-"""The flags' result objects: one :class:`Flag` and the :class:`Flags` of a record (the result
-protocol of :mod:`lakebalance.results`: ``summary()``, ``to_dict()``, ``to_frame()``)."""
+"""The flags' result objects: one :class:`Flag` and the :class:`Flags` of a record."""
 
 from __future__ import annotations
 
@@ -9,7 +8,6 @@ from typing import TYPE_CHECKING, Literal
 import numpy as np
 
 from ..records import Correction
-from ..results import Summary
 from .options import FlagOptions
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -242,7 +240,7 @@ class Flags:
             "note": NOTE,
         }
 
-    def summary(self) -> Summary:
+    def summary(self) -> str:
         """Plain text: one paragraph per flag, then the corrections in force."""
         idx = self.residual_m3.index
         out = []
@@ -273,7 +271,7 @@ class Flags:
                 span = c.start + (f" to {c.end}" if c.end else " onwards")
                 out.append(f"  - {c.series}: {c.kind} {c.value:+.4f} from {span}. {c.reason}")
         out.append("\n" + NOTE)
-        return Summary("\n".join(out), "flags")
+        return "\n".join(out)
 
     def __str__(self) -> str:  # pragma: no cover - convenience
         return self.summary()
