@@ -3,13 +3,13 @@
 The context holds the residual (with the excluded days left out), its rolling median and noise
 scale, the outliers, the stage record's daily steps and their robust z-scores, the gauged terms
 used as evidence, the balance's uncertainty band and the corrections in force. Detectors read it
-and never change it.
+and never change it (its arrays are read-only).
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, fields
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -92,6 +92,16 @@ class FlagContext:
     band_source: str
     corrections: tuple[Correction, ...]
     mean_area_m2: float
+
+    def __post_init__(self) -> None:
+        # the daily arrays are kept as read-only views: a detector that wrote into one would
+        # change what the detectors after it read (the caller's arrays stay writable)
+        for f in fields(self):
+            value = getattr(self, f.name)
+            if isinstance(value, np.ndarray):
+                view = value.view()
+                view.flags.writeable = False
+                object.__setattr__(self, f.name, view)
 
     @property
     def n(self) -> int:

@@ -55,8 +55,37 @@ def datum_shift_flag(
 ) -> Flag:
     """The flag of a gauge datum shift of ``net_m`` (m) on day ``day``, with its correction.
 
-    The proposed correction is a stage offset of −``net_m`` from that day on; the flag is
-    accepted when the site file already has it (:func:`is_accepted`).
+    Both ways a shift is seen build their flag here: as the one-day storage jump the residual
+    mirrors (:mod:`lakebalance.flags.events`) and as the level change it leaves through the
+    outflow computed from the shifted stage (:func:`level_change_shift`).
+
+    Parameters
+    ----------
+    ctx : FlagContext
+        The record (dates, corrections in force).
+    day : int
+        Position of the shift's first day.
+    net_m : float
+        Net stage step (m); the proposed correction is a stage offset of −``net_m``.
+    volume_m3 : float
+        Unexplained volume of the flag (m³).
+    depth_mm : float
+        That volume over the lake (mm).
+    rate_m3_per_day : float
+        Mean departure per flagged day (m³/d).
+    significance : float
+        |volume| over its 1-σ uncertainty, or the robust z of the stage step (-).
+    seen_by : {"storage jump", "level change"}
+        How the shift was seen; chooses the hint.
+    evidence : sequence of str
+        The facts behind the hint.
+
+    Returns
+    -------
+    Flag
+        Of kind ``"datum_shift"`` on the stage series, with its :class:`~lakebalance.records.
+        Correction` (``[[correction]]`` kind ``offset``, series ``stage``, start ``day``, value
+        −``net_m``), accepted when the site file already has it (:func:`is_accepted`).
     """
     corr = Correction(
         series="stage",
@@ -86,7 +115,14 @@ def datum_shift_flag(
 
 
 def is_accepted(proposed: Correction, corrections: Sequence[Correction]) -> bool:
-    """A site-file correction of the same series and kind starts on the proposed start day."""
+    """A site-file correction of the same series and kind starts on the proposed start day.
+
+    A ``[[correction]]`` of kind ``offset`` on series ``stage`` adds ``value`` (m) to the stage
+    readings from ``start`` on (to ``end`` when given) as the records are read, so a shift still
+    found on that day is what the accepted offset left of the step: value and end are not
+    compared. The kind is always ``offset`` (the only kind a correction can have), so the two
+    ways a shift is seen share this one rule.
+    """
     return any(
         c.series == proposed.series and c.start == proposed.start and c.kind == proposed.kind
         for c in corrections

@@ -19,6 +19,20 @@ def drift_flags(ctx: FlagContext, seg: Segmentation) -> list[Flag]:
     """A drift flag for each segment of at least ``drift_min_days`` whose departure from the
     usual level trends with a Newey–West p-value below ``drift_alpha``.
 
+    Parameters
+    ----------
+    ctx : FlagContext
+        The record.
+    seg : Segmentation
+        The segments and the departure from the usual level (m³/d).
+
+    Returns
+    -------
+    list of Flag
+        Rate: the slope (m³/d per day); significance: |Φ⁻¹(p/2)| (-).
+
+    Notes
+    -----
     The volume is the second half's excess over the segment's mean level: slope · Σ_{t>0} t with
     t centred on the segment (m³).
     """

@@ -65,7 +65,19 @@ class StageStep:
 
 
 def find_events(ctx: FlagContext) -> Events:
-    """Group the outlying days into events and flag each (step 1 of :func:`detect_flags`)."""
+    """Group the outlying days into events and flag each (step 1 of :func:`detect_flags`).
+
+    Parameters
+    ----------
+    ctx : FlagContext
+        The record: residual outliers and outlying stage steps.
+
+    Returns
+    -------
+    Events
+        Every event's span (days within ``spike_days`` merged), the spike and datum-shift
+        flags, and the positions of the datum shifts.
+    """
     spans = groups(ctx.outlier | ctx.jump, gap=max(0, ctx.options.spike_days - 1))
     flags: list[Flag] = []
     datum_starts: list[int] = []
@@ -84,7 +96,22 @@ def find_events(ctx: FlagContext) -> Events:
 
 
 def read_stage_step(ctx: FlagContext, a: int, b: int) -> StageStep:
-    """How the stage moved over the event ``a``..``b`` and whether the balance confirms it."""
+    """How the stage moved over the event ``a``..``b`` and whether the balance confirms it.
+
+    Parameters
+    ----------
+    ctx : FlagContext
+        The record.
+    a, b : int
+        Positions of the event's first and last day.
+
+    Returns
+    -------
+    StageStep
+        The steps' shape (undone or not), their peak and net size (m), the storage jump they
+        imply (m³) and whether the residual mirrors it within half (or, for a step that stays,
+        the outflow changes lastingly, :func:`~lakebalance.flags.lasting_outflow_change`).
+    """
     r, med_r, step, jump, area = ctx.residual_m3, ctx.median_m3, ctx.step_m, ctx.jump, ctx.area_m2
     cum = np.cumsum(step[a : b + 1])
     peak = float(cum[np.argmax(np.abs(cum))]) if cum.size else 0.0
@@ -141,8 +168,24 @@ def read_stage_step(ctx: FlagContext, a: int, b: int) -> StageStep:
 
 
 def event_flag(ctx: FlagContext, a: int, b: int, step: StageStep) -> Flag | None:
-    """The flag of the event ``a``..``b``: datum shift, bad stage reading or flow spike (None
-    when there is nothing to flag)."""
+    """The flag of the event ``a``..``b``: datum shift, bad stage reading or flow spike.
+
+    Parameters
+    ----------
+    ctx : FlagContext
+        The record.
+    a, b : int
+        Positions of the event's first and last day.
+    step : StageStep
+        How the stage moved over the event (:func:`read_stage_step`).
+
+    Returns
+    -------
+    Flag or None
+        A datum shift when the confirmed step stays, a bad stage reading when it comes back, a
+        spike of a flow term when the stage did not step; None for a stage step the flows
+        explain or a gain at once undone by a loss (day-boundary timing).
+    """
     if not step.seen and not ctx.outlier[a : b + 1].any():
         return None  # a stage step that the flows explain: nothing to flag
     evidence = list(step.evidence)

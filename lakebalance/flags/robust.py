@@ -1,9 +1,9 @@
 """Robust statistics of the detectors: the rolling robust z-score (Hampel identifier), the
 long-run variance ratio, the heteroscedastic noise scale of the residual and the tabular CUSUM.
 
-The scaled median absolute deviation (:func:`~lakebalance.stats.robust_sigma`, ``MAD_TO_SIGMA``)
-and the Newey–West lag rule are shared with the QA of the raw series and live in
-:mod:`lakebalance.stats`.
+The scaled median absolute deviation (:func:`~lakebalance.stats.robust_sigma`, ``MAD_TO_SIGMA``,
+shared with the QA of the raw series) and the Newey–West lag rule (shared with the seepage fit)
+live in :mod:`lakebalance.stats`.
 """
 
 from __future__ import annotations

@@ -79,6 +79,19 @@ class Segmentation:
 def segment_residual(ctx: FlagContext, events: Events) -> Segmentation:
     """Fit the usual level with the events left out and segment the departure from it.
 
+    Parameters
+    ----------
+    ctx : FlagContext
+        The record.
+    events : Events
+        What step 1 found: its days are left out, its datum shifts step the usual level.
+
+    Returns
+    -------
+    Segmentation
+
+    Notes
+    -----
     A run lowers (or raises) the stage too: the usual level is fitted again without the segments
     that depart from it, so that the stage term does not absorb them, and the departure is
     segmented again.
@@ -275,6 +288,29 @@ def segment_flag(
 ) -> Flag:
     """A run or level-shift flag over days ``a``..``b`` with its likely cause and evidence.
 
+    Parameters
+    ----------
+    ctx : FlagContext
+        The record.
+    seg : Segmentation
+        The usual level and the departure from it.
+    kind : {"run", "level_shift"}
+        A run has change points at both ends; a level shift reaches an end of the record.
+    a, b : int
+        Positions of the first and last day.
+    days_valid : int
+        Days with a residual in ``a``..``b``.
+    detector : str
+        What found it, for the evidence.
+
+    Returns
+    -------
+    Flag
+        Volume (m³), depth (mm), rate (m³/d), significance (-) and a cause: the outflow or the
+        evaporation when the residual follows it, else an unmetered withdrawal or inflow.
+
+    Notes
+    -----
     The volume is the summed departure from the usual level; the significance is |volume| over
     its 1-σ uncertainty with the long-run variance ratio (:meth:`FlagContext.sigma_of`).
     """
