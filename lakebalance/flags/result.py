@@ -1,4 +1,5 @@
-"""The flags' result objects: one :class:`Flag` and the :class:`Flags` of a record."""
+"""The flags' result objects: one :class:`Flag` and the :class:`Flags` of a record (the result
+protocol of :mod:`lakebalance.results`: ``summary()``, ``to_dict()``, ``to_frame()``)."""
 
 from __future__ import annotations
 
@@ -8,6 +9,7 @@ from typing import TYPE_CHECKING, Literal
 import numpy as np
 
 from ..records import Correction
+from ..results import Summary
 from .options import FlagOptions
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -240,7 +242,7 @@ class Flags:
             "note": NOTE,
         }
 
-    def summary(self) -> str:
+    def summary(self) -> Summary:
         """Plain text: one paragraph per flag, then the corrections in force."""
         idx = self.residual_m3.index
         out = []
@@ -271,7 +273,7 @@ class Flags:
                 span = c.start + (f" to {c.end}" if c.end else " onwards")
                 out.append(f"  - {c.series}: {c.kind} {c.value:+.4f} from {span}. {c.reason}")
         out.append("\n" + NOTE)
-        return "\n".join(out)
+        return Summary("\n".join(out), "flags")
 
     def __str__(self) -> str:  # pragma: no cover - convenience
         return self.summary()
