@@ -267,6 +267,23 @@ def test_outputs_are_json_ready(planted):
     assert flags.mask().sum() >= sum(1 for _ in flags)
 
 
+def test_flags_follow_the_result_protocol(planted):
+    """The project's result protocol (lakebalance/results.py): summary() is a Summary that prints
+    as its text and renders as HTML, to_frame() has one row per flag (common practice, no
+    source)."""
+    from lakebalance.results import Result, Summary
+
+    daily, _ = planted
+    flags = detect_flags(daily)
+    text = flags.summary()
+    assert isinstance(flags, Result)
+    assert isinstance(text, Summary) and text.title == "flags"
+    first, last = daily.index[0].date(), daily.index[-1].date()
+    assert text.startswith(f"Residual flags, {first} to {last}: {len(flags)} flag(s)")
+    assert "<pre>" in text._repr_html_()
+    assert len(flags.to_frame()) == len(flags) > 0
+
+
 def test_held_out_seeds_found_and_false_flags():
     """Simulated known answer on seeds 46-55, not used while the detectors were changed.
 
