@@ -59,7 +59,6 @@ LONG_FUNCTIONS: dict[str, str] = {
     "lakebalance.balance.add_uncertainty": "the error model is being rebuilt",
     "lakebalance.drawdown.engine._day_step": "the engine's slow path is being reworked",
     "lakebalance.drawdown.engine._table_path": "the engine's slow path is being reworked",
-    "lakebalance.evaporation.lake.estimate_lake_evaporation": "evaporation registry in progress",
     "lakebalance.flags.detect_flags": "flags package split in progress",
     "lakebalance.flags._segment_flag": "flags package split in progress",
     "lakebalance.io._text.read_text_table": "reader hardening in progress",
