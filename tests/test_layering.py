@@ -63,8 +63,6 @@ LONG_FUNCTIONS: dict[str, str] = {
     "lakebalance.flags._segment_flag": "flags package split in progress",
     "lakebalance.io._text.read_text_table": "reader hardening in progress",
     "lakebalance.io.series.load_series": "reader hardening in progress",
-    "lakebalance.outlet.fit.fit_rating_curve": "outlet law registry in progress",
-    "lakebalance.outlet.fit._bootstrap": "outlet law registry in progress",
 }
 MAX_LINES = 150
 MAX_POSITIONAL = 8
