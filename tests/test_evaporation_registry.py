@@ -29,7 +29,7 @@ from lakebalance.evaporation import (
     estimate_lake_evaporation,
 )
 from lakebalance.evaporation import lake as lake_module
-from lakebalance.evaporation.method import FAMILIES
+from lakebalance.evaporation.method import FAMILIES, Family
 from lakebalance.evaporation.weather import QUANTITIES
 from lakebalance.results import Summary
 
@@ -55,6 +55,7 @@ def test_docs_list_every_method_in_the_key_table_and_in_methods():
 
 
 def test_every_entry_is_complete():
+    assert typing.get_args(Family) == FAMILIES
     ranks = [m.preference for m in REGISTRY]
     assert len(set(ranks)) == len(ranks), "two methods share a rank in method = 'auto'"
     for m in REGISTRY:

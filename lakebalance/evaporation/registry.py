@@ -33,7 +33,7 @@ _BY_NAME = {m.name: m for m in REGISTRY}
 
 
 def method_named(name: str, site_file: str | None = None) -> EvaporationMethod:
-    """The entry of method ``name`` (ConfigError naming the known ones otherwise)."""
+    """The entry of method ``name``; a :class:`~lakebalance.errors.ConfigError` for an unknown one."""
     try:
         return _BY_NAME[name]
     except KeyError:
