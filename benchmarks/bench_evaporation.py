@@ -14,7 +14,7 @@ import warnings
 import numpy as np
 import pandas as pd
 
-from lakebalance.evaporation import estimate_lake_evaporation
+from lakebalance.evaporation import EvaporationOptions, estimate_lake_evaporation
 from lakebalance.units import factor
 
 TARGET_S = 1.0
@@ -54,25 +54,27 @@ def main() -> None:
             t0 = time.perf_counter()
             res = estimate_lake_evaporation(
                 w,
+                EvaporationOptions(
+                    method="penman",
+                    pan_coefficient=[
+                        0.8,
+                        0.78,
+                        0.75,
+                        0.72,
+                        0.7,
+                        0.68,
+                        0.68,
+                        0.7,
+                        0.73,
+                        0.76,
+                        0.8,
+                        0.82,
+                    ],
+                    wind_height=10.0,
+                    heat_storage_lag=20.0,
+                ),
                 latitude_deg=46.4,
                 elevation_m=412.0,
-                method="penman",
-                pan_coefficient=[
-                    0.8,
-                    0.78,
-                    0.75,
-                    0.72,
-                    0.7,
-                    0.68,
-                    0.68,
-                    0.7,
-                    0.73,
-                    0.76,
-                    0.8,
-                    0.82,
-                ],
-                wind_height_m=10.0,
-                heat_storage_lag_days=20.0,
             )
             runs.append(time.perf_counter() - t0)
     best, median = min(runs), float(np.median(runs))

@@ -331,21 +331,13 @@ class Lake:
             if len(records.keys(role)) > 1:
                 averaged.append(f"{role} is the daily mean of {len(records.keys(role))} series")
         frame = pd.DataFrame(weather, index=records.daily.index)
+        if method is not None and method != opts.method:
+            opts = dataclasses.replace(opts, method=method)
         result = estimate_lake_evaporation(
             frame,
+            opts,
             latitude_deg=site.site.latitude,
             elevation_m=site.site.elevation,
-            method=method or opts.method,
-            pan_coefficient=opts.pan_coefficient,
-            albedo=opts.albedo,
-            alpha=opts.alpha,
-            open_water_coefficient=opts.open_water_coefficient,
-            wind_height_m=opts.wind_height,
-            heat_storage_lag_days=opts.heat_storage_lag,
-            fill=opts.fill,
-            angstrom_a=opts.angstrom_a,
-            angstrom_b=opts.angstrom_b,
-            clip_negative=opts.clip_negative,
             site_file=str(site.path),
         )
         changes: dict[str, Any] = {}

@@ -19,6 +19,7 @@ from hypothesis import strategies as st
 import lakebalance
 from lakebalance.errors import ApproximationWarning, ConfigError, UnitError
 from lakebalance.evaporation import (
+    EvaporationOptions,
     climatology_fill,
     estimate_lake_evaporation,
     heat_storage_lag,
@@ -52,10 +53,15 @@ def weather(days: int = 730, seed: int = 3) -> pd.DataFrame:
     )
 
 
-def run(w, **kw):
-    kw.setdefault("latitude_deg", LAT)
-    kw.setdefault("elevation_m", ELEV)
-    return estimate_lake_evaporation(w, **kw)
+def run(w, latitude_deg=LAT, elevation_m=ELEV, site_file=None, **options):
+    """Lake evaporation of ``w`` with ``[evaporation]`` options given as keywords."""
+    return estimate_lake_evaporation(
+        w,
+        EvaporationOptions(**options),
+        latitude_deg=latitude_deg,
+        elevation_m=elevation_m,
+        site_file=site_file,
+    )
 
 
 # ---- method choice --------------------------------------------------------------------------
@@ -209,7 +215,7 @@ def test_heat_storage_lag_keeps_gaps_missing_and_works_on_ensembles():
 def test_lag_reduces_spring_and_raises_autumn_lake_evaporation():
     w = weather(days=1095).drop(columns="pan")
     plain = run(w).by_method["penman"]
-    lagged = run(w, heat_storage_lag_days=45.0).by_method["penman"]
+    lagged = run(w, heat_storage_lag=45.0).by_method["penman"]
     assert lagged["2020-04"].mean() < plain["2020-04"].mean()
     assert lagged["2020-10"].mean() > plain["2020-10"].mean()
 

@@ -59,11 +59,8 @@ LONG_FUNCTIONS: dict[str, str] = {
     "lakebalance.balance.add_uncertainty": "the error model is being rebuilt",
     "lakebalance.drawdown.engine._day_step": "the engine's slow path is being reworked",
     "lakebalance.drawdown.engine._table_path": "the engine's slow path is being reworked",
-    "lakebalance.evaporation.lake.estimate_lake_evaporation": "evaporation registry in progress",
     "lakebalance.io._text.read_text_table": "reader hardening in progress",
     "lakebalance.io.series.load_series": "reader hardening in progress",
-    "lakebalance.outlet.fit.fit_rating_curve": "outlet law registry in progress",
-    "lakebalance.outlet.fit._bootstrap": "outlet law registry in progress",
 }
 MAX_LINES = 150
 MAX_POSITIONAL = 8

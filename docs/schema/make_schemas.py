@@ -3,7 +3,8 @@
 Runs every command on the invented demo with ``--json``, infers a schema from the document (types,
 required keys, array items) and writes ``docs/schema/<command>.schema.json``. An estimated quantity
 (``{value, stderr, ci95, unit}``) is recognised and refers to the one shared definition
-``estimate.schema.json``. Review the diff of the schemas before committing: they are the published
+``estimate.schema.json`` (with any further keys, such as a rating parameter's ``fixed``, required
+beside it). Review the diff of the schemas before committing: they are the published
 contract that ``tests/test_schemas.py`` checks every command's output against.
 
     python docs/schema/make_schemas.py
@@ -67,6 +68,18 @@ def infer(value, path: str = "", in_array: bool = False) -> dict:
     if isinstance(value, dict):
         if ESTIMATE_KEYS <= set(value) and not (set(value) - ESTIMATE_KEYS - {"interval"}):
             return {"$ref": "estimate.schema.json"}
+        if ESTIMATE_KEYS <= set(value):  # an estimate with more (a rating parameter's "fixed")
+            extra = sorted(set(value) - ESTIMATE_KEYS - {"interval"})
+            return {
+                "allOf": [
+                    {"$ref": "estimate.schema.json"},
+                    {
+                        "type": "object",
+                        "properties": {k: infer(value[k], f"{path}.{k}") for k in extra},
+                        "required": extra,
+                    },
+                ]
+            }
         if path in MAPS:
             merged: dict | None = None
             for v in value.values():

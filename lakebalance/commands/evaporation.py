@@ -8,19 +8,17 @@ from ._common import LakebalanceWarnings, add_json, add_site, open_lake
 
 HELP = "lake evaporation: monthly totals of every method the weather allows, side by side"
 
-CAUTION = (
-    "Lake evaporation is an estimate; where it informs public water supply or dam safety, "
-    "defer to local codes and licensed professionals."
-)
-
-_METHODS = ("auto", "given", "pan", "penman", "priestley_taylor", "fao56", "hargreaves")
+#: ``--method`` choices: ``auto`` and the names of lakebalance.evaporation.registry.REGISTRY,
+#: spelled here so that ``--help`` imports nothing heavy (tests/test_evaporation_registry.py
+#: checks that they agree).
+METHOD_CHOICES = ("auto", "given", "pan", "penman", "priestley_taylor", "fao56", "hargreaves")
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     add_site(parser)
     parser.add_argument(
         "--method",
-        choices=_METHODS,
+        choices=METHOD_CHOICES,
         default=None,
         help="method for the lake evaporation (default: [evaporation] method of the site file)",
     )
@@ -35,36 +33,17 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run(args: argparse.Namespace) -> int:
     from .._json import dumps
+    from ..evaporation.lake import CAUTION
 
     lake = open_lake(args)
     site = lake.site
     with LakebalanceWarnings() as messages:
         result = lake.evaporation_by(args.method)
+    if args.json:
+        print(dumps({"site": site.site.name, **result.to_dict(args.unit, warnings=messages)}))
+        return 0
     monthly = result.monthly(args.unit)
     diffs = result.monthly_differences(args.unit)
-    if args.json:
-        doc = {
-            "site": site.site.name,
-            "method": result.method,
-            "available": list(result.available),
-            "unit": args.unit,
-            "monthly": [
-                {"month": str(month), **{k: row[k] for k in monthly.columns}}
-                for month, row in monthly.iterrows()
-            ],
-            "differences": [
-                {"month": str(month), **{f"{k}-{result.method}": row[k] for k in diffs.columns}}
-                for month, row in diffs.iterrows()
-            ],
-            "totals": {k: monthly[k].sum(min_count=1) for k in result.available},
-            "filled_days": int(result.filled.sum()),
-            "inputs": result.inputs,
-            "notes": list(result.notes),
-            "warnings": messages,
-            "caution": CAUTION,
-        }
-        print(dumps(doc))
-        return 0
     print(f"{site.site.name}: lake evaporation by {result.method} (monthly totals, {args.unit})")
     methods = list(result.available)
     width = max(9, *(len(m) + 1 for m in methods))

@@ -8,12 +8,6 @@ from ._common import LakebalanceWarnings, add_json, add_out, add_seed, add_site,
 
 HELP = "fit the outlet rating curve to the spot gaugings, with its uncertainty"
 
-CAUTION = (
-    "Rating curves beyond the gauged range are extrapolations. Where outflows inform dam "
-    "safety, spillway capacity, flood levels or public water supply, defer to local codes and "
-    "a licensed professional engineer."
-)
-
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     add_site(parser)
@@ -26,6 +20,7 @@ def run(args: argparse.Namespace) -> int:
     from .._json import dumps
     from ..errors import ConfigError, FitError
     from ..outlet.diagnostics import extrapolation_check, shift_test
+    from ..outlet.fit import CAUTION
 
     lake = open_lake(args)
     site, seed = lake.site, lake.seed
@@ -52,18 +47,12 @@ def run(args: argparse.Namespace) -> int:
         _write_outputs(args.out, fit, stage)
 
     if args.json:
+        fit_doc = fit.to_dict()
+        caution = fit_doc.pop("caution")
+        fit_doc.pop("warnings")  # stated below with the shift test's and the extrapolation's
         doc = {
             "site": site.site.name,
-            "form": fit.form,
-            "residuals": fit.residuals,
-            "parameters": fit.parameter_table(),
-            "derived": fit.derived,
-            "n": fit.n,
-            "dof": fit.dof,
-            "se_percent": fit.se_percent,
-            "gauged_range": list(fit.gauged_range),
-            "zero_flow_stage_m": fit.zero_flow_stage_m,
-            "bootstrap": int(site.outlet.bootstrap),
+            **fit_doc,
             "seed": seed,
             "shift_test": None
             if shift is None
@@ -75,7 +64,7 @@ def run(args: argparse.Namespace) -> int:
             },
             "extrapolation": extra,
             "warnings": messages,
-            "caution": CAUTION,
+            "caution": caution,
         }
         print(dumps(doc))
         return 0

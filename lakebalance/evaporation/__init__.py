@@ -1,16 +1,27 @@
-"""Lake evaporation: radiation and humidity helpers, the published methods, and the daily result.
+"""Lake evaporation: the weather the methods share, the methods by family, and the daily result.
 
-Modules by method family:
+Shared pieces (FAO-56 chapter 3):
 
 - :mod:`~lakebalance.evaporation.atmosphere`: air pressure, psychrometric constant, latent heat,
-  vapour pressures, wind at 2 m (FAO-56 chapter 3);
-- :mod:`~lakebalance.evaporation.radiation`: solar geometry, clear-sky and net radiation;
-- :mod:`~lakebalance.evaporation.methods`: Penman (open water), Priestley-Taylor, FAO-56
-  Penman-Monteith, Hargreaves, pan coefficients, heat-storage lag;
-- :mod:`~lakebalance.evaporation.lake`: every method the weather allows for one site, missing
-  weather filled and flagged, the :class:`EvaporationResult`.
+  vapour pressures, wind at 2 m;
+- :mod:`~lakebalance.evaporation.radiation`: solar geometry, clear-sky and net radiation, the
+  heat-storage lag of a deep lake;
+- :mod:`~lakebalance.evaporation.weather`: missing weather filled and flagged, the derived
+  quantities every method uses (:class:`PreparedWeather`).
 
-All equations are pure numpy functions that broadcast over days and ensemble members.
+Methods by family, each an :class:`EvaporationMethod` entry of :data:`REGISTRY`
+(:mod:`~lakebalance.evaporation.registry`):
+
+- :mod:`~lakebalance.evaporation.measured`: ``given``, a measured series;
+- :mod:`~lakebalance.evaporation.pan`: ``pan``, pan times a coefficient;
+- :mod:`~lakebalance.evaporation.combination`: ``penman`` (open water), ``fao56``
+  (Penman-Monteith reference times an open-water coefficient);
+- :mod:`~lakebalance.evaporation.radiation_based`: ``priestley_taylor``;
+- :mod:`~lakebalance.evaporation.temperature_based`: ``hargreaves``.
+
+:mod:`~lakebalance.evaporation.lake` runs every method the weather allows for one site and
+chooses one (:func:`estimate_lake_evaporation`, :class:`EvaporationResult`). All equations are
+pure numpy functions that broadcast over days and ensemble members.
 """
 
 from __future__ import annotations
@@ -27,26 +38,16 @@ from .atmosphere import (
     vapour_pressure_from_rh_mean,
     wind_at_2m,
 )
-from .lake import (
-    METHODS,
-    PREFERENCE,
-    EvaporationResult,
-    climatology_fill,
-    estimate_lake_evaporation,
-    surface_volume_m3,
-)
-from .methods import (
-    fao56_reference,
-    hargreaves,
-    heat_storage_lag,
-    pan_to_lake,
-    penman_open_water,
-    priestley_taylor,
-)
+from .combination import fao56_reference, penman_open_water
+from .lake import EvaporationResult, estimate_lake_evaporation, surface_volume_m3
+from .method import EvaporationMethod
+from .options import EvaporationOptions
+from .pan import pan_to_lake
 from .radiation import (
     clear_sky_radiation,
     daylight_hours,
     extraterrestrial_radiation,
+    heat_storage_lag,
     inverse_relative_distance,
     net_longwave,
     net_radiation,
@@ -55,11 +56,20 @@ from .radiation import (
     solar_from_sunshine,
     sunset_hour_angle,
 )
+from .radiation_based import priestley_taylor
+from .registry import METHODS, PREFERENCE, REGISTRY, method_named
+from .temperature_based import hargreaves
+from .weather import WEATHER_ROLES, PreparedWeather, climatology_fill, prepare_weather
 
 __all__ = [
     "METHODS",
     "PREFERENCE",
+    "REGISTRY",
+    "WEATHER_ROLES",
+    "EvaporationMethod",
+    "EvaporationOptions",
     "EvaporationResult",
+    "PreparedWeather",
     "air_pressure",
     "clear_sky_radiation",
     "climatology_fill",
@@ -71,12 +81,14 @@ __all__ = [
     "heat_storage_lag",
     "inverse_relative_distance",
     "latent_heat",
+    "method_named",
     "mean_saturation_vapour_pressure",
     "net_longwave",
     "net_radiation",
     "net_shortwave",
     "pan_to_lake",
     "penman_open_water",
+    "prepare_weather",
     "priestley_taylor",
     "psychrometric_constant",
     "saturation_vapour_pressure",

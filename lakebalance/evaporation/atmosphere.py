@@ -18,6 +18,7 @@ from numpy.typing import ArrayLike, NDArray
 
 __all__ = [
     "LATENT_HEAT_FAO56",
+    "MJ_TO_MM_FAO56",
     "air_pressure",
     "psychrometric_constant",
     "latent_heat",
@@ -32,6 +33,9 @@ __all__ = [
 
 #: Latent heat of vaporisation used by FAO-56 for the reference equations, MJ/kg (eq. 8, 20).
 LATENT_HEAT_FAO56 = 2.45  # MJ kg-1
+
+#: Evaporation equivalent of 1 MJ m⁻² d⁻¹, mm/d (FAO-56 eq. 20: 1/λ with λ = 2.45 MJ/kg).
+MJ_TO_MM_FAO56 = 0.408  # mm per MJ m-2
 
 
 def _arr(x: ArrayLike) -> NDArray[np.float64]:

@@ -1,4 +1,5 @@
-"""Solar geometry and the radiation balance of a surface for daily periods (FAO-56, chapter 3).
+"""Solar geometry and the radiation balance of a surface for daily periods (FAO-56, chapter 3),
+and the heat-storage lag of a deep lake on its available energy.
 
 Pure, vectorised numpy functions. Latitude is in decimal degrees (north positive) at the public
 interface and converted to radians inside; radiation is in MJ m⁻² d⁻¹; day of year ``J`` runs
@@ -29,6 +30,7 @@ __all__ = [
     "net_shortwave",
     "net_longwave",
     "net_radiation",
+    "heat_storage_lag",
 ]
 
 SOLAR_CONSTANT = 0.0820  # MJ m-2 min-1 (FAO-56 eq. 21)
@@ -379,3 +381,64 @@ def net_radiation(net_short: ArrayLike, net_long: ArrayLike) -> NDArray[np.float
     Allen et al. (1998), FAO-56, eq. 40 (worked example 12).
     """
     return _arr(net_short) - _arr(net_long)
+
+
+def heat_storage_lag(
+    energy: ArrayLike, lag_days: float, initial: float | None = None
+) -> NDArray[np.float64]:
+    """First-order lag of the available energy, for the heat stored in a deep lake.
+
+    Parameters
+    ----------
+    energy : array_like
+        Daily energy input R_n, MJ m⁻² d⁻¹, along the last axis (days). NaN days are bridged by
+        linear interpolation of the input and come back as NaN.
+    lag_days : float
+        Time constant τ of the lag, days (0 = no lag: the input comes back unchanged).
+    initial : float, optional
+        Starting lagged value, MJ m⁻² d⁻¹; default: the mean of the first 365 valid days (so a
+        record that starts in summer does not start from an empty lake heat store).
+
+    Returns
+    -------
+    ndarray
+        Lagged available energy R_n - G, MJ m⁻² d⁻¹; G = R_n - (R_n - G) is the heat going into
+        (positive) or out of (negative) storage.
+
+    Notes
+    -----
+    A linear reservoir of heat with time constant τ (common practice, no source):
+
+    .. math:: Q_t = Q_{t-1} + k (R_{n,t} - Q_{t-1}), \\qquad k = 1 - e^{-1/\\tau}
+
+    computed with a recursive filter (``scipy.signal.lfilter``), not a loop over days. It
+    conserves energy over long periods (the mean of Q equals the mean of R_n) and delays and
+    damps the seasonal cycle of lake evaporation, as seen in deep lakes.
+    """
+    x = _arr(energy)
+    if lag_days <= 0:
+        return x.copy()
+    from scipy.signal import lfilter
+
+    missing = np.isnan(x)
+    if missing.all():
+        return x.copy()
+    k = 1.0 - np.exp(-1.0 / lag_days)
+    # Missing days are bridged by interpolating the input across the gap before filtering.
+    idx = np.arange(x.shape[-1])
+    filled = np.apply_along_axis(
+        lambda row: (
+            np.interp(idx, idx[~np.isnan(row)], row[~np.isnan(row)])
+            if (~np.isnan(row)).any()
+            else row
+        ),
+        -1,
+        x,
+    )
+    if initial is None:
+        start = np.nanmean(filled[..., :365], axis=-1, keepdims=True)
+    else:
+        start = np.full(x.shape[:-1] + (1,), float(initial))
+    zi = (1.0 - k) * start  # state so that the output starts at `start`
+    y, _ = lfilter([k], [1.0, -(1.0 - k)], filled, axis=-1, zi=zi)
+    return np.where(missing, np.nan, y)

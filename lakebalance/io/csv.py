@@ -11,9 +11,7 @@ from ..config import SeriesSpec
 from ._raw import RawSeries
 from ._text import read_text_table
 
-__all__ = ["TEXT_SUFFIXES", "read_csv_series"]
-
-TEXT_SUFFIXES = (".csv", ".txt", ".tsv", ".dat")
+__all__ = ["read_csv_series"]
 
 
 def read_csv_series(spec: SeriesSpec, what: str) -> RawSeries:

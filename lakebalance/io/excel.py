@@ -16,9 +16,7 @@ from ..errors import InputError
 from ._raw import RawSeries
 from ._text import TextTable, resolve_column
 
-__all__ = ["EXCEL_SUFFIXES", "read_excel_table", "read_excel_series"]
-
-EXCEL_SUFFIXES = (".xlsx", ".xlsm")
+__all__ = ["read_excel_table", "read_excel_series"]
 
 
 def read_excel_table(

@@ -2,7 +2,7 @@
 
 The steps, in order (each vectorised over readings):
 
-1. read the cells (CSV, Excel or WaterML 2.0, by file suffix);
+1. read the cells (CSV, Excel or WaterML 2.0, by file suffix: :mod:`lakebalance.io.formats`);
 2. parse timestamps to the site's clock; rows whose date does not parse are rejected and reported
    with their file lines (a file where no date parses is an :class:`~lakebalance.errors.InputError`);
 3. parse numbers; non-numeric cells are rejected and counted by token (``n/a``, ``ICE``, ``<0.01``);
@@ -69,22 +69,15 @@ class LoadedSeries:
 
 
 def read_raw_series(spec: SeriesSpec, what: str) -> RawSeries:
-    """Read the cells of a series with the reader of its file suffix.
+    """Read the cells of a series with the reader of its file's format.
 
-    ``.xlsx``/``.xlsm`` workbooks, ``.xml``/``.wml``/``.wml2`` WaterML 2.0 documents, anything
-    else delimited text (``.csv``, ``.txt``, ``.tsv``).
+    The suffix decides (:data:`lakebalance.io.formats.FORMATS`): ``.csv``/``.txt``/``.tsv``/
+    ``.dat`` delimited text, ``.xlsx``/``.xlsm`` workbooks, ``.xml``/``.wml``/``.wml2`` WaterML
+    2.0 documents; any other suffix is an :class:`~lakebalance.errors.InputError`.
     """
-    from .excel import EXCEL_SUFFIXES, read_excel_series
-    from .waterml2 import XML_SUFFIXES, read_waterml2_series
+    from .formats import reader
 
-    suffix = spec.file.suffix.lower()
-    if suffix in EXCEL_SUFFIXES:
-        return read_excel_series(spec, what)
-    if suffix in XML_SUFFIXES:
-        return read_waterml2_series(spec, what)
-    from .csv import read_csv_series
-
-    return read_csv_series(spec, what)
+    return reader(spec.file, "series", what)(spec, what)
 
 
 def default_statistic(role: str, conv: Conversion) -> str:

@@ -27,21 +27,19 @@ from ..units import to_si
 
 __all__ = ["read_storage", "storage_location", "source_of"]
 
-_TABLE_SUFFIXES = (".csv", ".txt", ".tsv", ".dat", ".xlsx", ".xlsm")
-
 
 def source_of(path: Path) -> str:
-    """``"table"`` or ``"contours"`` from a file's suffix (for a comparison survey)."""
-    from .vector import VECTOR_SUFFIXES
+    """``"table"`` or ``"contours"`` from a file's format (for a comparison survey)."""
+    from .formats import format_of, suffixes
 
-    suffix = path.suffix.lower()
-    if suffix in _TABLE_SUFFIXES:
+    fmt = format_of(path)
+    if fmt is not None and fmt.reads("table"):
         return "table"
-    if suffix in VECTOR_SUFFIXES:
+    if fmt is not None and fmt.reads("vector"):
         return "contours"
     raise InputError(
-        f"cannot tell a table from a vector layer by the suffix '{suffix}' (tables: "
-        f"{', '.join(_TABLE_SUFFIXES)}; layers: {', '.join(VECTOR_SUFFIXES)})",
+        f"cannot tell a table from a vector layer by the suffix '{path.suffix.lower()}' (tables: "
+        f"{', '.join(suffixes('table'))}; layers: {', '.join(suffixes('vector'))})",
         file=path,
     )
 

@@ -14,8 +14,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from ..errors import InputError
-from ._text import TextTable, read_text_table
-from .excel import EXCEL_SUFFIXES, read_excel_table
+from ._text import TextTable
 
 if TYPE_CHECKING:  # pragma: no cover
     import pandas as pd
@@ -36,14 +35,17 @@ def read_raw_table(
 ) -> TextTable:
     """The requested columns of a CSV/text or .xlsx file, cells untouched, with file lines.
 
-    The format follows the suffix: ``.xlsx``/``.xlsm`` are workbooks, anything else delimited text.
+    The format follows the suffix (:data:`lakebalance.io.formats.FORMATS`): ``.xlsx``/``.xlsm``
+    are workbooks, ``.csv``/``.txt``/``.tsv``/``.dat`` delimited text; any other suffix is an
+    :class:`~lakebalance.errors.InputError`.
     """
-    if Path(path).suffix.lower() in EXCEL_SUFFIXES:
-        return read_excel_table(path, columns, what=what, sheet=sheet)
-    return read_text_table(
+    from .formats import reader
+
+    return reader(path, "table", what)(
         path,
         columns,
         what=what,
+        sheet=sheet,
         delimiter=delimiter,
         decimal=decimal,
         encoding=encoding,
@@ -107,7 +109,8 @@ def read_table(
     Parameters
     ----------
     path : str or Path
-        The file; ``.xlsx``/``.xlsm`` are read as workbooks, anything else as delimited text.
+        The file; ``.xlsx``/``.xlsm`` are read as workbooks, ``.csv``/``.txt``/``.tsv``/``.dat``
+        as delimited text (:mod:`lakebalance.io.formats`).
     columns : dict of str to str
         Our name -> the user's column (a header name, or a 1-based column number as text).
     what : str

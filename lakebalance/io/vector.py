@@ -30,7 +30,6 @@ if TYPE_CHECKING:  # pragma: no cover
     import pyproj
 
 __all__ = [
-    "VECTOR_SUFFIXES",
     "ContourAreas",
     "read_layer",
     "equal_area_crs",
@@ -39,9 +38,6 @@ __all__ = [
     "read_outline",
     "layer_centroid",
 ]
-
-#: File suffixes read as vector layers.
-VECTOR_SUFFIXES = (".gpkg", ".shp", ".geojson", ".json", ".fgb", ".gml", ".kml", ".zip")
 
 
 def read_layer(path: str | Path, *, layer: str | None = None, what: str) -> gpd.GeoDataFrame:
@@ -95,6 +91,13 @@ def read_layer(path: str | Path, *, layer: str | None = None, what: str) -> gpd.
     except InputError as exc:
         raise InputError(f"{what}: {exc.message}", file=path) from None
     return frame
+
+
+def _read(path: str | Path, layer: str | None, what: str) -> gpd.GeoDataFrame:
+    """The layer through the reader of its format (:mod:`lakebalance.io.formats`)."""
+    from .formats import reader
+
+    return reader(path, "vector", what)(path, layer=layer, what=what)
 
 
 def equal_area_crs(frame: gpd.GeoDataFrame) -> pyproj.CRS:
@@ -272,7 +275,7 @@ def read_contours(
     import shapely
 
     path = Path(path)
-    frame = read_layer(path, layer=layer, what=what)
+    frame = _read(path, layer, what)
     if elevation_field not in frame.columns:
         fields = [c for c in frame.columns if c != frame.geometry.name]
         raise InputError(
@@ -359,7 +362,7 @@ def read_outline(
     import shapely
 
     path = Path(path)
-    frame = read_layer(path, layer=layer, what=what)
+    frame = _read(path, layer, what)
     polygons, _ = _polygons_of(frame, path, what)
     crs = equal_area_crs(frame)
     projected = gpd.GeoSeries(polygons, crs=frame.crs).to_crs(crs).to_numpy()
@@ -390,7 +393,7 @@ def layer_centroid(path: str | Path, *, layer: str | None = None) -> tuple[float
     """
     import shapely
 
-    frame = read_layer(path, layer=layer, what="vector layer")
+    frame = _read(path, layer, "vector layer")
     crs = equal_area_crs(frame)
     union = shapely.union_all(frame.to_crs(crs).geometry.to_numpy())
     return _to_lonlat(union.centroid, crs)

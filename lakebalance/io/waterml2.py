@@ -19,9 +19,8 @@ from ..config import SeriesSpec
 from ..errors import InputError
 from ._raw import RawSeries
 
-__all__ = ["XML_SUFFIXES", "NS", "ucum_to_unit", "read_waterml2_series"]
+__all__ = ["NS", "ucum_to_unit", "read_waterml2_series"]
 
-XML_SUFFIXES = (".xml", ".wml", ".wml2")
 
 NS = {
     "wml2": "http://www.opengis.net/waterml/2.0",

@@ -34,7 +34,6 @@ Seber, G. A. F. and Wild, C. J. (1989). Nonlinear Regression. Wiley.
 
 from __future__ import annotations
 
-import itertools
 import warnings
 from collections.abc import Mapping
 from dataclasses import dataclass, field
@@ -44,20 +43,27 @@ from typing import TYPE_CHECKING, Any, Literal
 import numpy as np
 
 from ..errors import ConfigError, DataQualityWarning, FitError, suggest
-from .laws import (
-    CompoundLaw,
-    Law,
-    PowerFamilyLaw,
-    Rating,
-    SegmentedLaw,
-    discharge_with,
-)
+from ..results import Summary, estimate
+from .laws import GaugedStages, Law, Rating, discharge_with
 from .nls import covariance_from_jacobian, solve_least_squares
 
 if TYPE_CHECKING:  # pragma: no cover
     import pandas as pd
 
-__all__ = ["FitOptions", "RatingFit", "Prediction", "RatingSummary", "fit_rating_curve"]
+__all__ = [
+    "CAUTION",
+    "FitOptions",
+    "RatingFit",
+    "Prediction",
+    "RatingSummary",
+    "fit_rating_curve",
+]
+
+CAUTION = (
+    "Rating curves beyond the gauged range are extrapolations. Where outflows inform dam "
+    "safety, spillway capacity, flood levels or public water supply, defer to local codes and "
+    "a licensed professional engineer."
+)
 
 Array = np.ndarray
 Residuals = Literal["log", "linear"]
@@ -113,29 +119,39 @@ class Prediction:
         )
 
 
-@dataclass(frozen=True)
-class RatingSummary:
-    """The summary of a fit; renders as text (``str``) or HTML (``_repr_html_``)."""
+class RatingSummary(Summary):
+    """The summary of a fit: text (a :class:`~lakebalance.results.Summary`, so a ``str``) that
+    renders as tables in a notebook (``_repr_html_``).
 
-    title: str
-    rows: tuple[tuple[str, float, float, float, float, bool], ...]  # name, value, se, lo, hi, fixed
+    Parameters
+    ----------
+    title : str
+        The heading.
+    rows : tuple
+        ``(name, value, stderr, lower, upper, fixed)`` of every parameter (SI).
+    facts : tuple
+        ``(label, text)`` pairs: form, residuals, gaugings, statistics.
+    notes : tuple of str
+        The fit's warnings.
+    """
+
+    rows: tuple[tuple[str, float, float, float, float, bool], ...]
     facts: tuple[tuple[str, str], ...]
     notes: tuple[str, ...]
 
-    def __str__(self) -> str:
-        lines = [self.title, "=" * len(self.title)]
-        lines += [f"{k:<28s} {v}" for k, v in self.facts]
-        lines.append("")
-        lines.append(f"{'parameter':<18s}{'value':>14s}{'std. error':>14s}{'95% interval':>30s}")
-        for name, v, se, lo, hi, fixed in self.rows:
-            if fixed:
-                lines.append(f"{name:<18s}{v:>14.6g}{'(fixed)':>14s}")
-            else:
-                lines.append(f"{name:<18s}{v:>14.6g}{se:>14.4g}{f'[{lo:.6g}, {hi:.6g}]':>30s}")
-        if self.notes:
-            lines.append("")
-            lines += [f"note: {n}" for n in self.notes]
-        return "\n".join(lines)
+    def __new__(
+        cls,
+        title: str,
+        rows: tuple[tuple[str, float, float, float, float, bool], ...],
+        facts: tuple[tuple[str, str], ...],
+        notes: tuple[str, ...],
+    ) -> RatingSummary:
+        obj = super().__new__(cls, _rating_text(title, rows, facts, notes), title)
+        obj.rows, obj.facts, obj.notes = tuple(rows), tuple(facts), tuple(notes)
+        return obj
+
+    def __getnewargs__(self):  # pickling: rebuild from the parts
+        return (self.title, self.rows, self.facts, self.notes)
 
     def _repr_html_(self) -> str:
         from html import escape
@@ -157,6 +173,23 @@ class RatingSummary:
             f"<table><tr><th>parameter</th><th>value</th><th>std. error</th><th>95% interval</th>"
             f"</tr>{rows}</table>" + (f"<ul>{notes}</ul>" if notes else "")
         )
+
+
+def _rating_text(title: str, rows, facts, notes) -> str:
+    """The plain text of a :class:`RatingSummary`."""
+    lines = [title, "=" * len(title)]
+    lines += [f"{k:<28s} {v}" for k, v in facts]
+    lines.append("")
+    lines.append(f"{'parameter':<18s}{'value':>14s}{'std. error':>14s}{'95% interval':>30s}")
+    for name, v, se, lo, hi, fixed in rows:
+        if fixed:
+            lines.append(f"{name:<18s}{v:>14.6g}{'(fixed)':>14s}")
+        else:
+            lines.append(f"{name:<18s}{v:>14.6g}{se:>14.4g}{f'[{lo:.6g}, {hi:.6g}]':>30s}")
+    if notes:
+        lines.append("")
+        lines += [f"note: {n}" for n in notes]
+    return "\n".join(lines)
 
 
 @dataclass(frozen=True)
@@ -389,17 +422,45 @@ class RatingFit:
 
     # ---- reporting ---------------------------------------------------------------------
     def parameter_table(self, alpha: float = 0.05) -> dict[str, dict[str, Any]]:
-        """``{name: {value, stderr, ci95: [lo, hi], fixed}}`` (SI)."""
+        """``{name: {value, stderr, ci95: [lo, hi], unit, fixed}}`` (SI): the shared estimate
+        shape (:class:`~lakebalance.results.Estimate`, Wald interval with Student t) and whether
+        the parameter was held fixed."""
         ci = self.conf_int(alpha)
+        units = self.law.param_units
         return {
             n: {
-                "value": self.params[n],
-                "stderr": self.stderr[n],
-                "ci95": list(ci[n]),
+                **estimate(self.params[n], self.stderr[n], *ci[n], unit=units[n]).to_dict(),
                 "fixed": not f,
             }
             for n, f in zip(self.param_names, self.free)
         }
+
+    def to_dict(self) -> dict[str, Any]:
+        """The fit's part of ``lakebalance rating --json`` (SI).
+
+        ``form``, ``residuals``, ``parameters`` (:meth:`parameter_table`), ``derived``, ``n``,
+        ``dof``, ``se_percent``, ``gauged_range`` (m), ``zero_flow_stage_m``, ``bootstrap``
+        (refits kept), ``warnings``, ``caution``. The command adds the site, the seed, the
+        rating-shift test and the extrapolation check.
+        """
+        return {
+            "form": self.form,
+            "residuals": self.residuals,
+            "parameters": self.parameter_table(),
+            "derived": self.derived,
+            "n": self.n,
+            "dof": self.dof,
+            "se_percent": self.se_percent,
+            "gauged_range": list(self.gauged_range),
+            "zero_flow_stage_m": self.zero_flow_stage_m,
+            "bootstrap": 0 if self.bootstrap_params is None else int(len(self.bootstrap_params)),
+            "warnings": list(self.warnings),
+            "caution": CAUTION,
+        }
+
+    def to_frame(self) -> pd.DataFrame:
+        """The gaugings table (:attr:`table`): one row per gauging, fitted value and residual."""
+        return self.table.copy()
 
     def summary(self) -> RatingSummary:
         """Parameters with standard errors and 95% intervals, and the fit statistics."""
@@ -426,58 +487,6 @@ class RatingFit:
 # --------------------------------------------------------------------------------------------
 # Fitting
 # --------------------------------------------------------------------------------------------
-def _components(law: Law) -> list[tuple[str, PowerFamilyLaw, int]]:
-    """(prefix, law, offset of its first parameter) of every power-family part of ``law``."""
-    if isinstance(law, PowerFamilyLaw):
-        return [("", law, 0)]
-    out, i = [], 0
-    parts = law.components if isinstance(law, CompoundLaw) else law.segments  # type: ignore[union-attr]
-    for j, (name, sub) in enumerate(parts):
-        out.append((f"{name}.", sub, i - (1 if isinstance(law, SegmentedLaw) and j else 0)))
-        i += len(sub.param_names) - (1 if isinstance(law, SegmentedLaw) and j else 0)
-    return out
-
-
-def _profile_start(
-    h: Array, q: Array, w: Array, law: PowerFamilyLaw, e_lo: float, e_hi: float, fixed: dict
-) -> dict[str, float]:
-    """Starting values of one power-family law: a profile over the datum with a log-linear fit.
-
-    For each trial datum e, ``ln Q = ln(c·factor) + b ln(h - e)`` is linear in ``ln c`` and
-    ``b``; the datum with the smallest weighted sum of squares wins (common practice, no source).
-    """
-    pos = q > 0
-    h, y, w = h[pos], np.log(q[pos]), w[pos]
-    hmin, span = float(h.min()), float(np.ptp(h)) or max(abs(float(h.min())), 1.0)
-    dn = law.datum_name
-    if dn in fixed:
-        grid = np.array([fixed[dn]])
-    else:
-        depth = np.geomspace(1e-3 * span, 20 * span, 80)
-        grid = hmin - depth
-        grid = grid[(grid >= e_lo) & (grid <= e_hi)]
-        if grid.size == 0:
-            grid = np.array([min(max(e_lo, hmin - span), e_hi)])
-    x = np.log(np.maximum(h[None, :] - grid[:, None], 1e-300))  # (g, n)
-    sw = w / w.sum()
-    xm = (x * sw).sum(1, keepdims=True)
-    ym = (y * sw).sum()
-    if law.exponent is not None or "b" in fixed:
-        b = np.full(grid.size, law.exponent if law.exponent is not None else fixed["b"])
-    else:
-        sxx = ((x - xm) ** 2 * sw).sum(1)
-        sxy = ((x - xm) * (y - ym) * sw).sum(1)
-        b = np.where(sxx > 0, sxy / np.where(sxx > 0, sxx, 1), 1.0)
-        b = np.clip(b, 0.05, 20.0)
-    a = ym - b * xm[:, 0]
-    sse = (((y[None, :] - a[:, None] - b[:, None] * x) ** 2) * sw).sum(1)
-    i = int(np.nanargmin(sse))
-    out = {law.coef_name: float(np.exp(a[i]) / law.factor), dn: float(grid[i])}
-    if law.exponent is None:
-        out["b"] = float(b[i])
-    return out
-
-
 def _check_names(names: tuple[str, ...], given: Mapping[str, Any], what: str) -> None:
     for key in given:
         if key not in names:
@@ -513,6 +522,221 @@ def _clean(
                 notes[i] = why
             msgs.append(f"{int(mask.sum())} gauging(s) excluded: {why}")
     return h, q, w, used, notes, msgs
+
+
+@dataclass(frozen=True)
+class _Gaugings:
+    """The gaugings as the fit uses them: usable rows, rows with flow, the zero-flow bound."""
+
+    h: Array  # stage, m
+    q: Array  # discharge, m³/s
+    w: Array  # weight, -
+    used: Array  # bool: usable
+    flowing: Array  # bool: usable with flow
+    in_resid: Array  # bool: in the residuals
+    notes: list[str]
+    msgs: list[str]
+    stages: GaugedStages
+    dates: pd.Series
+
+
+def _gaugings(stage_m, discharge_m3s, weights, dates, residuals: str) -> _Gaugings:
+    """Usable rows, zero-flow gaugings that bound the datums, and the contradictory ones."""
+    import pandas as pd
+
+    h, q, w, used, notes, msgs = _clean(stage_m, discharge_m3s, weights)
+    if dates is None:
+        date_col = pd.Series(pd.NaT, index=range(h.size), dtype="datetime64[ns]")
+    else:
+        date_col = pd.Series(pd.to_datetime(np.asarray(dates).ravel()))
+        if date_col.size != h.size:
+            raise FitError("dates and gaugings differ in length")
+    flowing = used & (q > 0)
+    if not flowing.any():
+        raise FitError(
+            "no gauging with flow: a rating cannot be fitted from zero-flow gaugings alone"
+            if used.any()
+            else "no usable gauging (all are missing or negative)"
+        )
+    hmin_flow = float(h[flowing].min())
+    zero = used & (q == 0)
+    if zero.any():
+        bad = zero & (h >= hmin_flow)
+        if bad.any():
+            used &= ~bad
+            for i in np.flatnonzero(bad):
+                notes[i] = "zero flow above a gauging with flow (contradiction)"
+            msgs.append(
+                f"{int(bad.sum())} zero-flow gauging(s) at or above {hmin_flow:.3f} m, the lowest "
+                "stage with flow, excluded as contradictory"
+            )
+            zero &= ~bad
+    zero_stage = float(h[zero].max()) if zero.any() else None
+    in_resid = flowing if residuals == "log" else used
+    for i in np.flatnonzero(zero & ~in_resid):
+        notes[i] = "zero flow: bounds the datum"
+    stages = GaugedStages(hmin_flow, zero_stage)
+    return _Gaugings(h, q, w, used, flowing, in_resid, notes, msgs, stages, date_col)
+
+
+def _bounds(law: Law, stages: GaugedStages, options: FitOptions) -> tuple[Array, Array]:
+    """The law's default bounds, narrowed by the user's."""
+    lo, hi = (np.array(b, dtype=float) for b in law.default_bounds(stages))
+    names = law.param_names
+    for key, (blo, bhi) in options.bounds.items():
+        idx = names.index(key)
+        if blo is not None:
+            lo[idx] = max(lo[idx], float(blo))
+        if bhi is not None:
+            hi[idx] = min(hi[idx], float(bhi))
+        if lo[idx] > hi[idx]:
+            raise ConfigError(f"rating: bounds of '{key}' leave no room ([{lo[idx]}, {hi[idx]}])")
+    return lo, hi
+
+
+def _check_identifiable(g: _Gaugings, kf: int) -> None:
+    """Enough gaugings, over enough distinct stages, for ``kf`` free parameters."""
+    n_used = int(g.in_resid.sum())
+    if n_used <= kf:
+        raise FitError(
+            f"{n_used} usable gauging(s) cannot fit {kf} free parameter(s) with any uncertainty; "
+            f"need at least {kf + 1}"
+        )
+    n_stages = np.unique(g.h[g.in_resid]).size
+    if n_stages < min(kf, 3) or n_stages < 2 and kf > 1:
+        raise FitError(
+            f"the gaugings span only {n_stages} distinct stage(s); {kf} free parameters need "
+            "gaugings over a range of stages"
+        )
+
+
+@dataclass(frozen=True)
+class _Problem:
+    """The least-squares problem of a fit: the gaugings in the residuals, the free parameters.
+
+    ``y`` is ``ln Q`` (log residuals) or ``Q``; ``sw`` the square roots of the weights; ``base``
+    holds the fixed values (NaN where free); ``lo``/``hi`` the bounds of every parameter.
+    """
+
+    law: Law
+    free: Array
+    base: Array
+    h: Array
+    y: Array
+    sw: Array
+    lo: Array
+    hi: Array
+    log: bool
+
+    def full_params(self, theta: Array) -> list[Array | float]:
+        p = self.base.copy()
+        p[self.free] = theta
+        return list(p)
+
+    def residual(self, theta: Array) -> Array:
+        f = self.law.discharge(self.full_params(theta), self.h)
+        if self.log:
+            with np.errstate(divide="ignore"):
+                f = np.log(f)
+        return self.sw * (self.y - f)
+
+    def jacobian(self, theta: Array) -> Array:
+        p = self.full_params(theta)
+        g = np.stack(np.broadcast_arrays(*self.law.gradient(p, self.h)), axis=-1)[:, self.free]
+        if self.log:
+            g = g / self.law.discharge(p, self.h)[:, None]
+        return -self.sw[:, None] * g
+
+
+def _solve(problem: _Problem, starts: list[Array]):
+    """The best least-squares solution over the starting vectors (smallest sum of squares)."""
+    free, lo, hi = problem.free, problem.lo, problem.hi
+    best = None
+    failures = []
+    for start in starts:
+        p0 = np.clip(start[free], lo[free], hi[free])
+        try:
+            res = solve_least_squares(
+                problem.residual, problem.jacobian, p0, bounds=(lo[free], hi[free])
+            )
+        except FitError as exc:
+            failures.append(exc.message)
+            continue
+        if best is None or res.rss < best.rss:
+            best = res
+    if best is None:
+        raise FitError("the rating fit did not converge: " + "; ".join(failures[:1]))
+    return best
+
+
+def _covariance(best, names, free: Array, zero_stage: float | None, msgs: list[str]) -> Array:
+    """Covariance of every parameter (zero for fixed ones and for those resting on a bound)."""
+    kf = int(free.sum())
+    theta = best.params
+    cov_free = best.cov
+    if best.active.any():
+        # parameters on a bound are held there: their variance is conditional (zero)
+        keep = ~best.active
+        sub, _ = covariance_from_jacobian(best.jacobian[:, keep], best.rss, best.dof)
+        cov_free = np.zeros((kf, kf))
+        cov_free[np.ix_(keep, keep)] = sub
+        fnames = [n for n, f in zip(names, free) if f]
+        for i in np.flatnonzero(best.active):
+            why = (
+                "the highest zero-flow gauging"
+                if zero_stage is not None and np.isclose(theta[i], zero_stage)
+                else "a bound"
+            )
+            msgs.append(
+                f"parameter {fnames[i]} = {theta[i]:.6g} rests on {why}; its standard error is "
+                "not estimated (held fixed there)"
+            )
+    if not np.all(np.isfinite(cov_free)):
+        msgs.append(
+            "some parameters are not identified by the gaugings (singular Jacobian): e.g. a "
+            "control whose datum lies above every gauging; their standard errors are undefined"
+        )
+    k = len(names)
+    cov = np.zeros((k, k))
+    cov[np.ix_(free, free)] = cov_free
+    return cov
+
+
+def _residual_table(g: _Gaugings, law: Law, pfull: Array, log: bool) -> pd.DataFrame:
+    """One row per gauging: date, stage, discharge, weight, fitted, residual, used, note."""
+    import pandas as pd
+
+    h, q, used = g.h, g.q, g.used
+    fitted = law.discharge(list(pfull), h)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        resid_all = np.where(used, np.log(q / fitted) if log else q - fitted, np.nan)
+    if log:
+        resid_all = np.where(used & (q > 0), resid_all, np.nan)
+    return pd.DataFrame(
+        {
+            "date": g.dates.to_numpy(),
+            "stage_m": h,
+            "discharge_m3s": q,
+            "weight": g.w,
+            "fitted_m3s": fitted,
+            "residual": resid_all,
+            "used": used,
+            "in_residuals": g.in_resid,
+            "note": g.notes,
+        }
+    )
+
+
+def _starting_values(law: Law, g: _Gaugings, lo: Array, hi: Array, options: FitOptions):
+    """The law's candidate starting vectors, with the user's initial and fixed values set."""
+    names = law.param_names
+    given = {**options.initial, **options.fixed}
+    f = g.flowing
+    starts = law.starting_values(g.h[f], g.q[f], g.w[f], lo, hi, given)
+    for vec in starts:
+        for key, value in given.items():
+            vec[names.index(key)] = value
+    return starts
 
 
 def fit_rating_curve(
@@ -572,304 +796,64 @@ def fit_rating_curve(
     >>> round(fit.params["b"], 3)
     1.6
     """
-    import pandas as pd
-
     options = options or FitOptions()
     names = law.param_names
-    k = len(names)
     for what in ("fixed", "initial", "bounds"):
         _check_names(names, getattr(options, what), what)
-    h, q, w, used, notes, msgs = _clean(stage_m, discharge_m3s, weights)
-    if dates is None:
-        date_col = pd.Series(pd.NaT, index=range(h.size), dtype="datetime64[ns]")
-    else:
-        date_col = pd.Series(pd.to_datetime(np.asarray(dates).ravel()))
-        if date_col.size != h.size:
-            raise FitError("dates and gaugings differ in length")
-
-    flowing = used & (q > 0)
-    if not flowing.any():
-        raise FitError(
-            "no gauging with flow: a rating cannot be fitted from zero-flow gaugings alone"
-            if used.any()
-            else "no usable gauging (all are missing or negative)"
-        )
-    hmin_flow = float(h[flowing].min())
-    zero = used & (q == 0)
-    if zero.any():
-        bad = zero & (h >= hmin_flow)
-        if bad.any():
-            used &= ~bad
-            for i in np.flatnonzero(bad):
-                notes[i] = "zero flow above a gauging with flow (contradiction)"
-            msgs.append(
-                f"{int(bad.sum())} zero-flow gauging(s) at or above {hmin_flow:.3f} m, the lowest "
-                "stage with flow, excluded as contradictory"
-            )
-            zero &= ~bad
-    zero_stage = float(h[zero].max()) if zero.any() else None
-    in_resid = flowing if options.residuals == "log" else used
-    for i in np.flatnonzero(zero & ~in_resid):
-        notes[i] = "zero flow: bounds the datum"
-
-    # ---- bounds ------------------------------------------------------------------------
-    lo = np.full(k, -np.inf)
-    hi = np.full(k, np.inf)
-    comps = _components(law)
-    for j, (prefix, sub, _off) in enumerate(comps):
-        seg = isinstance(law, SegmentedLaw)
-        for pname in sub.param_names:
-            full = prefix + pname
-            if full not in names:
-                continue  # a segment's coefficient set by continuity
-            idx = names.index(full)
-            if pname == sub.coef_name:
-                lo[idx] = 0.0
-            elif pname == "b":
-                lo[idx], hi[idx] = 1e-3, 50.0
-            elif pname == sub.datum_name:
-                if zero_stage is not None and (j == 0 or not seg):
-                    lo[idx] = zero_stage
-                if j == 0:
-                    hi[idx] = hmin_flow - 1e-9 * max(1.0, abs(hmin_flow))
-                if seg and j > 0:
-                    brk = law.breaks[j - 1]  # type: ignore[union-attr]
-                    hi[idx] = brk - 1e-6 * max(1.0, abs(brk))
-    for key, (blo, bhi) in options.bounds.items():
-        idx = names.index(key)
-        if blo is not None:
-            lo[idx] = max(lo[idx], float(blo))
-        if bhi is not None:
-            hi[idx] = min(hi[idx], float(bhi))
-        if lo[idx] > hi[idx]:
-            raise ConfigError(f"rating: bounds of '{key}' leave no room ([{lo[idx]}, {hi[idx]}])")
-
+    g = _gaugings(stage_m, discharge_m3s, weights, dates, options.residuals)
+    lo, hi = _bounds(law, g.stages, options)
     free = np.array([n not in options.fixed for n in names])
-    kf = int(free.sum())
-    n_used = int(in_resid.sum())
-    if n_used <= kf:
-        raise FitError(
-            f"{n_used} usable gauging(s) cannot fit {kf} free parameter(s) with any uncertainty; "
-            f"need at least {kf + 1}"
-        )
-    n_stages = np.unique(h[in_resid]).size
-    if n_stages < min(kf, 3) or n_stages < 2 and kf > 1:
-        raise FitError(
-            f"the gaugings span only {n_stages} distinct stage(s); {kf} free parameters need "
-            "gaugings over a range of stages"
-        )
+    _check_identifiable(g, int(free.sum()))
+    starts = _starting_values(law, g, lo, hi, options)
 
-    # ---- starting values -----------------------------------------------------------------
-    starts = _starting_values(law, h, q, w, flowing, lo, hi, options)
-
-    # ---- residuals and Jacobian ------------------------------------------------------------
-    hr, qr, swr = h[in_resid], q[in_resid], np.sqrt(w[in_resid])
-    base = np.array([options.fixed.get(n, np.nan) for n in names], dtype=float)
     log = options.residuals == "log"
-    yr = np.log(qr) if log else qr
-
-    def full_params(theta: Array) -> list[Array | float]:
-        p = base.copy()
-        p[free] = theta
-        return list(p)
-
-    def residual(theta: Array) -> Array:
-        f = law.discharge(full_params(theta), hr)
-        if log:
-            with np.errstate(divide="ignore"):
-                f = np.log(f)
-        return swr * (yr - f)
-
-    def jacobian(theta: Array) -> Array:
-        p = full_params(theta)
-        g = np.stack(np.broadcast_arrays(*law.gradient(p, hr)), axis=-1)[:, free]
-        if log:
-            g = g / law.discharge(p, hr)[:, None]
-        return -swr[:, None] * g
-
-    best = None
-    failures = []
-    for start in starts:
-        p0 = np.clip(start[free], lo[free], hi[free])
-        try:
-            res = solve_least_squares(residual, jacobian, p0, bounds=(lo[free], hi[free]))
-        except FitError as exc:
-            failures.append(exc.message)
-            continue
-        if best is None or res.rss < best.rss:
-            best = res
-    if best is None:
-        raise FitError("the rating fit did not converge: " + "; ".join(failures[:1]))
-
-    theta = best.params
-    cov_free = best.cov
-    if best.active.any():
-        # parameters on a bound are held there: their variance is conditional (zero)
-        keep = ~best.active
-        sub, _ = covariance_from_jacobian(best.jacobian[:, keep], best.rss, best.dof)
-        cov_free = np.zeros((kf, kf))
-        cov_free[np.ix_(keep, keep)] = sub
-        fnames = [n for n, f in zip(names, free) if f]
-        for i in np.flatnonzero(best.active):
-            why = (
-                "the highest zero-flow gauging"
-                if zero_stage is not None and np.isclose(theta[i], zero_stage)
-                else "a bound"
-            )
-            msgs.append(
-                f"parameter {fnames[i]} = {theta[i]:.6g} rests on {why}; its standard error is "
-                "not estimated (held fixed there)"
-            )
-    if not np.all(np.isfinite(cov_free)):
-        msgs.append(
-            "some parameters are not identified by the gaugings (singular Jacobian): e.g. a "
-            "control whose datum lies above every gauging; their standard errors are undefined"
-        )
-    cov = np.zeros((k, k))
-    cov[np.ix_(free, free)] = cov_free
-    pfull = np.array(full_params(theta), dtype=float)
-    params = {n: float(v) for n, v in zip(names, pfull)}
-    fitted = law.discharge(list(pfull), h)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        resid_all = np.where(used, np.log(q / fitted) if log else q - fitted, np.nan)
-    if log:
-        resid_all = np.where(used & (q > 0), resid_all, np.nan)
-    table = pd.DataFrame(
-        {
-            "date": date_col.to_numpy(),
-            "stage_m": h,
-            "discharge_m3s": q,
-            "weight": w,
-            "fitted_m3s": fitted,
-            "residual": resid_all,
-            "used": used,
-            "in_residuals": in_resid,
-            "note": notes,
-        }
+    r = g.in_resid
+    problem = _Problem(
+        law=law,
+        free=free,
+        base=np.array([options.fixed.get(n, np.nan) for n in names], dtype=float),
+        h=g.h[r],
+        y=np.log(g.q[r]) if log else g.q[r],
+        sw=np.sqrt(g.w[r]),
+        lo=lo,
+        hi=hi,
+        log=log,
     )
-    derived = law.coefficients(list(pfull)) if isinstance(law, SegmentedLaw) else {}
+    best = _solve(problem, starts)
+    msgs = g.msgs
+    cov = _covariance(best, names, free, g.stages.highest_zero_flow_m, msgs)
+    pfull = np.array(problem.full_params(best.params), dtype=float)
     boot = boot_res = None
     if options.bootstrap > 0:
         if rng is None:
             raise FitError("a bootstrap needs a random generator (rng)")
-        boot, boot_res = _bootstrap(
-            law, names, free, base, theta, best, hr, yr, swr, lo, hi, log, options.bootstrap, rng
-        )
+        boot, boot_res = _bootstrap(problem, best, options.bootstrap, rng)
     for m in msgs:
         warnings.warn(f"rating: {m}", DataQualityWarning, stacklevel=2)
     return RatingFit(
         law=law,
-        params=params,
+        params={n: float(v) for n, v in zip(names, pfull)},
         param_names=names,
         cov=cov,
         free=tuple(bool(f) for f in free),
-        n=n_used,
+        n=int(r.sum()),
         dof=best.dof,
         sigma=best.sigma,
         residuals=options.residuals,
-        table=table,
+        table=_residual_table(g, law, pfull, log),
         lower=np.where(free, lo, pfull),
         upper=np.where(free, hi, pfull),
         warnings=tuple(msgs),
         bootstrap_params=boot,
         bootstrap_residuals=boot_res,
-        zero_flow_stage_m=zero_stage,
-        derived=derived,
+        zero_flow_stage_m=g.stages.highest_zero_flow_m,
+        derived=law.derived(list(pfull)),
     )
 
 
-def _starting_values(
-    law: Law,
-    h: Array,
-    q: Array,
-    w: Array,
-    flowing: Array,
-    lo: Array,
-    hi: Array,
-    options: FitOptions,
-) -> list[Array]:
-    """Candidate starting vectors (full parameter order): automatic, then user overrides."""
-    names = law.param_names
-    hf, qf, wf = h[flowing], q[flowing], w[flowing]
-
-    def overrides(vec: Array) -> Array:
-        for key, value in {**options.initial, **options.fixed}.items():
-            vec[names.index(key)] = value
-        return vec
-
-    def local_fixed(prefix: str) -> dict[str, float]:
-        given = {**options.initial, **options.fixed}
-        return {k[len(prefix) :]: v for k, v in given.items() if k.startswith(prefix)}
-
-    def bounds_of(full: str) -> tuple[float, float]:
-        i = names.index(full)
-        return lo[i], hi[i]
-
-    if isinstance(law, PowerFamilyLaw):
-        e_lo, e_hi = bounds_of(law.datum_name)
-        s = _profile_start(hf, qf, wf, law, e_lo, e_hi, local_fixed(""))
-        return [overrides(np.array([s[n] for n in names]))]
-
-    comps = law.components if isinstance(law, CompoundLaw) else law.segments  # type: ignore[union-attr]
-    first_name, first = comps[0]
-    later = comps[1:]
-    # candidate datums of the later controls: quantiles of the gauged stages (or given values)
-    quant = np.quantile(hf, [0.2, 0.35, 0.5, 0.65, 0.8, 0.92])
-    cand_lists = []
-    for j, (name, sub) in enumerate(later, start=1):
-        key = f"{name}.{sub.datum_name}"
-        dlo, dhi = bounds_of(key)
-        if key in options.initial or key in options.fixed:
-            cand_lists.append([{**options.initial, **options.fixed}[key]])
-        elif isinstance(law, SegmentedLaw):
-            brk = law.breaks[j - 1]
-            cand_lists.append(
-                list(np.clip(brk - np.array([0.05, 0.3, 1.0]) * np.ptp(hf), dlo, dhi))
-            )
-        else:
-            cand_lists.append(list(np.clip(quant, dlo, dhi)))
-    combos = list(itertools.product(*cand_lists))[:60]
-    out = []
-    for combo in combos:
-        vec = np.full(len(names), np.nan)
-        # first control: gaugings below the lowest later datum (all if too few)
-        below = hf < (min(combo) if isinstance(law, CompoundLaw) else law.breaks[0])
-        sel = below if below.sum() >= 3 else np.ones_like(below)
-        e_lo, e_hi = bounds_of(f"{first_name}.{first.datum_name}")
-        s0 = _profile_start(
-            hf[sel], qf[sel], wf[sel], first, e_lo, e_hi, local_fixed(f"{first_name}.")
-        )
-        for p, v in s0.items():
-            vec[names.index(f"{first_name}.{p}")] = v
-        for (name, sub), d in zip(later, combo):
-            vec[names.index(f"{name}.{sub.datum_name}")] = d
-            if "b" in sub.param_names:
-                vec[names.index(f"{name}.b")] = 1.5
-            cname = f"{name}.{sub.coef_name}"
-            if cname in names:
-                q1 = first.discharge([s0[p] for p in first.param_names], hf)
-                above = hf > d
-                g = sub.discharge([1.0, d] + ([1.5] if sub.exponent is None else []), hf)
-                ratio = (qf - q1)[above] / np.maximum(g[above], 1e-300)
-                ratio = ratio[ratio > 0]
-                vec[names.index(cname)] = float(np.median(ratio)) if ratio.size else 1.0
-        out.append(overrides(vec))
-    return out
-
-
 def _bootstrap(
-    law: Law,
-    names: tuple[str, ...],
-    free: Array,
-    base: Array,
-    theta: Array,
+    problem: _Problem,
     best,
-    h: Array,
-    y: Array,
-    sw: Array,
-    lo: Array,
-    hi: Array,
-    log: bool,
     n_boot: int,
     rng: np.random.Generator,
     iterations: int = 40,
@@ -880,6 +864,16 @@ def _bootstrap(
     resampling; each replicate starts at the estimate and takes damped Gauss-Newton steps with
     its own damping factor, accepting a step only when it lowers that replicate's sum of squares.
     """
+    law, free, base, h, y, sw = (
+        problem.law,
+        problem.free,
+        problem.base,
+        problem.h,
+        problem.y,
+        problem.sw,
+    )
+    lo, hi, log = problem.lo, problem.hi, problem.log
+    theta = best.params
     n = h.size
     kf = int(free.sum())
     e = best.residuals  # sqrt(w) * (y - f): homoscedastic
@@ -893,7 +887,7 @@ def _bootstrap(
     def evaluate(t: Array) -> tuple[Array, Array]:
         p = []
         fi = 0
-        for j in range(len(names)):
+        for j in range(free.size):
             if free[j]:
                 p.append(t[:, fi : fi + 1])
                 fi += 1

@@ -16,6 +16,12 @@ segmented  Q = Q_i(h) on (B_(i-1), B_i]            first segment free; later one
                                                    their coefficient set by continuity
 =========  ======================================  =====================================
 
+Each law knows what a fit needs of it (:class:`Law`): its parameter names and units, the
+discharge and its exact Jacobian, default bounds from what the gaugings say about its datums
+(:class:`GaugedStages`), automatic starting values from the gaugings, and the quantities its
+parameters imply. :data:`LAWS` is the one table from a form's name to the law it builds, read by
+:func:`law_from_options`.
+
 Notes
 -----
 The power law is the general control form of rating practice (ISO 1100-2, 2010, eq. 1, with
@@ -40,17 +46,26 @@ Determination of the stage-discharge relationship.
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
-from typing import Literal, Protocol
+from typing import Any, Literal, Protocol
 
 import numpy as np
 
 from ..errors import ConfigError
+from .starts import (
+    controls_start,
+    parallel_datum_candidates,
+    profile_start,
+    segment_datum_candidates,
+)
 
 __all__ = [
     "Form",
     "Law",
+    "GaugedStages",
+    "LawEntry",
+    "LAWS",
     "PowerFamilyLaw",
     "CompoundLaw",
     "SegmentedLaw",
@@ -98,6 +113,50 @@ class Law(Protocol):
         """Parameters that are stages (m): the datum below which a control gives no flow."""
         ...
 
+    @property
+    def param_units(self) -> dict[str, str]:
+        """Unit of each parameter (``"-"`` when dimensionless)."""
+        ...
+
+    def default_bounds(self, stages: GaugedStages) -> tuple[Array, Array]:
+        """Lower and upper bound of each parameter (SI), before the user's bounds."""
+        ...
+
+    def starting_values(
+        self,
+        h: Array,
+        q: Array,
+        w: Array,
+        lower: Array,
+        upper: Array,
+        given: Mapping[str, float],
+    ) -> list[Array]:
+        """Candidate starting vectors (``param_names`` order) from the gaugings with flow:
+        stages ``h`` (m), discharges ``q`` (m³/s), weights ``w`` (-), within the bounds;
+        ``given`` holds initial and fixed values by name (the fit sets those afterwards)."""
+        ...
+
+    def derived(self, p: Params) -> dict[str, float]:
+        """Quantities implied by the parameters (SI), e.g. coefficients set by continuity."""
+        ...
+
+
+@dataclass(frozen=True)
+class GaugedStages:
+    """What the gaugings say about where the datums of the controls can lie.
+
+    Parameters
+    ----------
+    lowest_flow_m : float
+        Lowest stage of a gauging with flow, m: the first control's datum lies below it.
+    highest_zero_flow_m : float or None
+        Highest stage of a zero-flow gauging, m: a control that is dry there has its datum at or
+        above it (common practice, no source).
+    """
+
+    lowest_flow_m: float
+    highest_zero_flow_m: float | None = None
+
 
 @dataclass(frozen=True)
 class PowerFamilyLaw:
@@ -114,6 +173,7 @@ class PowerFamilyLaw:
     exponent: float | None = None
     factor: float = 1.0
     geometry: Mapping[str, float] = field(default_factory=dict)
+    coef_unit: str | None = None  # default: m^(3-b)/s, or m^(3-exponent)/s with a fixed one
 
     @property
     def param_names(self) -> tuple[str, ...]:
@@ -122,6 +182,70 @@ class PowerFamilyLaw:
 
     def datum_names(self) -> tuple[str, ...]:
         return (self.datum_name,)
+
+    @property
+    def param_units(self) -> dict[str, str]:
+        """The coefficient's unit makes Q m³/s; the datum is a stage (m); b is dimensionless."""
+        if self.coef_unit is not None:
+            coef = self.coef_unit
+        elif self.exponent is None:
+            coef = "m^(3-b)/s"
+        else:
+            coef = f"m^{3.0 - self.exponent:g}/s"
+        units = {self.coef_name: coef, self.datum_name: "m"}
+        if self.exponent is None:
+            units["b"] = "-"
+        return units
+
+    def control_bounds(
+        self,
+        stages: GaugedStages,
+        *,
+        first: bool = True,
+        below_m: float | None = None,
+        floor_at_zero_flow: bool = True,
+    ) -> dict[str, tuple[float, float]]:
+        """Default bounds of this control's parameters as one control among others.
+
+        The coefficient is positive and ``b`` lies in [0.001, 50]; the datum lies at or above
+        the highest zero-flow gauging (``floor_at_zero_flow``), below the lowest gauging with
+        flow when the control is the ``first`` (lowest) one, and below ``below_m`` (a segment's
+        lower break, m) when given (common practice, no source).
+        """
+        out = {self.coef_name: (0.0, math.inf)}
+        if self.exponent is None:
+            out["b"] = (1e-3, 50.0)
+        lo, hi = -math.inf, math.inf
+        if stages.highest_zero_flow_m is not None and floor_at_zero_flow:
+            lo = stages.highest_zero_flow_m
+        if first:
+            hmin = stages.lowest_flow_m
+            hi = hmin - 1e-9 * max(1.0, abs(hmin))
+        if below_m is not None:
+            hi = below_m - 1e-6 * max(1.0, abs(below_m))
+        out[self.datum_name] = (lo, hi)
+        return out
+
+    def default_bounds(self, stages: GaugedStages) -> tuple[Array, Array]:
+        """Bounds of a single control (see :meth:`control_bounds`), in ``param_names`` order."""
+        return _arrays(self.control_bounds(stages), self.param_names)
+
+    def starting_values(
+        self,
+        h: Array,
+        q: Array,
+        w: Array,
+        lower: Array,
+        upper: Array,
+        given: Mapping[str, float],
+    ) -> list[Array]:
+        """One start: the datum profile of :func:`~lakebalance.outlet.starts.profile_start`."""
+        i = self.param_names.index(self.datum_name)
+        s = profile_start(self, h, q, w, lower[i], upper[i], given)
+        return [np.array([s[n] for n in self.param_names])]
+
+    def derived(self, p: Params) -> dict[str, float]:
+        return {}
 
     def _parts(self, p: Params, stage_m: Array) -> tuple[Array, Array, Array, Array]:
         coef = np.asarray(p[0], dtype=float)
@@ -163,7 +287,9 @@ def weir_law(length_m: float) -> PowerFamilyLaw:
     """Rectangular weir ``Q = Cw L (h - crest)^1.5``; ``length_m`` the crest length L (m)."""
     if not (length_m > 0):
         raise ConfigError(f"weir crest length must be positive, got {length_m!r} m")
-    return PowerFamilyLaw("weir", "Cw", "crest", 1.5, float(length_m), {"length": length_m})
+    return PowerFamilyLaw(
+        "weir", "Cw", "crest", 1.5, float(length_m), {"length": length_m}, coef_unit="m^0.5/s"
+    )
 
 
 def vnotch_law(angle_deg: float) -> PowerFamilyLaw:
@@ -178,6 +304,13 @@ def vnotch_law(angle_deg: float) -> PowerFamilyLaw:
 def orifice_law() -> PowerFamilyLaw:
     """Orifice or short pipe ``Q = K (h - e)^0.5``; e the orifice centre stage (m), may be < 0."""
     return PowerFamilyLaw("orifice", "K", "e", 0.5)
+
+
+def _arrays(bounds: Mapping[str, tuple[float, float]], names: Sequence[str]):
+    """``(lower, upper)`` arrays in ``names`` order from ``{name: (lower, upper)}``."""
+    lo = np.array([bounds[n][0] for n in names], dtype=float)
+    hi = np.array([bounds[n][1] for n in names], dtype=float)
+    return lo, hi
 
 
 def _split(law_sizes: Sequence[int], p: Params) -> list[Params]:
@@ -204,6 +337,44 @@ class CompoundLaw:
 
     def datum_names(self) -> tuple[str, ...]:
         return tuple(f"{name}.{law.datum_name}" for name, law in self.components)
+
+    @property
+    def param_units(self) -> dict[str, str]:
+        return {f"{n}.{p}": u for n, law in self.components for p, u in law.param_units.items()}
+
+    def default_bounds(self, stages: GaugedStages) -> tuple[Array, Array]:
+        """Each control as in :meth:`PowerFamilyLaw.control_bounds`; only the first (lowest)
+        one must have its datum below the lowest gauging with flow."""
+        bounds = {
+            f"{name}.{p}": b
+            for j, (name, law) in enumerate(self.components)
+            for p, b in law.control_bounds(stages, first=j == 0).items()
+        }
+        return _arrays(bounds, self.param_names)
+
+    def starting_values(
+        self,
+        h: Array,
+        q: Array,
+        w: Array,
+        lower: Array,
+        upper: Array,
+        given: Mapping[str, float],
+    ) -> list[Array]:
+        """Later controls' datums tried at quantiles of the gauged stages; the first control
+        fitted to the gaugings below the lowest of them (:func:`~.starts.controls_start`)."""
+        return controls_start(
+            self.param_names,
+            self.components,
+            (h, q, w),
+            (lower, upper),
+            given,
+            datum_candidates=lambda j, hf, lo, hi: parallel_datum_candidates(hf, lo, hi),
+            first_below=min,
+        )
+
+    def derived(self, p: Params) -> dict[str, float]:
+        return {}
 
     def _sizes(self) -> list[int]:
         return [len(law.param_names) for _, law in self.components]
@@ -268,6 +439,57 @@ class SegmentedLaw:
 
     def datum_names(self) -> tuple[str, ...]:
         return tuple(f"{name}.{law.datum_name}" for name, law in self.segments)
+
+    @property
+    def param_units(self) -> dict[str, str]:
+        names = set(self.param_names)
+        return {
+            f"{n}.{p}": u
+            for n, law in self.segments
+            for p, u in law.param_units.items()
+            if f"{n}.{p}" in names
+        }
+
+    def default_bounds(self, stages: GaugedStages) -> tuple[Array, Array]:
+        """The first segment as a first control; every later one has its datum below its lower
+        break and not bounded by zero-flow gaugings (its coefficient is set by continuity)."""
+        bounds: dict[str, tuple[float, float]] = {}
+        for j, (name, law) in enumerate(self.segments):
+            one = law.control_bounds(
+                stages,
+                first=j == 0,
+                below_m=self.breaks[j - 1] if j else None,
+                floor_at_zero_flow=j == 0,
+            )
+            bounds.update({f"{name}.{p}": b for p, b in one.items()})
+        return _arrays(bounds, self.param_names)
+
+    def starting_values(
+        self,
+        h: Array,
+        q: Array,
+        w: Array,
+        lower: Array,
+        upper: Array,
+        given: Mapping[str, float],
+    ) -> list[Array]:
+        """Later segments' datums tried below their breaks; the first segment fitted to the
+        gaugings below the first break (:func:`~.starts.controls_start`)."""
+        return controls_start(
+            self.param_names,
+            self.segments,
+            (h, q, w),
+            (lower, upper),
+            given,
+            datum_candidates=lambda j, hf, lo, hi: segment_datum_candidates(
+                hf, lo, hi, self.breaks[j - 1]
+            ),
+            first_below=lambda combo: self.breaks[0],
+        )
+
+    def derived(self, p: Params) -> dict[str, float]:
+        """The coefficients of the later segments (:meth:`coefficients`)."""
+        return self.coefficients(p)
 
     def _evaluate(self, p: Params, stage_m: Array, need_grad: bool):
         """Discharge, gradient list (or None) and dQ/dh over all segments."""
@@ -373,39 +595,94 @@ def segmented_law(
     return SegmentedLaw(tuple(segments), tuple(float(b) for b in breaks_m))
 
 
-def _single(form: str, length: float | None, angle: float | None, where: str) -> PowerFamilyLaw:
-    if form == "power":
-        return power_law()
-    if form == "orifice":
-        return orifice_law()
-    if form == "weir":
-        if length is None:
-            raise ConfigError(f"{where}: the weir form needs 'length' (crest length, m)")
-        return weir_law(length)
-    if form == "vnotch":
-        if angle is None:
-            raise ConfigError(f"{where}: the vnotch form needs 'angle' (notch angle, degrees)")
-        return vnotch_law(angle)
-    raise ConfigError(f"{where}: unknown outlet form {form!r}")
+def _power(options, where: str) -> PowerFamilyLaw:
+    return power_law()
+
+
+def _orifice(options, where: str) -> PowerFamilyLaw:
+    return orifice_law()
+
+
+def _weir(options, where: str) -> PowerFamilyLaw:
+    if options.length is None:
+        raise ConfigError(f"{where}: the weir form needs 'length' (crest length, m)")
+    return weir_law(options.length)
+
+
+def _vnotch(options, where: str) -> PowerFamilyLaw:
+    if options.angle is None:
+        raise ConfigError(f"{where}: the vnotch form needs 'angle' (notch angle, degrees)")
+    return vnotch_law(options.angle)
+
+
+def _controls(options) -> list[tuple[str, PowerFamilyLaw]]:
+    """The controls of ``[[outlet.component]]``, each built by its entry of :data:`LAWS`."""
+    comps = options.component
+    if not comps:
+        raise ConfigError(f"[outlet] form = '{options.form}' needs [[outlet.component]] tables")
+    out = []
+    for c in comps:
+        where = f"[[outlet.component]] '{c.name}'"
+        entry = LAWS.get(c.form)
+        if entry is None or entry.combines:
+            raise ConfigError(f"{where}: unknown outlet form {c.form!r}")
+        out.append((c.name, entry.build(c, where)))
+    return out
+
+
+def _compound(options, where: str) -> CompoundLaw:
+    return compound_law(_controls(options))
+
+
+def _segmented(options, where: str) -> SegmentedLaw:
+    controls = _controls(options)
+    uppers = [c.upper for c in options.component[:-1]]
+    if any(u is None for u in uppers):
+        raise ConfigError("segmented rating: every component but the last needs 'upper' (m)")
+    return segmented_law(controls, uppers)  # type: ignore[arg-type]
+
+
+@dataclass(frozen=True)
+class LawEntry:
+    """How a form named in the site file becomes a law.
+
+    Parameters
+    ----------
+    form : str
+        The name (``form`` of ``[outlet]`` or ``[[outlet.component]]``).
+    build : callable
+        ``build(options, where) -> Law`` from an options object with the keys of ``[outlet]``
+        (``length``, ``angle``, ``component``, ...); ``where`` names the section in errors.
+    combines : bool
+        Whether the law combines the ``[[outlet.component]]`` controls (compound, segmented)
+        rather than being one control.
+    """
+
+    form: str
+    build: Callable[[Any, str], Law]
+    combines: bool = False
+
+
+#: Every outlet law, by the name the site file gives it.
+LAWS: dict[str, LawEntry] = {
+    e.form: e
+    for e in (
+        LawEntry("power", _power),
+        LawEntry("weir", _weir),
+        LawEntry("vnotch", _vnotch),
+        LawEntry("orifice", _orifice),
+        LawEntry("compound", _compound, combines=True),
+        LawEntry("segmented", _segmented, combines=True),
+    )
+}
 
 
 def law_from_options(options) -> Law:
     """The law an ``[outlet]`` section describes (:class:`~lakebalance.config.OutletOptions`)."""
-    if options.form in ("compound", "segmented"):
-        comps = options.component
-        if not comps:
-            raise ConfigError(f"[outlet] form = '{options.form}' needs [[outlet.component]] tables")
-        laws = [
-            (c.name, _single(c.form, c.length, c.angle, f"[[outlet.component]] '{c.name}'"))
-            for c in comps
-        ]
-        if options.form == "compound":
-            return compound_law(laws)
-        uppers = [c.upper for c in comps[:-1]]
-        if any(u is None for u in uppers):
-            raise ConfigError("segmented rating: every component but the last needs 'upper' (m)")
-        return segmented_law(laws, uppers)  # type: ignore[arg-type]
-    return _single(options.form, options.length, options.angle, "[outlet]")
+    entry = LAWS.get(options.form)
+    if entry is None:
+        raise ConfigError(f"[outlet]: unknown outlet form {options.form!r}")
+    return entry.build(options, "[outlet]")
 
 
 @dataclass(frozen=True)

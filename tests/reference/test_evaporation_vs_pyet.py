@@ -29,7 +29,11 @@ import pytest
 
 pyet = pytest.importorskip("pyet", minversion="1.5")
 
-from lakebalance.evaporation import estimate_lake_evaporation, wind_at_2m  # noqa: E402
+from lakebalance.evaporation import (  # noqa: E402
+    EvaporationOptions,
+    estimate_lake_evaporation,
+    wind_at_2m,
+)
 
 RTOL = 0.01  # 1 % day by day
 ATOL_MM = 1e-6  # mm/d, for days where both are (clipped to) zero
@@ -78,15 +82,14 @@ LATITUDE, ELEVATION = 46.2, 420.0  # invented site
 
 
 def ours(weather: pd.DataFrame, method: str, **kw) -> pd.Series:
-    res = estimate_lake_evaporation(
-        weather,
-        latitude_deg=kw.pop("latitude", LATITUDE),
-        elevation_m=kw.pop("elevation", ELEVATION),
+    latitude, elevation = kw.pop("latitude", LATITUDE), kw.pop("elevation", ELEVATION)
+    options = EvaporationOptions(
         method=method,
         open_water_coefficient=1.0,  # compare the bare FAO-56 ET0
         fill="none",
         **kw,
     )
+    res = estimate_lake_evaporation(weather, options, latitude_deg=latitude, elevation_m=elevation)
     return res.by_method[method] * 1000.0  # m/d -> mm/d (test-side, for comparison only)
 
 
@@ -117,7 +120,7 @@ def test_penman_open_water_vs_pyet_1_5(radiation, humidity):
     w = invented_year()
     drop = ["sunshine" if radiation == "solar" else "solar", "dewpoint"]
     drop += ["rh"] if humidity == "extremes" else ["rh_max", "rh_min"]
-    mine = ours(w.drop(columns=drop), "penman", wind_height_m=10.0)
+    mine = ours(w.drop(columns=drop), "penman", wind_height=10.0)
     u2 = pd.Series(wind_at_2m(w["wind"], 10.0), index=w.index)
     rad = {"rs": w["solar"]} if radiation == "solar" else {"n": w["sunshine"]}
     ref = pyet.penman(
