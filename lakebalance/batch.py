@@ -124,7 +124,7 @@ def read_register(path: str | Path) -> list[tuple[Path, float | None, float | No
         if not isinstance(site_file, str) or not site_file.strip():
             raise InputError("empty site_file", file=path, line=i + start_line, column="site_file")
         p = Path(site_file.strip())
-        out.append(((p if p.is_absolute() else path.parent / p).resolve(), la, lo))
+        out.append((Path(os.path.realpath(p if p.is_absolute() else path.parent / p)), la, lo))
     return out
 
 

@@ -40,6 +40,7 @@ class OutletOptions(Options):
     discharge_units: str = "m**3/s"
     delimiter: str | None = None
     decimal: str = "."
+    encoding: str | None = None  # text encoding of a CSV table (UTF-8 when absent)
     dayfirst: bool = False
     form: Literal["power", "weir", "vnotch", "orifice", "compound", "segmented"] = "power"
     residuals: Literal["log", "linear"] = "log"
