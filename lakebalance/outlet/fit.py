@@ -44,6 +44,7 @@ from typing import TYPE_CHECKING, Any, Literal
 import numpy as np
 
 from ..errors import ConfigError, DataQualityWarning, FitError, suggest
+from ..resources import check_memory
 from .laws import (
     CompoundLaw,
     Law,
@@ -752,6 +753,13 @@ def fit_rating_curve(
     if options.bootstrap > 0:
         if rng is None:
             raise FitError("a bootstrap needs a random generator (rng)")
+        # resampled indices and data, the model, its Jacobian (three copies) per refit and point
+        check_memory(
+            8.0 * options.bootstrap * len(hr) * (6 + 3 * int(np.sum(free))),
+            option="bootstrap",
+            value=options.bootstrap,
+            what=f"the bootstrap refits of {len(hr)} gaugings",
+        )
         boot, boot_res = _bootstrap(
             law, names, free, base, theta, best, hr, yr, swr, lo, hi, log, options.bootstrap, rng
         )

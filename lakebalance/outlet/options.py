@@ -11,6 +11,9 @@ from ..options import Options, setting
 __all__ = ["OutletComponent", "OutletOptions"]
 
 
+MAX_BOOTSTRAP = 100_000  # refits; percentile intervals settle within a few thousand
+
+
 @dataclass(frozen=True)
 class OutletComponent(Options):
     """``[[outlet.component]]``: one control of a compound outlet (acting in parallel)."""
@@ -54,7 +57,7 @@ class OutletOptions(Options):
     )  # V-notch angle
     component: tuple[OutletComponent, ...] = ()  # compound/segmented controls
     shift_date: str | None = None  # ISO date for a before/after rating-shift test
-    bootstrap: int = setting(0, unit="refits", low=0)  # 0 = delta method only
+    bootstrap: int = setting(0, unit="refits", low=0, high=MAX_BOOTSTRAP)  # 0 = delta method only
 
     def fit_options(self):
         """The :class:`~lakebalance.outlet.fit.FitOptions` this section asks for (component keys
