@@ -115,12 +115,11 @@ class SeriesSpec(Options):
 
     def __post_init__(self) -> None:
         super().__post_init__()
-        if self.thousands is not None and self.thousands in (self.decimal, self.delimiter):
-            mark = "decimal mark" if self.thousands == self.decimal else "field delimiter"
+        if self.thousands is not None and self.thousands == self.decimal:
             raise OptionError(
                 "thousands",
-                f"'thousands' = {self.thousands!r} is also the {mark}; a number could not be "
-                "read from it unambiguously",
+                f"'thousands' = {self.thousands!r} is also the decimal mark; a number could not "
+                "be read from it unambiguously",
             )
 
 

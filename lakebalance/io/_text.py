@@ -230,8 +230,8 @@ def read_text_table(
     Extra fields at the end of a row are ignored; missing ones are empty.
 
     A number split by the delimiter (an unquoted ``1,234`` in a comma-delimited file) stops the
-    reading with its line: ``thousands`` names the separator the numbers may carry (they must
-    then be quoted in a comma-delimited file).
+    reading with its line. ``thousands`` is the separator the numbers may carry; it may be the
+    delimiter when such numbers are quoted (``"1,234"``), and is applied by the callers.
 
     Raises
     ------
@@ -282,12 +282,6 @@ def read_text_table(
     if decimal == delimiter:
         raise InputError(
             f"{what}: the decimal mark and the field delimiter are both {delimiter!r}",
-            file=file,
-        )
-    if thousands is not None and thousands == delimiter:
-        raise InputError(
-            f"{what}: the thousands separator and the field delimiter are both {delimiter!r}; "
-            "set 'delimiter' (or save the file with ';' between fields)",
             file=file,
         )
     if header_text.count(delimiter) >= MAX_COLUMNS:

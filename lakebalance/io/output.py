@@ -468,9 +468,25 @@ def write_bytes(path: str | Path, data: bytes) -> Path:
     return _write_with(path, lambda p: p.write_bytes(data))
 
 
+def _line_breaks(value: Any) -> Any:
+    if isinstance(value, str) and "\r" in value:
+        return value.replace("\r\n", "\n").replace("\r", "\n")
+    return value
+
+
 def write_csv(path: str | Path, frame: pd.DataFrame, *, index: bool = True) -> Path:
-    """Write a table as UTF-8 CSV atomically (dates ISO, NaN as empty), formula-safe."""
+    """Write a table as UTF-8 CSV atomically (dates ISO, NaN as empty), formula-safe.
+
+    A carriage return inside a text cell becomes a line feed, which the writer quotes (a bare
+    carriage return is not quoted and would split the row for some readers).
+    """
+    import pandas as pd
+
     safe = formula_safe(frame)
+    for i in range(safe.shape[1]):
+        col = safe.iloc[:, i]
+        if pd.api.types.is_object_dtype(col) or pd.api.types.is_string_dtype(col):
+            safe.isetitem(i, col.map(_line_breaks, na_action="ignore"))
     return _write_with(path, lambda p: safe.to_csv(p, index=index, date_format="%Y-%m-%d"))
 
 
