@@ -47,7 +47,7 @@ class BatchOptions(Options):
     # address space of one site's worker; default: the available memory shared by the workers
     site_memory: float | None = setting(None, unit="GiB", low=0.5)
     # how long to try to reach a Dask scheduler
-    scheduler_timeout: float = setting(10.0, unit="s", low=0.1, high=600.0)
+    scheduler_timeout: float = setting(5.0, unit="s", low=0.1, high=600.0)
 
 
 @dataclass(frozen=True)

@@ -227,7 +227,7 @@ def build_forcing(
     if days < 1:
         raise ConfigError(f"the forecast horizon must be at least one day, got {days}")
     last = pd.Timestamp.max.normalize() - pd.Timedelta(days=1)
-    if pd.Timestamp(start) + pd.Timedelta(days=min(int(days), 10**6)) > last or days > 10**6:
+    if (last - pd.Timestamp(start)).days < days:
         raise ConfigError(
             f"a horizon of {days:,} days from {pd.Timestamp(start).date()} ends after "
             f"{last.date()}, the last date the forecast can hold"

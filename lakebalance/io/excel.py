@@ -122,10 +122,19 @@ def scan_workbook(fh: BinaryIO, file: str, what: str) -> WorkbookScan:
                         if "externalLinks/_rels/" in info.filename and len(body) < 65536:
                             body += chunk
                         tail = chunk[-16:]
-            except (zipfile.BadZipFile, EOFError, zlib.error, NotImplementedError) as exc:
-                raise InputError(
-                    f"{what}: the workbook is corrupt ({info.filename}: {exc})", file=file
-                ) from None
+            except LakebalanceError:
+                raise
+            except (
+                zipfile.BadZipFile,
+                EOFError,
+                zlib.error,
+                NotImplementedError,
+                OSError,
+                ValueError,
+                RuntimeError,  # an encrypted part
+            ) as exc:
+                text = excerpt(f"{info.filename}: {exc}")
+                raise InputError(f"{what}: the workbook is corrupt ({text})", file=file) from None
             if has_formula and "worksheets/" in info.filename:
                 formulas.add(info.filename)
             if body:
