@@ -32,9 +32,9 @@ def _one_error(capsys) -> str:
 @pytest.mark.parametrize(
     ("argv", "needle"),
     [
-        (["balance", "--draws", "1000000000"], "'draws' must be between 0 and 1e+06"),
-        (["drawdown", "--members", "1000000000"], "'members' must be between 1 and 1e+06"),
-        (["drawdown", "--days", "1000000000"], "'days' must be between 1 and 36525"),
+        (["balance", "--draws", "1000000000"], "'draws' must be between 0 and 1,000,000"),
+        (["drawdown", "--members", "1000000000"], "'members' must be between 1 and 1,000,000"),
+        (["drawdown", "--days", "1000000000"], "'days' must be between 1 and 36,525"),
     ],
 )
 def test_a_billion_is_refused_by_the_declared_range(tmp_path, capsys, argv, needle):
@@ -47,7 +47,7 @@ def test_declared_limits_hold_in_the_site_file(tmp_path, capsys):
     site = write_site(tmp_path, extra_toml="\n[drawdown]\nrating_variants = 1000000\n")
     assert main(["check", str(site)]) == 2
     line = _one_error(capsys)
-    assert "'drawdown.rating_variants' must be between 1 and 100000" in line
+    assert "'drawdown.rating_variants' must be between 1 and 100,000" in line
     assert re.search(r"site\.toml:\d+:", line)
 
 
