@@ -157,10 +157,20 @@ def read_input(
 ) -> bytes:
     """The bytes of an input file (see :func:`open_input`); never more than ``limit``."""
     with open_input(path, what, limit=limit, error=error) as fh:
-        data = fh.read(limit + 1)
-    if len(data) > limit:  # the file grew while it was read
+        size = os.fstat(fh.fileno()).st_size
+        # read(n) reserves n bytes at once: ask for the file's size, not the limit (a worker's
+        # address-space limit would refuse 2 GiB for a small file)
+        chunks = [fh.read(size + 1)]
+        total = len(chunks[0])
+        while total > size and total <= limit:  # the file grew while it was read
+            more = fh.read(1 << 20)
+            if not more:
+                break
+            chunks.append(more)
+            total += len(more)
+    if total > limit:
         raise LimitError(f"{what}: the file is over the limit of {_size(limit)}", file=path)
-    return data
+    return chunks[0] if len(chunks) == 1 else b"".join(chunks)
 
 
 def _size(n: int) -> str:
