@@ -124,6 +124,11 @@ class Lake:
                 f"Monte Carlo draws must be 0 (no bands) or at least 2 for a 5-95% band, got {draws}",
                 file=site.path,
             )
+        if draws is not None:  # the declared range of [uncertainty] draws applies here too
+            try:
+                dataclasses.replace(site.uncertainty, draws=int(draws))
+            except LakebalanceError as exc:
+                raise _with_file(exc, site.path) from None
         self.draws = int(site.uncertainty.draws if draws is None else draws)
         self.members = members
         self.forecast_start = forecast_start

@@ -65,6 +65,7 @@ import pandas as pd
 
 from .errormodel import ResidualErrors, rating_variant_volumes
 from .options import Options, setting
+from .resources import check_memory
 from .results import Summary
 from .stats import gauss_legendre, water_year_of
 from .units import SECONDS_PER_DAY, factor
@@ -89,6 +90,9 @@ __all__ = [
 ]
 
 
+MAX_DRAWS = 1_000_000  # draws; a 5-95 % band is stable to a few per mille well before this
+
+
 def _draws_rule(value: int) -> str | None:
     return None if value == 0 or value >= 2 else "be 0 (no bands) or at least 2 for a 5-95% band"
 
@@ -104,7 +108,8 @@ class UncertaintyOptions(Options):
     release: float | None = setting(None, unit="-", low=0.0, high=1.0)  # metered releases
     stage_resolution: float | None = setting(None, unit="m", low=0.0)  # stage gauge resolution
     area: float | None = setting(None, unit="-", low=0.0, high=1.0)  # storage relation's area
-    draws: int = setting(1000, unit="draws", low=0, rule=_draws_rule)  # Monte Carlo draws
+    # Monte Carlo draws (the memory they need is checked against the record's length)
+    draws: int = setting(1000, unit="draws", low=0, high=MAX_DRAWS, rule=_draws_rule)
     # share of a term's error variance lasting a water year
     systematic: float | None = setting(None, unit="-", low=0.0, high=1.0)
     # over what the persistent part of each term's error is held
@@ -1086,6 +1091,12 @@ def add_uncertainty(
     """
     if draws < 2:
         raise ValueError("draws must be >= 2")
+    check_memory(
+        _monte_carlo_bytes(balance.daily.index, balance.water_year_start, draws),
+        option="draws",
+        value=draws,
+        what="the balance's Monte Carlo arrays over this record",
+    )
     model = residual_errors(
         balance,
         area_fn=area_fn,
@@ -1235,6 +1246,22 @@ def _uniform(rng: np.random.Generator, shape: int | tuple[int, ...], width: floa
     u *= np.float32(width / 65536.0)
     u -= np.float32(0.5 * width)
     return u
+
+
+def _monte_carlo_bytes(index: pd.DatetimeIndex, water_year_start: int, draws: int) -> float:
+    """Bytes :func:`add_uncertainty` holds at its peak for ``draws`` draws over ``index``.
+
+    Per water year of m days (the loop's chunk): the draw-by-day deviates (float32), the
+    16-bit normal and uniform draws and their float32 copies, two sorted copies, and the
+    cumulative sums with their sorted copy (float64): about 56 bytes per draw and day. Kept for
+    the whole record: the monthly and water-year sums (float64) and their stacked copies.
+    """
+    if len(index) == 0:
+        return 0.0
+    wy = water_year_of(index, water_year_start)
+    _, per_year = np.unique(wy, return_counts=True)
+    months = len(pd.unique(np.asarray(index.to_period("M").to_timestamp())))
+    return float(draws) * (56.0 * float(per_year.max()) + 16.0 * (months + per_year.size))
 
 
 def _order_indices(draws: int) -> tuple[int, int]:

@@ -14,9 +14,11 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from .errors import InputError, LakebalanceError
+from .errors import InputError, LakebalanceError, SchedulerError, excerpt
+from .options import Options, setting
 
 __all__ = [
+    "BatchOptions",
     "SiteOutcome",
     "BatchResult",
     "read_register",
@@ -37,8 +39,24 @@ HEADLINE_COLUMNS = (
 
 
 @dataclass(frozen=True)
+class BatchOptions(Options):
+    """Limits of a batch run (``lakebalance report --site-timeout/--site-memory``)."""
+
+    # wall-clock time one site may take before its worker is stopped (a report takes minutes)
+    site_timeout: float = setting(3600.0, unit="s", low=1.0)
+    # address space of one site's worker; default: the available memory shared by the workers
+    site_memory: float | None = setting(None, unit="GiB", low=0.5)
+    # how long to try to reach a Dask scheduler
+    scheduler_timeout: float = setting(5.0, unit="s", low=0.1, high=600.0)
+
+
+@dataclass(frozen=True)
 class SiteOutcome:
-    """What one site of a batch produced: its report folder and headline numbers, or its error."""
+    """What one site of a batch produced: its report folder and headline numbers, or its error.
+
+    ``folder`` is the site's sub-folder of the batch (a slug of its file name, unique in the
+    run); ``note`` says when it had to differ from the site's own slug.
+    """
 
     site_file: str
     name: str
@@ -49,6 +67,8 @@ class SiteOutcome:
     latitude: float | None = None
     longitude: float | None = None
     seconds: float = 0.0
+    folder: str | None = None
+    note: str | None = None
 
 
 @dataclass(frozen=True)
@@ -75,9 +95,13 @@ def read_register(path: str | Path) -> list[tuple[Path, float | None, float | No
     -------
     list of (site file, latitude in degrees or None, longitude in degrees or None)
     """
+    from .io.files import check_input
+
     path = Path(path)
-    if not path.is_file():
+    if not path.exists() and not path.is_symlink():
         raise InputError("register file not found", file=path)
+    if not path.is_dir():
+        check_input(path, "register")
     suffix = path.suffix.lower()
     if suffix in (".gpkg", ".shp", ".geojson", ".json", ".fgb"):
         import geopandas as gpd
@@ -124,7 +148,7 @@ def read_register(path: str | Path) -> list[tuple[Path, float | None, float | No
         if not isinstance(site_file, str) or not site_file.strip():
             raise InputError("empty site_file", file=path, line=i + start_line, column="site_file")
         p = Path(site_file.strip())
-        out.append(((p if p.is_absolute() else path.parent / p).resolve(), la, lo))
+        out.append((Path(os.path.realpath(p if p.is_absolute() else path.parent / p)), la, lo))
     return out
 
 
@@ -159,8 +183,13 @@ def report_one(
         )
     except LakebalanceError as exc:
         message = exc.one_line().removeprefix("error: ")
+    except MemoryError:
+        message = (
+            "ran out of memory (the site's worker has a memory limit: see --site-memory); "
+            "lower draws or members, or give the site more memory"
+        )
     except Exception as exc:  # a bug in lakebalance: keep the batch going, but say so
-        message = f"internal error ({type(exc).__name__}: {exc}); please report it"
+        message = f"internal error ({type(exc).__name__}: {excerpt(exc)}); please report it"
     return SiteOutcome(
         site_file=str(site_file),
         name=name,
@@ -193,33 +222,166 @@ def _progress(total: int, enabled: bool) -> Any:
     return tqdm(total=total, unit="site", disable=not enabled, file=sys.stderr, leave=False)
 
 
+def _failed(site: Path, why: str, seconds: float = 0.0) -> SiteOutcome:
+    return SiteOutcome(site_file=str(site), name=site.stem, ok=False, error=why, seconds=seconds)
+
+
+def _memory_budget(options: BatchOptions, workers: int) -> int | None:
+    """Address-space limit of one site's worker (bytes), or None where none can be set."""
+    from .resources import address_space_bytes, available_memory_bytes
+
+    try:
+        import resource  # noqa: F401
+    except ImportError:  # pragma: no cover - not on Windows
+        return None
+    if options.site_memory is not None:
+        budget = int(options.site_memory * 1024**3)
+    else:
+        budget = max(1024**3, int(0.8 * available_memory_bytes() / max(1, workers)))
+    return (address_space_bytes() or 0) + budget
+
+
+def _child(conn: Any, worker: Callable[..., SiteOutcome], site: Path, out: Path,
+           kwargs: dict[str, Any], memory: int | None) -> None:  # fmt: skip
+    """Body of one site's worker process: limit the memory, run, send the outcome."""
+    if memory is not None:
+        import resource
+
+        _, hard = resource.getrlimit(resource.RLIMIT_AS)
+        if hard == resource.RLIM_INFINITY or memory <= hard:
+            resource.setrlimit(resource.RLIMIT_AS, (memory, hard))
+    try:
+        outcome = worker(site, out, **kwargs)
+    except BaseException as exc:  # a worker that raises despite report_one's promise
+        outcome = _failed(site, f"internal error ({type(exc).__name__}: {excerpt(exc)})")
+    conn.send(outcome)
+    conn.close()
+
+
+def _death(process: Any) -> str:
+    import signal
+
+    code = process.exitcode
+    if code is not None and code < 0:
+        try:
+            name = signal.Signals(-code).name
+        except ValueError:
+            name = f"signal {-code}"
+        why = " (the system stops processes that way when memory runs out)" if code == -9 else ""
+        return f"its worker process was killed by {name}{why}; the other sites went on"
+    return f"its worker process ended with exit code {code} before giving a result"
+
+
 def _run_local(
     jobs: Sequence[tuple[Path, Path]],
     worker: Callable[..., SiteOutcome],
     kwargs: dict[str, Any],
     workers: int,
     progress: bool,
+    limits: BatchOptions,
 ) -> list[SiteOutcome]:
+    """Each site in its own worker process (at most ``workers`` at once), so that a site that
+    hangs is stopped at its time limit and a worker that dies takes only its own site."""
+    import multiprocessing as mp
+    import time
+    from multiprocessing.connection import wait
+
     outcomes: list[SiteOutcome | None] = [None] * len(jobs)
     bar = _progress(len(jobs), progress)
-    if workers <= 1 or len(jobs) <= 1:
+    if not sys.platform.startswith("linux"):  # no fork: one after the other, in this process
         for i, (site, out) in enumerate(jobs):
             outcomes[i] = worker(site, out, **kwargs)
             bar.update(1)
-    else:
-        import multiprocessing as mp
-        from concurrent.futures import ProcessPoolExecutor, as_completed
+        bar.close()
+        return [o for o in outcomes if o is not None]
+    ctx = mp.get_context("fork")
+    _warm_imports()  # forked workers inherit the loaded libraries instead of each paying
+    memory = _memory_budget(limits, workers)
+    pending = list(range(len(jobs)))[::-1]
+    running: dict[Any, tuple[int, Any, float]] = {}  # connection -> (job, process, start)
 
-        ctx = mp.get_context("fork") if sys.platform.startswith("linux") else None
-        if ctx is not None:
-            _warm_imports()  # forked workers inherit the loaded libraries instead of each paying
-        with ProcessPoolExecutor(max_workers=workers, mp_context=ctx) as pool:
-            futures = {pool.submit(worker, s, o, **kwargs): i for i, (s, o) in enumerate(jobs)}
-            for fut in as_completed(futures):
-                outcomes[futures[fut]] = fut.result()
-                bar.update(1)
-    bar.close()
-    return [o for o in outcomes if o is not None]
+    def finish(conn: Any, outcome: SiteOutcome) -> None:
+        i, process, _ = running.pop(conn)
+        process.join(5)
+        if process.is_alive():  # pragma: no cover - a worker that will not end
+            process.kill()
+            process.join()
+        conn.close()
+        outcomes[i] = outcome
+        bar.update(1)
+
+    try:
+        while pending or running:
+            while pending and len(running) < workers:
+                i = pending.pop()
+                site, out = jobs[i]
+                receive, send = ctx.Pipe(duplex=False)
+                process = ctx.Process(
+                    target=_child, args=(send, worker, site, out, kwargs, memory), daemon=True
+                )
+                process.start()
+                send.close()
+                running[receive] = (i, process, time.monotonic())
+            deadline = min(t0 for _, _, t0 in running.values()) + limits.site_timeout
+            for conn in wait(list(running), timeout=max(0.0, deadline - time.monotonic())):
+                i, process, t0 = running[conn]
+                try:
+                    outcome = conn.recv()
+                except (EOFError, OSError):
+                    process.join(5)
+                    outcome = _failed(jobs[i][0], _death(process), time.monotonic() - t0)
+                finish(conn, outcome)
+            now = time.monotonic()
+            for conn, (i, process, t0) in list(running.items()):
+                if now - t0 >= limits.site_timeout:
+                    process.kill()
+                    why = (
+                        f"no result within the time limit of {limits.site_timeout:g} s "
+                        "(--site-timeout): its worker was stopped"
+                    )
+                    finish(conn, _failed(jobs[i][0], why, now - t0))
+    except BaseException as exc:
+        for conn, (_, process, _) in list(running.items()):  # interrupted: stop the workers
+            process.kill()
+            process.join()
+            conn.close()
+        if not isinstance(exc, KeyboardInterrupt):
+            raise
+        # interrupted by the user: the index is still written, with every site's status
+    finally:
+        bar.close()
+    return [
+        o or _failed(jobs[i][0], "not run: the batch was interrupted")
+        for i, o in enumerate(outcomes)
+    ]
+
+
+def _client(scheduler: Any, timeout_s: float) -> tuple[Any, bool]:
+    """A Dask client for ``scheduler`` (an address or a client) and whether it is ours to close."""
+    try:
+        from distributed import Client
+    except ImportError:  # pragma: no cover - optional dependency
+        raise SchedulerError(
+            "a Dask scheduler was given but 'distributed' is not installed "
+            "(pip install 'lakebalance[dask]')"
+        ) from None
+    if isinstance(scheduler, Client):
+        return scheduler, False
+    import logging
+
+    quiet = logging.getLogger("distributed")
+    level = quiet.level
+    quiet.setLevel(logging.CRITICAL)  # its own connection retries would print tracebacks
+    try:
+        return Client(scheduler, timeout=timeout_s, set_as_default=False), True
+    except (OSError, TimeoutError, ValueError, TypeError) as exc:
+        text = excerpt(f"{type(exc).__name__}: {exc}")
+        raise SchedulerError(
+            f"cannot reach the Dask scheduler at {excerpt(str(scheduler), 80)} within "
+            f"{timeout_s:g} s ({text}); check the address and that the scheduler runs"
+        ) from None
+    finally:
+        quiet.setLevel(level)
 
 
 def _run_dask(
@@ -228,29 +390,69 @@ def _run_dask(
     kwargs: dict[str, Any],
     scheduler: Any,
     progress: bool,
+    limits: BatchOptions,
 ) -> list[SiteOutcome]:
-    try:
-        from distributed import Client, as_completed
-    except ImportError:  # pragma: no cover - optional dependency
-        raise LakebalanceError(
-            "a Dask scheduler was given but 'distributed' is not installed "
-            "(pip install 'lakebalance[dask]')"
-        ) from None
-    own = not isinstance(scheduler, Client)
-    client = Client(scheduler) if own else scheduler
+    """The sites as tasks of a Dask cluster. A task whose worker dies fails alone (Dask's own
+    retries aside); sites still running when the batch's time is up are cancelled."""
+    import math
+
+    from distributed import as_completed
+
+    client, own = _client(scheduler, limits.scheduler_timeout)
     try:
         futures = [client.submit(worker, str(s), str(o), pure=False, **kwargs) for s, o in jobs]
         index = {f.key: i for i, f in enumerate(futures)}
         outcomes: list[SiteOutcome | None] = [None] * len(jobs)
         bar = _progress(len(jobs), progress)
-        for fut in as_completed(futures):
-            outcomes[index[fut.key]] = fut.result()
-            bar.update(1)
+        try:
+            slots = sum(client.nthreads().values()) or 1
+        except Exception:  # noqa: BLE001 - only used to size the deadline
+            slots = 1
+        deadline = limits.site_timeout * math.ceil(len(jobs) / slots)
+        try:
+            for fut in as_completed(futures, timeout=deadline):
+                i = index[fut.key]
+                try:
+                    outcomes[i] = fut.result()
+                except Exception as exc:  # a killed worker (KilledWorker), a cancelled task
+                    text = excerpt(f"{type(exc).__name__}: {exc}")
+                    outcomes[i] = _failed(jobs[i][0], f"the Dask task failed ({text})")
+                bar.update(1)
+        except TimeoutError:
+            for i, fut in enumerate(futures):
+                if outcomes[i] is None:
+                    fut.cancel()
+                    outcomes[i] = _failed(
+                        jobs[i][0], f"no result within the batch's time ({deadline:g} s)"
+                    )
         bar.close()
     finally:
         if own:
             client.close()
-    return [o for o in outcomes if o is not None]
+    return [o or _failed(jobs[i][0], "no result from the cluster") for i, o in enumerate(outcomes)]
+
+
+def _site_folders(site_list: Sequence[Path]) -> list[tuple[str, str | None]]:
+    """The sub-folder of each site: a slug of its file name (its folder's name for a file called
+    ``site.toml``), unique in the run."""
+    from .io.output import unique_slugs
+
+    names = [s.stem if s.stem.lower() != "site" else (s.parent.name or s.stem) for s in site_list]
+    return unique_slugs(names)
+
+
+def _batch_inputs(site_list: Sequence[Path]) -> list[Path]:
+    from .config import load_site
+    from .io.output import site_inputs
+
+    inputs: list[Path] = []
+    for s in site_list:
+        inputs.append(s)
+        try:
+            inputs.extend(site_inputs(load_site(s)))
+        except LakebalanceError:
+            pass  # that site fails in its worker, with this same error
+    return inputs
 
 
 def run_batch(
@@ -265,15 +467,19 @@ def run_batch(
     options: dict[str, Any] | None = None,
     coordinates: dict[str, tuple[float | None, float | None]] | None = None,
     worker: Callable[..., SiteOutcome] = report_one,
+    limits: BatchOptions | None = None,
+    inputs: Iterable[str | Path] = (),
 ) -> BatchResult:
     """Report many sites and write the batch index page.
 
     Parameters
     ----------
     sites : iterable of paths
-        Site files. Each report goes to ``out_dir/<site-file stem>/``.
+        Site files. Each report goes to ``out_dir/<slug of the site-file stem>/`` (made unique).
     out_dir : path
-        Folder of the batch; ``index.html`` and ``index.csv`` are written there.
+        Folder of the batch; ``index.html`` and ``index.csv`` are written there. It is written
+        whole into a temporary sibling and swapped in at the end, so an earlier batch there stays
+        as it was until this one is complete.
     year : int, optional
         Water year to report (default: each site's last complete water year).
     seed : int, optional
@@ -288,40 +494,64 @@ def run_batch(
         Extra keyword arguments of :func:`lakebalance.report.build.make_report`.
     coordinates : dict, optional
         Site file -> (latitude, longitude) from a register, for the map.
+    worker : callable
+        The unit of work (``report_one``).
+    limits : BatchOptions, optional
+        Per-site time and memory limits, Dask connection time.
+    inputs : iterable of paths
+        Other files the batch reads (the register), which ``out_dir`` must not hold.
+
+    Raises
+    ------
+    OutputError
+        ``out_dir`` holds an input, or is a folder lakebalance did not write.
+    SchedulerError
+        The Dask scheduler cannot be reached.
     """
-    out_dir = Path(out_dir)
-    site_list = [Path(s).resolve() for s in sites]
+    from .io.output import OutputFolder
+
+    limits = limits or BatchOptions()
+    site_list = [Path(os.path.realpath(Path(s).expanduser())) for s in sites]
     if not site_list:
         raise LakebalanceError("no site files given")
-    stems: dict[str, int] = {}
-    jobs = []
-    for s in site_list:
-        stem = s.stem if s.stem != "site" else s.parent.name or s.stem
-        n = stems.get(stem, 0)
-        stems[stem] = n + 1
-        jobs.append((s, out_dir / (stem if n == 0 else f"{stem}-{n + 1}")))
-    kwargs = {"year": year, "seed": seed, "options": options}
-    if scheduler is not None:
-        outcomes = _run_dask(jobs, worker, kwargs, scheduler, progress)
-    else:
-        outcomes = _run_local(jobs, worker, kwargs, workers or os.cpu_count() or 1, progress)
-    if coordinates:
-        import dataclasses
-
+    folder = OutputFolder(
+        out_dir, inputs=[*_batch_inputs(site_list), *inputs], replace=True, kind="batch"
+    )
+    try:
+        slugs = _site_folders(site_list)
+        jobs = [(s, folder.dir / name) for s, (name, _) in zip(site_list, slugs, strict=True)]
+        kwargs = {"year": year, "seed": seed, "options": options}
+        if scheduler is not None:
+            outcomes = _run_dask(jobs, worker, kwargs, scheduler, progress, limits)
+        else:
+            n = workers or os.cpu_count() or 1
+            outcomes = _run_local(jobs, worker, kwargs, n, progress, limits)
         outcomes = [
-            dataclasses.replace(
-                o,
-                latitude=o.latitude
-                if o.latitude is not None
-                else coordinates.get(o.site_file, (None, None))[0],
-                longitude=o.longitude
-                if o.longitude is not None
-                else coordinates.get(o.site_file, (None, None))[1],
-            )
-            for o in outcomes
+            _placed(o, name, note, folder.root, coordinates or {})
+            for o, (name, note) in zip(outcomes, slugs, strict=True)
         ]
-    index = write_index(outcomes, out_dir)
+        index = write_index(outcomes, folder.dir, final=folder.root)
+        folder.commit()
+    finally:
+        folder.abandon()  # after the commit, nothing to remove
     return BatchResult(outcomes=tuple(outcomes), index=index)
+
+
+def _placed(
+    o: SiteOutcome, name: str, note: str | None, root: Path, coordinates: dict
+) -> SiteOutcome:
+    """An outcome with its folder, its report's final path and the register's coordinates."""
+    import dataclasses
+
+    lat, lon = coordinates.get(o.site_file, (None, None))
+    return dataclasses.replace(
+        o,
+        folder=name,
+        note=note,
+        report=str(root / name / "report.html") if o.ok else None,
+        latitude=o.latitude if o.latitude is not None else lat,
+        longitude=o.longitude if o.longitude is not None else lon,
+    )
 
 
 def _map_png(outcomes: Sequence[SiteOutcome]) -> bytes | None:
@@ -375,18 +605,29 @@ def _cell(value: Any) -> str:
     return str(value)
 
 
-def write_index(outcomes: Sequence[SiteOutcome], out_dir: str | Path) -> Path:
-    """Write ``index.html`` (links, headline table, map, failures) and ``index.csv`` in ``out_dir``."""
+def write_index(
+    outcomes: Sequence[SiteOutcome], out_dir: str | Path, *, final: str | Path | None = None
+) -> Path:
+    """Write ``index.html`` (links, headline table, map, failures) and ``index.csv`` in ``out_dir``.
+
+    Links are relative paths built from each site's folder slug only (``<slug>/report.html``),
+    never from a name or a path the user wrote. ``final`` is where ``out_dir`` will be once the
+    batch is complete (the returned path is there).
+    """
+    from urllib.parse import quote
+
     import pandas as pd
 
     from . import __version__
-    from .io.output import write_csv, write_text
+    from .io.output import slug, write_csv, write_text
     from .report.html import png_base64, render
 
     out_dir = Path(out_dir)
     rows, records = [], []
     for o in outcomes:
-        link = os.path.relpath(o.report, out_dir) if o.report else None
+        link = None
+        if o.ok and o.report:  # from the slug alone: a relative path, never a scheme
+            link = f"{quote(slug(o.folder or Path(o.report).parent.name))}/report.html"
         cells = [_cell(o.headline.get(k)) for k, _, _ in HEADLINE_COLUMNS]
         rows.append(
             {"name": o.name, "status": "ok" if o.ok else "failed", "link": link, "cells": cells}
@@ -399,6 +640,8 @@ def write_index(outcomes: Sequence[SiteOutcome], out_dir: str | Path) -> Path:
                 "error": o.error or "",
                 **{k: o.headline.get(k) for k, _, _ in HEADLINE_COLUMNS},
                 "report": link or "",
+                "folder": o.folder or "",
+                "note": o.note or "",
             }
         )
     png = _map_png(outcomes)
@@ -415,9 +658,11 @@ def write_index(outcomes: Sequence[SiteOutcome], out_dir: str | Path) -> Path:
         failures=[
             {"name": o.name, "path": o.site_file, "error": o.error} for o in outcomes if not o.ok
         ],
+        notes=[{"name": o.name, "note": o.note} for o in outcomes if o.note],
         map_png=png_base64(png) if png else None,
         version=__version__,
         run_utc=_dt.datetime.now(_dt.UTC).replace(microsecond=0).isoformat(),
     )
     write_csv(out_dir / "index.csv", pd.DataFrame.from_records(records), index=False)
-    return write_text(out_dir / "index.html", html)
+    write_text(out_dir / "index.html", html)
+    return Path(final if final is not None else out_dir) / "index.html"

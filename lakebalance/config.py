@@ -14,6 +14,7 @@ from __future__ import annotations
 import dataclasses
 import datetime as _dt
 import math
+import os
 import re
 import tomllib
 import types
@@ -78,6 +79,13 @@ class SiteInfo(Options):
     seed: int = 12345  # seed for every random draw unless the command line gives one
 
 
+def _thousands_rule(value: str) -> str | None:
+    allowed = (",", ".", " ", "'", "\u00a0", "\u202f")
+    if value in allowed:
+        return None
+    return "be one of ',', '.', ' ', \"'\" (or a no-break space)"
+
+
 @dataclass(frozen=True)
 class SeriesSpec(Options):
     """``[series.<role>]`` or ``[[series.<role>]]``: one gauge series in one file."""
@@ -92,7 +100,9 @@ class SeriesSpec(Options):
     dayfirst: bool = False  # 03/04/2020 is 3 April when true
     delimiter: str | None = None  # CSV field delimiter (sniffed when absent)
     decimal: str = "."  # decimal mark ("," for decimal comma)
-    encoding: str | None = None  # text encoding (sniffed when absent: BOM, utf-8, cp1252)
+    # thousands separator of the numbers ("," "." " " or "'"); none when absent
+    thousands: str | None = setting(None, rule=_thousands_rule)
+    encoding: str | None = None  # text encoding (UTF-8 or a byte-order mark when absent)
     sheet: str | None = None  # Excel sheet name (first sheet when absent)
     statistic: Statistic | None = None  # how sub-daily readings make a day (default by role)
     source_timezone: str | None = None  # zone of naive timestamps (default: the site's zone)
@@ -102,6 +112,15 @@ class SeriesSpec(Options):
     resolution: float | None = setting(None, unit="series unit", low=0.0, low_open=True)
     role: str = ""  # filled in from the table name; not written by users
     key: str = ""  # column name in Records.daily; filled in
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        if self.thousands is not None and self.thousands == self.decimal:
+            raise OptionError(
+                "thousands",
+                f"'thousands' = {self.thousands!r} is also the decimal mark; a number could not "
+                "be read from it unambiguously",
+            )
 
 
 @dataclass(frozen=True)
@@ -270,7 +289,8 @@ def _coerce(tp: Any, value: Any, ctx: _Ctx, where: str, key: str) -> Any:
         if not isinstance(value, str) or not value:
             raise ctx.error(f"'{full}' must be a file path, got {value!r}", where, key)
         p = Path(value).expanduser()
-        return p if p.is_absolute() else (ctx.path.parent / p).resolve()
+        # realpath, not resolve(): a symbolic-link loop is the reader's one-line error
+        return p if p.is_absolute() else Path(os.path.realpath(ctx.path.parent / p))
     raise ctx.error(f"'{full}': unsupported type {tp!r}", where, key)  # pragma: no cover
 
 
@@ -382,6 +402,58 @@ def parse_site(data: dict[str, Any], path: Path, text: str = "") -> Site:
     return Site(path=path, series=tuple(series), levels=levels, **kwargs)
 
 
+def _check_nesting(text: str, path: Path) -> None:
+    """Stop a site file whose arrays and inline tables nest deeper than
+    :data:`~lakebalance.io.files.MAX_TOML_DEPTH` (TOML parsers recurse per level).
+
+    Brackets and braces are counted outside strings and comments; a table header counts as
+    its brackets, which close on the same line.
+    """
+    from .errors import LimitError
+    from .io.files import MAX_TOML_DEPTH
+
+    if text.count("[") + text.count("{") <= MAX_TOML_DEPTH:
+        return
+    depth = 0
+    line = 1
+    i, n = 0, len(text)
+    while i < n:
+        c = text[i]
+        if c == "\n":
+            line += 1
+        elif c == "#":
+            j = text.find("\n", i)
+            i = n if j < 0 else j
+            continue
+        elif c in "\"'":
+            quote = text[i : i + 3] if text[i : i + 3] in ('"""', "'''") else c
+            j = i + len(quote)
+            while j < n:
+                if text[j] == "\\" and c == '"':
+                    j += 2
+                    continue
+                if text.startswith(quote, j):
+                    break
+                if text[j] == "\n":
+                    if len(quote) == 1:
+                        break
+                    line += 1
+                j += 1
+            i = j + len(quote)
+            continue
+        elif c in "[{":
+            depth += 1
+            if depth > MAX_TOML_DEPTH:
+                raise LimitError(
+                    f"arrays and tables nest deeper than {MAX_TOML_DEPTH} levels",
+                    file=path,
+                    line=line,
+                )
+        elif c in "]}":
+            depth = max(0, depth - 1)
+        i += 1
+
+
 def load_site(path: str | Path) -> Site:
     """Read and validate a site file.
 
@@ -394,18 +466,31 @@ def load_site(path: str | Path) -> Site:
     ------
     ConfigError
         When the file cannot be read, is not TOML, or does not follow the schema.
+    LimitError
+        Not a regular file (a FIFO, device or folder), over 10 MiB, or nesting arrays and inline
+        tables deeper than 32 levels.
     """
-    path = Path(path).expanduser().resolve()
+    from .io.files import MAX_SITE_FILE_BYTES, read_input
+
+    given = Path(path).expanduser()
     try:
-        raw = path.read_bytes()
-    except OSError as exc:
-        raise ConfigError(f"cannot read site file ({exc.strerror})", file=path) from None
+        raw = read_input(given, "site file", limit=MAX_SITE_FILE_BYTES, error=ConfigError)
+    except ConfigError as exc:  # missing, a link loop, no permission
+        reason = exc.message.removeprefix("site file: ")
+        raise ConfigError(f"cannot read site file ({reason})", file=exc.file) from None
+    path = Path(os.path.realpath(given))
     try:
         text = raw.decode("utf-8-sig")
-    except UnicodeDecodeError:
-        raise ConfigError("site file is not UTF-8 text", file=path) from None
+    except UnicodeDecodeError as exc:
+        line = raw[: exc.start].count(b"\n") + 1
+        raise ConfigError(
+            f"site file is not UTF-8 text (byte 0x{raw[exc.start]:02x})", file=path, line=line
+        ) from None
+    _check_nesting(text, path)
     try:
         data = tomllib.loads(text)
+    except RecursionError:  # pragma: no cover - _check_nesting stops such files first
+        raise ConfigError("the site file nests too deeply", file=path) from None
     except tomllib.TOMLDecodeError as exc:
         m = re.search(r"line (\d+), column (\d+)", str(exc))
         line, col = (int(m.group(1)), int(m.group(2))) if m else (None, None)

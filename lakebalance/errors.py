@@ -19,12 +19,23 @@ __all__ = [
     "FitError",
     "RangeError",
     "OptionError",
+    "LimitError",
+    "OutputError",
+    "MemoryLimitError",
+    "SchedulerError",
     "LakebalanceWarning",
     "DataQualityWarning",
     "ExtrapolationWarning",
     "ApproximationWarning",
+    "FormulaValueWarning",
     "suggest",
+    "excerpt",
 ]
+
+#: At most this many characters of an offending line or cell are quoted in a message.
+EXCERPT_CHARS = 120
+#: A message longer than this is cut when printed (a last guard; quotes use :func:`excerpt`).
+MESSAGE_CHARS = 4000
 
 
 class LakebalanceError(Exception):
@@ -72,7 +83,9 @@ class LakebalanceError(Exception):
     def one_line(self) -> str:
         """The message the CLI prints: ``error: <file>[:<line>[:<column>]]: <what>``."""
         loc = self.location()
-        text = " ".join(self.message.split("\n"))
+        text = " ".join(self.message.splitlines())
+        if len(text) > MESSAGE_CHARS:
+            text = text[:MESSAGE_CHARS] + " ... (message cut)"
         return f"error: {loc}: {text}" if loc else f"error: {text}"
 
     def __str__(self) -> str:  # pragma: no cover - trivial
@@ -119,6 +132,37 @@ class OptionError(ConfigError, ValueError):
         self.option = option
 
 
+class LimitError(InputError):
+    """A file goes past one of the documented reading limits (size, line length, columns, nesting
+    depth, inflated workbook size), or is not a regular file. See README, "Safety"."""
+
+
+class OutputError(LakebalanceError):
+    """An output would leave ``--out``, overwrite an input, or replace a folder that is not a
+    lakebalance output folder."""
+
+
+class MemoryLimitError(LakebalanceError, ValueError):
+    """The arrays a setting asks for (draws, members, days, rating variants, bootstrap refits)
+    would not fit in the memory this machine has free.
+
+    Parameters
+    ----------
+    option : str
+        The setting to lower.
+    message : str
+        The estimate and the limit, in words.
+    """
+
+    def __init__(self, option: str, message: str, **where) -> None:
+        super().__init__(message, **where)
+        self.option = option
+
+
+class SchedulerError(LakebalanceError):
+    """A Dask scheduler cannot be reached (or the cluster cannot run the batch)."""
+
+
 class LakebalanceWarning(UserWarning):
     """Base of lakebalance's warnings (raise with ``stacklevel=2``)."""
 
@@ -133,6 +177,19 @@ class ExtrapolationWarning(LakebalanceWarning):
 
 class ApproximationWarning(LakebalanceWarning):
     """A method is an approximation whose accuracy the user should weigh."""
+
+
+class FormulaValueWarning(DataQualityWarning):
+    """Values read from a workbook are the results of formulas as last saved (not recomputed)."""
+
+
+def excerpt(text: object, limit: int = EXCERPT_CHARS) -> str:
+    """``repr`` of at most ``limit`` characters of ``text`` (an offending line or cell), with
+    ``...`` and the full length when cut, for quoting in a message."""
+    s = str(text)
+    if len(s) <= limit:
+        return repr(s)
+    return f"{s[:limit]!r}... ({len(s):,} characters)"
 
 
 def suggest(word: str, choices: Iterable[str]) -> str:

@@ -75,20 +75,27 @@ def setting(
     return dataclasses.field(default=default, metadata=meta)
 
 
+def _num(x: float) -> str:
+    """A bound in words: whole numbers of five digits or more with thousands separators."""
+    if float(x).is_integer() and abs(x) >= 10_000:
+        return f"{int(x):,}"
+    return f"{x:g}"
+
+
 def _range_text(meta: dict) -> str:
     lo, hi = meta.get("low"), meta.get("high")
     lo_word = "above" if meta.get("low_open") else "at least"
     hi_word = "below" if meta.get("high_open") else "at most"
     if lo is not None and hi is not None:
         if not meta.get("low_open") and not meta.get("high_open"):
-            return f"between {lo:g} and {hi:g}"
+            return f"between {_num(lo)} and {_num(hi)}"
         left = "(" if meta.get("low_open") else "["
         right = ")" if meta.get("high_open") else "]"
-        return f"in {left}{lo:g}, {hi:g}{right}"
+        return f"in {left}{_num(lo)}, {_num(hi)}{right}"
     if lo is not None:
-        return f"{lo_word} {lo:g}"
+        return f"{lo_word} {_num(lo)}"
     if hi is not None:
-        return f"{hi_word} {hi:g}"
+        return f"{hi_word} {_num(hi)}"
     return ""
 
 

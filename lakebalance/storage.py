@@ -106,6 +106,7 @@ class StorageOptions(Options):
     compare: Path | None = None  # a second survey (table or contour layer) to compare against
     delimiter: str | None = None  # CSV field delimiter of a table (sniffed when absent)
     decimal: str = "."  # decimal mark of a CSV table
+    encoding: str | None = None  # text encoding of a CSV table (UTF-8 when absent)
 
 
 Policy = Literal["error", "clamp", "extend"]

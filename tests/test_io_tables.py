@@ -93,10 +93,22 @@ def test_missing_file(tmp_path):
         read_table(tmp_path / "nope.csv", COLS, what="t")
 
 
-@pytest.mark.parametrize("encoding", ["utf-8-sig", "utf-16", "cp1252"])
+@pytest.mark.parametrize("encoding", ["utf-8", "utf-8-sig", "utf-16"])
 def test_encodings_are_sniffed(write, encoding):
     p = write("t.csv", "Höhe,Fläche\n1,2\n3,4\n", encoding=encoding)
     t = read_table(p, {"stage": "Höhe", "area": "Fläche"}, what="t")
+    assert t["area"].tolist() == [2.0, 4.0]
+
+
+def test_cp1252_is_read_when_declared_and_named_when_not(write):
+    """Windows-1252 is not guessed (a UTF-8 file with one stray byte would be misread whole):
+    undeclared, the first byte that is not UTF-8 is an error naming its line (issue 18)."""
+    p = write("t.csv", "level,area\n1,2\nHöhe,Fläche\n", encoding="cp1252")
+    with pytest.raises(InputError, match="0xf6 is not UTF-8.*encoding = 'cp1252'") as err:
+        read_table(p, COLS, what="t")
+    assert err.value.line == 3
+    p = write("u.csv", "Höhe,Fläche\n1,2\n3,4\n", encoding="cp1252")
+    t = read_table(p, {"stage": "Höhe", "area": "Fläche"}, what="t", encoding="cp1252")
     assert t["area"].tolist() == [2.0, 4.0]
 
 

@@ -30,6 +30,7 @@ COMPUTATIONAL = (
     "laws",
     "units",
     "errors",
+    "resources",
     "records",
     "qa",
     "storage",

@@ -58,7 +58,7 @@ def test_command_line_values_that_cannot_be_used(tmp_path, capsys, argv, needle)
     ("section", "line", "needle"),
     [
         ("uncertainty", "systematic = 1.5", "'uncertainty.systematic' must be between 0 and 1"),
-        ("drawdown", "members = 0", "'drawdown.members' must be at least 1"),
+        ("drawdown", "members = 0", "'drawdown.members' must be between 1 and 1,000,000"),
         ("drawdown", "block_days = -1", "'drawdown.block_days' must be at least 1"),
         ("flags", "min_run_days = 0", "'flags.min_run_days' must be at least 2"),
         ("evaporation", "albedo = 1.5", "'evaporation.albedo' must be between 0 and 1"),
@@ -93,11 +93,11 @@ def test_options_objects_refuse_out_of_range_values_in_python():
     from lakebalance.drawdown.options import DrawdownOptions
     from lakebalance.flags import FlagOptions
 
-    with pytest.raises(ValueError, match="'draws' must be at least 0"):
+    with pytest.raises(ValueError, match="'draws' must be between 0 and 1,000,000"):
         UncertaintyOptions(draws=-3)
     with pytest.raises(ValueError, match="'draws' must be 0 \\(no bands\\) or at least 2"):
         UncertaintyOptions(draws=1)
-    with pytest.raises(ValueError, match="'members' must be at least 1"):
+    with pytest.raises(ValueError, match="'members' must be between 1 and 1,000,000"):
         DrawdownOptions(members=0)
     with pytest.raises(ValueError, match="'drift_alpha' must be in \\(0, 1\\)"):
         FlagOptions(drift_alpha=1.5)

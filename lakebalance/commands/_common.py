@@ -37,6 +37,18 @@ def open_lake(args: argparse.Namespace, **settings):
     return open_site(args.site, seed=seed, **settings)
 
 
+def output_folder(args: argparse.Namespace, lake, *extra_inputs):
+    """The ``--out`` folder of a command as an :class:`~lakebalance.io.output.OutputFolder`
+    (None without ``--out``), checked before any work: it must not hold the site's inputs
+    (nor ``extra_inputs``, e.g. a compared survey)."""
+    if getattr(args, "out", None) is None:
+        return None
+    from ..io.output import OutputFolder, site_inputs
+
+    inputs = [*site_inputs(lake.site), *(p for p in extra_inputs if p is not None)]
+    return OutputFolder(args.out, inputs=inputs)
+
+
 class LakebalanceWarnings:
     """Collect lakebalance's warnings raised inside a ``with`` block, to be stated once each.
 

@@ -4,7 +4,15 @@ from __future__ import annotations
 
 import argparse
 
-from ._common import LakebalanceWarnings, add_json, add_out, add_seed, add_site, open_lake
+from ._common import (
+    LakebalanceWarnings,
+    add_json,
+    add_out,
+    add_seed,
+    add_site,
+    open_lake,
+    output_folder,
+)
 
 HELP = (
     "close the daily water balance: monthly and water-year tables with 5-95 percent residual bands"
@@ -53,12 +61,13 @@ def run(args: argparse.Namespace) -> int:
     if args.draws is not None and args.draws < 0:
         raise LakebalanceError("--draws must be 0 or more")
     lake = open_lake(args, draws=args.draws)
+    out = output_folder(args, lake)
     site, seed = lake.site, lake.seed
     with LakebalanceWarnings() as messages:
         balance = lake.balance
     annual = balance.water_years()
     monthly = balance.monthly()
-    files = _write_outputs(args.out, balance, annual, monthly, seed) if args.out else []
+    files = _write_outputs(out, balance, annual, monthly, seed) if out else []
 
     if args.json:
         doc = {
@@ -104,7 +113,6 @@ def run(args: argparse.Namespace) -> int:
 def _write_outputs(out, balance, annual, monthly, seed) -> list:
     from ..io.output import write_csv, write_parquet, write_text
 
-    out.mkdir(parents=True, exist_ok=True)
     daily = balance.daily.copy()
     files = [
         write_csv(out / "balance_daily.csv", daily),

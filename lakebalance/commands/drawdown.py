@@ -4,7 +4,15 @@ from __future__ import annotations
 
 import argparse
 
-from ._common import LakebalanceWarnings, add_json, add_out, add_seed, add_site, open_lake
+from ._common import (
+    LakebalanceWarnings,
+    add_json,
+    add_out,
+    add_seed,
+    add_site,
+    open_lake,
+    output_folder,
+)
 
 HELP = "forecast the drawdown of the lake: odds and dates of reaching each named level"
 
@@ -48,6 +56,7 @@ def run(args: argparse.Namespace) -> int:
     from .._json import dumps
 
     lake = open_lake(args, progress=not args.no_progress and sys.stderr.isatty())
+    out = output_folder(args, lake)
     site, seed = lake.site, lake.seed
     with LakebalanceWarnings() as caught:
         forecast = lake.forecast(
@@ -58,11 +67,10 @@ def run(args: argparse.Namespace) -> int:
             start_stage_m=args.start_stage,
         )
     written = []
-    if args.out is not None:
+    if out is not None:
         from ..io.output import save_figure, write_csv, write_text
         from ..report.figures_drawdown import fan_chart
 
-        out = args.out
         written.append(
             write_csv(out / "drawdown_stage_percentiles.csv", forecast.stage_percentiles)
         )

@@ -4,7 +4,15 @@ from __future__ import annotations
 
 import argparse
 
-from ._common import LakebalanceWarnings, add_json, add_out, add_seed, add_site, open_lake
+from ._common import (
+    LakebalanceWarnings,
+    add_json,
+    add_out,
+    add_seed,
+    add_site,
+    open_lake,
+    output_folder,
+)
 
 HELP = "fit the outlet rating curve to the spot gaugings, with its uncertainty"
 
@@ -23,6 +31,7 @@ def run(args: argparse.Namespace) -> int:
     from ..outlet.fit import CAUTION
 
     lake = open_lake(args)
+    out = output_folder(args, lake)
     site, seed = lake.site, lake.seed
     with LakebalanceWarnings():  # collected in fit.warnings
         fit = lake.rating
@@ -43,8 +52,8 @@ def run(args: argparse.Namespace) -> int:
     if extra is not None:
         messages += extra.messages()
 
-    if args.out is not None:
-        _write_outputs(args.out, fit, stage)
+    if out is not None:
+        _write_outputs(out, fit, stage)
 
     if args.json:
         fit_doc = fit.to_dict()
@@ -92,7 +101,6 @@ def _write_outputs(out, fit, stage) -> None:
     from ..io.output import save_figure, write_csv
     from ..report.figures_rating import curve_grid, rating_figure, rating_residual_figure
 
-    out.mkdir(parents=True, exist_ok=True)
     write_csv(out / "rating_gaugings.csv", fit.table, index=False)
     top = None if stage is None or stage.dropna().empty else float(stage.max())
     h = curve_grid(fit, top)

@@ -62,6 +62,21 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         metavar="M",
         help="ensemble members of the drawdown fan chart (default: site file)",
     )
+    parser.add_argument(
+        "--site-timeout",
+        type=float,
+        default=None,
+        metavar="SECONDS",
+        help="time one site of a batch may take before its worker is stopped (default: 3600)",
+    )
+    parser.add_argument(
+        "--site-memory",
+        type=float,
+        default=None,
+        metavar="GIB",
+        help="memory limit of one site's worker in GiB (default: the available memory shared "
+        "by the workers)",
+    )
     add_seed(parser)
 
 
@@ -80,10 +95,19 @@ def _expand(paths: list[Path]) -> tuple[list[Path], dict[str, tuple]]:
     return sites, coords
 
 
+def _limits(args: argparse.Namespace):
+    from ..batch import BatchOptions
+
+    given = {"site_timeout": args.site_timeout, "site_memory": args.site_memory}
+    return BatchOptions(**{k: v for k, v in given.items() if v is not None})
+
+
 def run(args: argparse.Namespace) -> int:
     from ..batch import run_batch
 
     sites, coords = _expand(list(args.sites))
+    registers = [p for p in args.sites if p.suffix.lower() in (".csv", ".gpkg", ".geojson", ".shp")]
+    limits = _limits(args)
     options = {k: v for k, v in (("draws", args.draws), ("members", args.members)) if v}
     progress = sys.stderr.isatty()
     if len(sites) == 1 and args.scheduler is None:
@@ -106,9 +130,13 @@ def run(args: argparse.Namespace) -> int:
         progress=progress,
         options=options,
         coordinates=coords,
+        limits=limits,
+        inputs=registers,
     )
     for o in batch.outcomes:
         status = f"ok   {o.report}" if o.ok else f"FAIL {o.error}"
         print(f"{o.name:<30} {status}")
+        if o.note:
+            print(f"{'':<30} note: {o.note}")
     print(f"index: {batch.index}")
     return 0 if not batch.failed else 2

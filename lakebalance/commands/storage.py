@@ -3,9 +3,10 @@
 from __future__ import annotations
 
 import argparse
+import os
 from pathlib import Path
 
-from ._common import LakebalanceWarnings, add_json, add_out, add_site, open_lake
+from ._common import LakebalanceWarnings, add_json, add_out, add_site, open_lake, output_folder
 
 HELP = "the stage-area-storage relation at a regular stage step, with a figure"
 
@@ -45,13 +46,14 @@ def run(args: argparse.Namespace) -> int:
         raise LakebalanceError(f"--step must be a positive number of metres, got {args.step}")
     lake = open_lake(args)
     site = lake.site
+    out = output_folder(args, lake, args.compare)
     with LakebalanceWarnings() as messages:
         curve = lake.storage
         compare_file = args.compare or (site.storage.compare if site.storage else None)
         other = None
         comparison = None
         if compare_file is not None:
-            other = lake.survey(Path(compare_file).expanduser().resolve())
+            other = lake.survey(Path(os.path.realpath(Path(compare_file).expanduser())))
             comparison = compare_curves(curve, other, args.step)
         location = lake.location
         table = curve.table(args.step)
@@ -60,8 +62,8 @@ def run(args: argparse.Namespace) -> int:
         given = site.site.latitude is not None and site.site.longitude is not None
         location_from = "site file" if given else "survey centroid"
 
-    if args.out is not None:
-        _write_outputs(args.out, curve, other, table, comparison, args.step, site.levels)
+    if out is not None:
+        _write_outputs(out, curve, other, table, comparison, args.step, site.levels)
 
     if args.json:
         doc = {
@@ -116,7 +118,6 @@ def _write_outputs(out, curve, other, table, comparison, step, levels) -> None:
     from ..io.output import save_figure, write_csv
     from ..report.figures_storage import storage_figure
 
-    out.mkdir(parents=True, exist_ok=True)
     write_csv(out / "storage_table.csv", table, index=False)
     if comparison is not None:
         frame = pd.DataFrame({k: v for k, v in comparison.items() if not k.startswith("max_")})

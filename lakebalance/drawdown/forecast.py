@@ -23,6 +23,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
+from ..resources import check_memory
 from ..results import Summary
 from ..units import SECONDS_PER_DAY
 from .engine import EngineResult, build_tables, simulate
@@ -497,6 +498,7 @@ def run_forecast(
     lo, hi = stage_range_m
     floor = lo if dead_level_m is None else float(dead_level_m)
     out_fn = outflow_variants if outflow_variants is not None and variants > 0 else outflow
+    _check_forecast_memory(forcing, samples, plan, hi - lo)
     tables = build_tables(
         area,
         out_fn,
@@ -607,6 +609,38 @@ def run_forecast(
 
 def _no_outflow(h: np.ndarray) -> np.ndarray:
     return np.zeros_like(np.asarray(h, dtype=float))
+
+
+def _check_forecast_memory(
+    forcing: Forcing, samples: ModelSamples, plan: ForecastPlan, span_m: float
+) -> None:
+    """Stop a forecast whose arrays would not fit, before they are made.
+
+    Per member and day (float64): five forcing terms, the stage path, withdrawal and cut, the
+    volume and the sorted copies of the percentiles, about 12 arrays (twice with restriction
+    rules, which run the members again without them). Per rating variant: its discharge on the
+    stage grid (at most 65,536 points, see :func:`~lakebalance.drawdown.engine.build_tables`),
+    with its slope and two working copies.
+    """
+    days = forcing.inflow_m3s.shape[0]
+    m = forcing.members
+    if samples.evaporation_factor is not None:
+        m = max(m, int(samples.evaporation_factor.size))
+    runs = 2 if plan.restriction else 1
+    check_memory(
+        8.0 * 12 * runs * (days + 1) * m,
+        option="members",
+        value=m,
+        what=f"a forecast of {days:,} days",
+    )
+    if samples.variants > 0:
+        grid = min(65_536, int(np.ceil(max(span_m, 0.0) / 0.001)) + 1)
+        check_memory(
+            8.0 * 4 * samples.variants * grid,
+            option="rating_variants",
+            value=samples.variants,
+            what=f"the sampled ratings on a stage grid of {grid:,} points",
+        )
 
 
 def _take_members(forcing: Forcing, idx: np.ndarray) -> Forcing:

@@ -7,7 +7,11 @@ from typing import Literal
 
 from ..options import Options, setting
 
-__all__ = ["DemandRule", "DrawdownOptions"]
+__all__ = ["DemandRule", "DrawdownOptions", "MAX_MEMBERS", "MAX_DAYS", "MAX_RATING_VARIANTS"]
+
+MAX_MEMBERS = 1_000_000  # members; an exceedance probability is stable to 0.1 % long before
+MAX_DAYS = 36_525  # days (100 years): a drought outlook, well inside the datetime range
+MAX_RATING_VARIANTS = 100_000  # ratings drawn from the fit's covariance
 
 
 @dataclass(frozen=True)
@@ -23,8 +27,9 @@ class DrawdownOptions(Options):
     """``[drawdown]``: defaults of the drought forecast."""
 
     scenario: Literal["replay", "percentile", "stochastic", "constant"] = "replay"
-    members: int = setting(1000, unit="members", low=1)
-    days: int = setting(365, unit="days", low=1)
+    # ensemble size and horizon; the memory they need is checked when the forecast is made
+    members: int = setting(1000, unit="members", low=1, high=MAX_MEMBERS)
+    days: int = setting(365, unit="days", low=1, high=MAX_DAYS)
     percentile: float = setting(10.0, unit="%", low=0.0, high=100.0, low_open=True, high_open=True)
     inflow: float = setting(0.0, unit="m3/s", low=0.0)  # constant scenario
     demand: float | list[float] | None = setting(None, unit="m3/s", low=0.0)  # or 12 monthly
@@ -36,5 +41,5 @@ class DrawdownOptions(Options):
     stochastic: Literal["bootstrap", "ar1"] = "bootstrap"  # model of the stochastic scenario
     block_days: int = setting(30, unit="days", low=1)  # block length of the bootstrap
     dead_level: str | None = None  # [levels] name below which draws stop (default "dead")
-    rating_variants: int = setting(200, unit="ratings", low=1)  # shared by the members
+    rating_variants: int = setting(200, unit="ratings", low=1, high=MAX_RATING_VARIANTS)  # shared
     seepage: bool = True  # include the seepage law estimated from the balance residual

@@ -33,6 +33,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import ConfigError
+from ..resources import check_memory
 
 __all__ = ["Forcing", "TERMS", "climatology", "build_forcing"]
 
@@ -225,6 +226,19 @@ def build_forcing(
     """
     if days < 1:
         raise ConfigError(f"the forecast horizon must be at least one day, got {days}")
+    last = pd.Timestamp.max.normalize() - pd.Timedelta(days=1)
+    if (last - pd.Timestamp(start)).days < days:
+        raise ConfigError(
+            f"a horizon of {days:,} days from {pd.Timestamp(start).date()} ends after "
+            f"{last.date()}, the last date the forecast can hold"
+        )
+    if scenario == "stochastic":  # the five daily terms of every member
+        check_memory(
+            5 * 8.0 * days * members,
+            option="members",
+            value=members,
+            what=f"the stochastic forcing of {days:,} days",
+        )
     dates = pd.date_range(start + pd.Timedelta(days=1), periods=days, freq="D", name="date")
     doy = _doy(dates)
     clim = {t: _filled(history, t)[1] for t in TERMS}

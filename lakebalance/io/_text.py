@@ -16,7 +16,8 @@ from pathlib import Path
 
 import numpy as np
 
-from ..errors import InputError, suggest
+from ..errors import InputError, LimitError, excerpt, suggest
+from .files import MAX_COLUMNS, MAX_LINE_CHARS, read_input
 
 __all__ = ["TextTable", "decode", "sniff_delimiter", "read_text_table", "resolve_column"]
 
@@ -58,18 +59,22 @@ def _looks_binary(head: bytes) -> bool:
     return control > 0.05 * len(head)
 
 
-def decode(raw: bytes, file: str, encoding: str | None = None) -> tuple[str, str]:
+def decode(
+    raw: bytes, file: str, encoding: str | None = None, what: str | None = None
+) -> tuple[str, str]:
     """Decode the bytes of a text file; return ``(text, encoding_used)``.
 
     With ``encoding`` given, that encoding is used (a byte it cannot decode is an
     :class:`InputError` naming the line). Otherwise a byte-order mark decides (UTF-8, UTF-16);
-    without one UTF-8 is tried, then Windows-1252, then Latin-1.
+    without one the whole file must be valid UTF-8 (plain ASCII is). A file that is neither is
+    an error naming the line of its first byte that is not UTF-8: guessing another encoding
+    would change the header and every name silently when one stray byte sits in a UTF-8 file.
 
     Raises
     ------
     InputError
-        Binary content (NUL or control bytes, a zip container such as an .xlsx workbook) or
-        undecodable bytes in the declared encoding.
+        Binary content (NUL or control bytes, a zip container such as an .xlsx workbook),
+        undecodable bytes in the declared encoding, or an undeclared file that is not UTF-8.
     """
     bom_enc = None
     for bom, enc in _BOMS:
@@ -108,12 +113,30 @@ def decode(raw: bytes, file: str, encoding: str | None = None) -> tuple[str, str
                 f"the file starts with a {bom_enc} mark but is not {bom_enc}", file=file
             ) from None
         return text.lstrip("\ufeff"), bom_enc
-    for enc in ("utf-8", "cp1252", "latin-1"):
-        try:
-            return raw.decode(enc), enc
-        except UnicodeDecodeError:
-            continue
-    raise AssertionError("latin-1 decodes every byte")  # pragma: no cover
+    try:
+        return raw.decode("utf-8"), "utf-8"
+    except UnicodeDecodeError as exc:
+        line = raw[: exc.start].count(b"\n") + 1
+        raise InputError(
+            (f"{what}: " if what else "")
+            + f"byte 0x{raw[exc.start]:02x} is not UTF-8 and no 'encoding' is declared; "
+            f"{_encoding_hint(raw)}",
+            file=file,
+            line=line,
+        ) from None
+
+
+def _encoding_hint(raw: bytes) -> str:
+    """What to declare for a file that is not UTF-8, judged from the whole file."""
+    import re as _re
+
+    multibyte = _re.search(rb"[\xc2-\xf4][\x80-\xbf]+", raw) is not None
+    if multibyte:
+        return (
+            "the rest of the file reads as UTF-8, so this byte is probably a stray one: fix "
+            "it, or declare the file's encoding (e.g. encoding = 'cp1252')"
+        )
+    return "declare the file's encoding, e.g. encoding = 'cp1252' (Windows Western European)"
 
 
 def sniff_delimiter(sample_lines: list[str], decimal: str = ".") -> str | None:
@@ -167,7 +190,7 @@ def resolve_column(
         pos = int(want.strip())
         if 1 <= pos <= len(header):
             return pos - 1
-    found = ", ".join(repr(h) for h in header[:12]) + (" ..." if len(header) > 12 else "")
+    found = ", ".join(excerpt(h, 40) for h in header[:12]) + (" ..." if len(header) > 12 else "")
     hint = suggest(want, stripped)
     if len(header) == 1:
         for cand in _CANDIDATE_DELIMITERS:
@@ -175,7 +198,7 @@ def resolve_column(
                 hint += f"; the header is one field: is the delimiter {cand!r}?"
                 break
     raise InputError(
-        f"{what}: no {role} {want!r}; the header has {found}{hint}",
+        f"{what}: no {role} {excerpt(want, 40)}; the header has {found}{hint}",
         file=file,
         line=line,
     )
@@ -191,6 +214,7 @@ def read_text_table(
     encoding: str | None = None,
     string_columns: tuple[str, ...] = (),
     iso_columns: tuple[str, ...] = (),
+    thousands: str | None = None,
 ) -> TextTable:
     """Read the columns ``wanted`` (our key -> the user's column) of a delimited text file.
 
@@ -205,21 +229,23 @@ def read_text_table(
     multi-threaded CSV reader; anything it does not accept falls back to pandas' C parser.
     Extra fields at the end of a row are ignored; missing ones are empty.
 
+    A number split by the delimiter (an unquoted ``1,234`` in a comma-delimited file) stops the
+    reading with its line. ``thousands`` is the separator the numbers may carry; it may be the
+    delimiter when such numbers are quoted (``"1,234"``), and is applied by the callers.
+
     Raises
     ------
     InputError
-        Unreadable, empty, binary or header-only file; a wanted column that is not in the header.
+        Unreadable, empty, binary or header-only file; a wanted column that is not in the header;
+        a number split by the delimiter.
+    LimitError
+        Not a regular file, or past a documented limit (file size, line length, columns).
     """
     import pandas as pd
 
     file = str(path)
-    try:
-        raw = Path(path).read_bytes()
-    except FileNotFoundError:
-        raise InputError(f"{what}: file not found", file=file) from None
-    except OSError as exc:
-        raise InputError(f"{what}: cannot read the file ({exc.strerror})", file=file) from None
-    text, used_encoding = decode(raw, file, encoding)
+    raw = read_input(path, what)
+    text, used_encoding = decode(raw, file, encoding, what)
     if used_encoding in ("utf-8", "utf-8-sig", "ascii"):
         data = raw[3:] if raw.startswith(b"\xef\xbb\xbf") else raw
     else:
@@ -236,6 +262,7 @@ def read_text_table(
     starts = starts[starts < len(data)]
     last_end = len(data) - 1 if data.endswith(b"\n") else len(data)
     ends = np.concatenate((starts[1:] - 1, [last_end]))  # exclusive, without the newline
+    _check_line_lengths(data, starts, ends, what, file)
     # Skip blank, whitespace-only and '#' comment lines (Python only over lines starting oddly).
     candidate = np.flatnonzero(np.isin(buf[starts], [10, 32, 9, 35]))
     skip = np.zeros(len(starts), dtype=bool)
@@ -257,6 +284,13 @@ def read_text_table(
             f"{what}: the decimal mark and the field delimiter are both {delimiter!r}",
             file=file,
         )
+    if header_text.count(delimiter) >= MAX_COLUMNS:
+        raise LimitError(
+            f"{what}: the header has {header_text.count(delimiter) + 1:,} fields, over the "
+            f"limit of {MAX_COLUMNS:,} columns",
+            file=file,
+            line=header_line,
+        )
     try:
         header = tuple(next(_csv.reader([header_text], delimiter=delimiter)))
     except (_csv.Error, StopIteration):
@@ -271,6 +305,11 @@ def read_text_table(
         raise InputError(
             f"{what}: the file has a header but no data rows", file=file, line=header_line
         )
+    if delimiter == ",":
+        numeric = sorted(
+            {p for k, p in positions.items() if k not in (*string_columns, *iso_columns)}
+        )
+        _check_split_thousands(data, starts, ends, data_idx[1:], len(header), numeric, what, file)
     # The bytes pandas sees: only the data lines (header first).
     if skip.any():
         keep = np.concatenate(([0], (~skip).astype(np.int8), [0]))
@@ -472,8 +511,116 @@ def _check_split_decimals(
     i = longer[0]
     raise InputError(
         f"{what}: this row has {len(rows[i])} fields but the header has {k} "
-        f"({sample[1 + i].strip()!r}): numbers with a decimal comma in a comma-delimited "
+        f"({excerpt(sample[1 + i].strip())}): numbers with a decimal comma in a comma-delimited "
         "file? Save it with ';' or tab between fields and set decimal = ','",
         file=file,
         line=int(line_numbers[1 + i]),
+    )
+
+
+def _check_line_lengths(
+    data: bytes, starts: np.ndarray, ends: np.ndarray, what: str, file: str
+) -> None:
+    """Stop a file with a line longer than :data:`~lakebalance.io.files.MAX_LINE_CHARS` bytes."""
+    if len(data) <= MAX_LINE_CHARS or starts.size == 0:
+        return
+    lengths = ends - starts
+    i = int(np.argmax(lengths))
+    if lengths[i] > MAX_LINE_CHARS:
+        head = data[starts[i] : starts[i] + 120].decode("utf-8", "replace")
+        raise LimitError(
+            f"{what}: the line is {int(lengths[i]):,} bytes long, over the limit of "
+            f"{MAX_LINE_CHARS:,} ({excerpt(head)}...)",
+            file=file,
+            line=i + 1,
+        )
+
+
+def _split_number_rows(
+    data: bytes,
+    starts: np.ndarray,
+    ends: np.ndarray,
+    rows: np.ndarray,
+    n_header: int,
+    columns: list[int],
+) -> np.ndarray:
+    """Rows (line indices) where an integer of one to three digits in one of ``columns`` is
+    followed by a field of exactly three digits, in a row longer than the header: the halves
+    of a number like ``1,234`` split by a comma delimiter. Lines holding a quote are judged by
+    the csv module, the others by counting delimiters (vectorised)."""
+    buf = np.frombuffer(data, dtype=np.uint8)
+    dpos = np.flatnonzero(buf == ord(","))
+    a, b = starts[rows], ends[rows]
+    first = np.searchsorted(dpos, a)
+    count = np.searchsorted(dpos, b) - first
+    qpos = np.flatnonzero(buf == ord('"'))
+    quoted = (np.searchsorted(qpos, b) - np.searchsorted(qpos, a)) > 0
+    longer = (count + 1 > n_header) & ~quoted
+    digit = (buf >= 48) & (buf <= 57)
+    hits = np.zeros(len(rows), dtype=bool)
+    for p in columns:
+        cand = np.flatnonzero(longer & (count >= p + 1))
+        if cand.size == 0:
+            continue
+        f = first[cand]
+        s0 = a[cand] if p == 0 else dpos[f + p - 1] + 1
+        e0 = dpos[f + p]
+        s1 = e0 + 1
+        nxt = f + p + 1
+        e1 = np.where(
+            nxt < first[cand] + count[cand], dpos[np.minimum(nxt, dpos.size - 1)], b[cand]
+        )
+        sign = np.isin(buf[np.minimum(s0, buf.size - 1)], (ord("+"), ord("-"))) & (e0 > s0)
+        s0d = s0 + sign
+        n0 = e0 - s0d
+        ok = (n0 >= 1) & (n0 <= 3) & (e1 - s1 == 3)
+        for k in range(3):  # every byte of both fields is a digit
+            ok &= np.where(k < n0, digit[np.minimum(s0d + k, buf.size - 1)], True)
+            ok &= digit[np.minimum(s1 + k, buf.size - 1)]
+        hits[cand[ok]] = True
+    for j in np.flatnonzero(quoted):  # few lines in most files: the csv module's rules
+        try:
+            fields = next(_csv.reader([data[a[j] : b[j]].decode("utf-8", "replace")]))
+        except (_csv.Error, StopIteration):
+            continue
+        if len(fields) <= n_header:
+            continue
+        for p in columns:
+            if p + 1 < len(fields) and _SHORT_INTEGER.fullmatch(fields[p]):
+                if _THREE_DIGITS.fullmatch(fields[p + 1]):
+                    hits[j] = True
+    return rows[hits]
+
+
+_SHORT_INTEGER = re.compile(r"[-+]?\d{1,3}")
+_THREE_DIGITS = re.compile(r"\d{3}")
+
+
+def _check_split_thousands(
+    data: bytes,
+    starts: np.ndarray,
+    ends: np.ndarray,
+    rows: np.ndarray,
+    n_header: int,
+    columns: list[int],
+    what: str,
+    file: str,
+) -> None:
+    """Stop a comma-delimited file where a number such as ``1,234`` is split by the delimiter
+    (it would silently be read as 1, the ``234`` taken for an extra field)."""
+    if not columns or rows.size == 0:
+        return
+    found = _split_number_rows(data, starts, ends, rows, n_header, columns)
+    if found.size == 0:
+        return
+    i = int(found[0])
+    text = data[starts[i] : ends[i]].decode("utf-8", "replace").strip()
+    more = f" ({found.size - 1:,} more such rows)" if found.size > 1 else ""
+    raise InputError(
+        f"{what}: a number split by the comma delimiter? {excerpt(text)} has more fields than "
+        f'the header{more}; quote numbers with a thousands separator ("1,234") and set '
+        "thousands = ',', save the file with ';' between fields, or name the extra column in "
+        "the header",
+        file=file,
+        line=i + 1,
     )

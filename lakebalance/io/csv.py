@@ -35,6 +35,7 @@ def read_csv_series(spec: SeriesSpec, what: str) -> RawSeries:
         delimiter=delimiter,
         decimal=spec.decimal,
         encoding=spec.encoding,
+        thousands=spec.thousands,
         string_columns=("date", "time") if (spec.time or spec.format) else (),
         iso_columns=() if (spec.time or spec.format) else ("date",),
     )

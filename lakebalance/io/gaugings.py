@@ -103,6 +103,7 @@ def read_gaugings(options: OutletOptions) -> Gaugings:
         sheet=options.sheet,
         delimiter=options.delimiter,
         decimal=options.decimal,
+        encoding=options.encoding,
         dayfirst=options.dayfirst,
         date_columns=("date",) if options.date else (),
     )

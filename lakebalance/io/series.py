@@ -34,7 +34,7 @@ from ..errors import ConfigError, InputError, UnitError
 from ..records import Finding, RowAccount, SeriesInfo
 from ..units import INTERNAL_UNITS, ROLE_KINDS, SECONDS_PER_DAY, Conversion, conversion
 from ._raw import RawSeries
-from .tables import to_numbers
+from .tables import ambiguity_error, ambiguous_numbers, to_numbers
 
 if TYPE_CHECKING:  # pragma: no cover
     import pandas as pd
@@ -345,7 +345,19 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
         )
 
     # 3. numbers -----------------------------------------------------------------------------
-    values, bad_num = to_numbers(raw.values, raw.decimal)
+    unclear = ambiguous_numbers(raw.values, raw.decimal, spec.thousands)
+    if unclear.any():
+        i = int(np.flatnonzero(unclear)[0])
+        raise ambiguity_error(
+            raw.values.iloc[i],
+            raw.decimal,
+            what=what,
+            key_hint=f"set {{}} in [series.{role}] if that is what it is",
+            file=file,
+            line=int(lines[i]),
+            column=raw.value_column,
+        )
+    values, bad_num = to_numbers(raw.values, raw.decimal, spec.thousands)
     bad_num &= ~nat
     if bad_num.any():
         status[bad_num] = _REJECTED

@@ -108,6 +108,7 @@ def _read_table(options: StorageOptions, path: Path) -> StorageCurve:
         sheet=options.sheet,
         delimiter=options.delimiter,
         decimal=options.decimal,
+        encoding=options.encoding,
     )
     stage = to_si(frame["stage"].to_numpy(), options.stage_units, "length", "storage stage")
     area = to_si(frame["area"].to_numpy(), options.area_units, "area", "storage area")

@@ -7,19 +7,20 @@ number in it changes every result. Every error names the file, the line and the 
 
 from __future__ import annotations
 
+import re
 from collections.abc import Iterable
 from pathlib import Path
 from typing import TYPE_CHECKING
 
 import numpy as np
 
-from ..errors import InputError
+from ..errors import InputError, excerpt
 from ._text import TextTable
 
 if TYPE_CHECKING:  # pragma: no cover
     import pandas as pd
 
-__all__ = ["read_table", "read_raw_table", "to_numbers"]
+__all__ = ["read_table", "read_raw_table", "to_numbers", "ambiguous_numbers", "ambiguity_error"]
 
 
 def read_raw_table(
@@ -53,11 +54,59 @@ def read_raw_table(
     )
 
 
-def to_numbers(cells: pd.Series, decimal: str = ".") -> tuple[np.ndarray, np.ndarray]:
+_GROUPED = {  # thousands separator -> a number written with it, e.g. 1,234 or 1.234.567,5
+    t: rf"[-+]?\d{{1,3}}(?:{re.escape(t)}\d{{3}})+"
+    for t in (",", ".", " ", "'", "\u00a0", "\u202f")
+}
+
+
+def _text_cells(cells: pd.Series) -> tuple[pd.Series, np.ndarray]:
+    """The stripped text cells of a column (others None) and the mask of text cells."""
+    text = cells.astype(object)
+    is_str = text.map(lambda v: isinstance(v, str)).to_numpy(dtype=bool)
+    out = text.where(is_str, None)
+    if is_str.any():
+        out = out.copy()
+        out[is_str] = text[is_str].str.strip()
+    return out, is_str
+
+
+def ambiguous_numbers(
+    cells: pd.Series, decimal: str = ".", thousands: str | None = None
+) -> np.ndarray:
+    """Mask of the text cells whose number depends on a thousands separator not declared.
+
+    With no ``thousands`` declared, ``12.345`` in a file with a decimal comma could be twelve
+    thousand or twelve, and ``1,234`` in a file with a decimal point could be one thousand or a
+    misplaced decimal comma; neither is guessed. Cells of such a shape are returned so that the
+    caller stops with their line.
+    """
+    import pandas as pd
+
+    if thousands is not None or pd.api.types.is_numeric_dtype(cells):
+        return np.zeros(len(cells), dtype=bool)
+    text, is_str = _text_cells(cells)
+    if not is_str.any():
+        return np.zeros(len(cells), dtype=bool)
+    if decimal == ",":
+        pattern = r"[-+]?\d*\.\d+(?:,\d*)?(?:[eE][-+]?\d+)?"
+    else:
+        pattern = _GROUPED[","] + r"(?:\.\d*)?"
+    hit = text[is_str].str.fullmatch(pattern).fillna(False).astype(bool)
+    mask = np.zeros(len(cells), dtype=bool)
+    mask[is_str] = hit.to_numpy()
+    return mask
+
+
+def to_numbers(
+    cells: pd.Series, decimal: str = ".", thousands: str | None = None
+) -> tuple[np.ndarray, np.ndarray]:
     """Floats of a column of cells, and a mask of the non-empty cells that are not numbers.
 
     Floats pass through; text cells are stripped and parsed (with ``decimal`` as the decimal
-    mark); empty cells are NaN and not counted as bad.
+    mark, and ``thousands`` as the thousands separator when declared: a cell using it must
+    group the digits by three, ``1,234,567.5``, or it is not a number); empty cells are NaN and
+    not counted as bad.
     """
     import pandas as pd
 
@@ -67,19 +116,33 @@ def to_numbers(cells: pd.Series, decimal: str = ".") -> tuple[np.ndarray, np.nda
         return np.where(bad, np.nan, values), bad
     text = cells.astype(object)
     kind = pd.api.types.infer_dtype(text, skipna=True)
-    if kind in ("string", "empty"):
-        stripped = text.str.strip()
+
+    def clean(stripped: pd.Series) -> pd.Series:
+        if thousands is not None:
+            has = stripped.str.contains(thousands, regex=False).fillna(False).astype(bool)
+            if has.any():
+                grouped = _GROUPED.get(thousands) or (
+                    rf"[-+]?\d{{1,3}}(?:{re.escape(thousands)}\d{{3}})+"
+                )
+                dec = re.escape(decimal)
+                ok = stripped[has].str.fullmatch(grouped + rf"(?:{dec}\d*)?(?:[eE][-+]?\d+)?")
+                ok = ok.fillna(False).astype(bool)
+                stripped = stripped.copy()
+                stripped[has & ~ok.reindex(stripped.index, fill_value=False)] = "not a number"
+                stripped[has] = stripped[has].str.replace(thousands, "", regex=False)
         if decimal != ".":
             stripped = stripped.str.replace(decimal, ".", regex=False)
+        return stripped
+
+    if kind in ("string", "empty"):
+        stripped = clean(text.str.strip())
         text = stripped.where(stripped != "", None)
         odd = np.zeros(len(text), dtype=bool)
     else:  # spreadsheet cells: numbers, text, booleans, datetimes mixed
         is_str = text.map(lambda v: isinstance(v, str), na_action="ignore")
         is_str = is_str.fillna(False).astype(bool)
         if is_str.any():
-            stripped = text[is_str].str.strip()
-            if decimal != ".":
-                stripped = stripped.str.replace(decimal, ".", regex=False)
+            stripped = clean(text[is_str].str.strip())
             text = text.copy()
             text[is_str] = stripped.where(stripped != "", None)
         odd = text.map(lambda v: isinstance(v, bool) or hasattr(v, "year"), na_action="ignore")
@@ -90,6 +153,21 @@ def to_numbers(cells: pd.Series, decimal: str = ".") -> tuple[np.ndarray, np.nda
     bad = (np.isnan(values) & ~empty) | odd | np.isinf(values)
     values = np.where(bad, np.nan, values)
     return values, bad
+
+
+def ambiguity_error(cell: object, decimal: str, *, what: str, key_hint: str, **where) -> InputError:
+    """The error for a cell found by :func:`ambiguous_numbers` (``key_hint`` says where to set
+    ``thousands``, or what to do when the table has no such key)."""
+    if decimal == ",":
+        why = "with decimal = ',' a '.' can only separate thousands"
+        setting = "thousands = '.'"
+    else:
+        why = "with a decimal point a ',' between digit groups can only separate thousands"
+        setting = "thousands = ','"
+    return InputError(
+        f"{what}: {excerpt(str(cell).strip())} is ambiguous ({why}); {key_hint.format(setting)}",
+        **where,
+    )
 
 
 def read_table(
@@ -175,7 +253,7 @@ def read_table(
             if bad.any():
                 i = int(np.flatnonzero(bad)[0])
                 raise InputError(
-                    f"{what}: column {columns[key]!r}: {str(cells.iloc[i]).strip()!r} is not a date",
+                    f"{what}: column {columns[key]!r}: {excerpt(str(cells.iloc[i]).strip())} is not a date",
                     file=raw.file,
                     line=int(raw.lines[i]),
                     column=raw.positions[key],
@@ -183,14 +261,26 @@ def read_table(
             out[key] = stamps
             all_empty &= np.asarray(stamps.isna())
         else:
+            unclear = ambiguous_numbers(cells, decimal)
+            if unclear.any():
+                i = int(np.flatnonzero(unclear)[0])
+                raise ambiguity_error(
+                    cells.iloc[i],
+                    decimal,
+                    what=f"{what}: column {columns[key]!r}",
+                    key_hint="write the table's numbers without thousands separators",
+                    file=raw.file,
+                    line=int(raw.lines[i]),
+                    column=raw.positions[key],
+                )
             values, bad = to_numbers(cells, decimal)
             if bad.any():
                 i = int(np.flatnonzero(bad)[0])
                 n = int(bad.sum())
                 more = f" ({n - 1} more such cells)" if n > 1 else ""
                 raise InputError(
-                    f"{what}: column {columns[key]!r}: {str(cells.iloc[i]).strip()!r} is not a "
-                    f"number{more}",
+                    f"{what}: column {columns[key]!r}: {excerpt(str(cells.iloc[i]).strip())} is not "
+                    f"a number{more}",
                     file=raw.file,
                     line=int(raw.lines[i]),
                     column=raw.positions[key],

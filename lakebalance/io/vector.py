@@ -60,8 +60,12 @@ def read_layer(path: str | Path, *, layer: str | None = None, what: str) -> gpd.
     import geopandas as gpd
     import pyogrio
 
+    from .files import check_input
+
     path = Path(path)
-    if not path.exists():
+    if not path.is_dir():  # a folder may hold a layer set (a folder of shapefiles)
+        check_input(path, what)
+    elif not path.exists():  # pragma: no cover - is_dir() was false
         raise InputError(f"{what}: file not found", file=path)
     if layer is not None:
         try:

@@ -16,8 +16,9 @@ import re
 import numpy as np
 
 from ..config import SeriesSpec
-from ..errors import InputError
+from ..errors import InputError, excerpt
 from ._raw import RawSeries
+from .files import open_input
 
 __all__ = ["NS", "ucum_to_unit", "read_waterml2_series"]
 
@@ -72,29 +73,74 @@ def _text(el: object | None) -> str | None:
     return None if t is None else t.strip()
 
 
+_PROLOG_BYTES = 1 << 16  # bytes read to find a DOCTYPE before the root element
+_ROOT_START = re.compile(rb"<[A-Za-z_]")
+
+
+def _doctype_error(what: str, file: str) -> InputError:
+    return InputError(
+        f"{what}: the document declares a DOCTYPE (a DTD, maybe entities); WaterML 2.0 "
+        "documents have none, and such documents are refused",
+        file=file,
+    )
+
+
+def _refuse_doctype(head: bytes, what: str, file: str) -> None:
+    """Refuse a document whose prolog (the part before the root element) holds ``<!DOCTYPE``,
+    in UTF-8 or UTF-16."""
+    for enc in ("utf-8", "utf-16-le", "utf-16-be"):
+        mark = "<!DOCTYPE".encode(enc)
+        at = head.find(mark)
+        if at < 0:
+            continue
+        if enc == "utf-8":
+            root = _ROOT_START.search(head)
+            if root is not None and root.start() < at:
+                continue  # inside the document, e.g. in a CDATA section
+        raise _doctype_error(what, file)
+
+
 def read_waterml2_series(spec: SeriesSpec, what: str) -> RawSeries:
     """Read the times, values and unit of one WaterML 2.0 measurement time series.
 
     Raises
     ------
     InputError
-        Not XML, not WaterML 2.0, several series and none selected by ``value``, points without
-        a time, or points in a unit different from the series' default.
+        Not XML, not WaterML 2.0, a DOCTYPE (refused: entities and DTDs are never followed),
+        several series and none selected by ``value``, points without a time, or points in a
+        unit different from the series' default.
+    LimitError
+        Not a regular file, or larger than the file-size limit.
     """
     import pandas as pd
     from lxml import etree
 
     file = str(spec.file)
-    try:
-        tree = etree.parse(str(spec.file), etree.XMLParser(huge_tree=True, resolve_entities=False))
-    except OSError as exc:
-        raise InputError(f"{what}: cannot read the file ({exc})", file=file) from None
-    except etree.XMLSyntaxError as exc:
-        line = exc.lineno if exc.lineno else None
-        col = exc.offset if exc.offset else None
-        raise InputError(
-            f"{what}: not well-formed XML ({exc.msg})", file=file, line=line, column=col
-        ) from None
+    parser = etree.XMLParser(
+        huge_tree=True,
+        resolve_entities=False,
+        load_dtd=False,
+        no_network=True,
+        dtd_validation=False,
+    )
+    with open_input(spec.file, what) as fh:
+        _refuse_doctype(fh.read(_PROLOG_BYTES), what, file)
+        fh.seek(0)
+        try:
+            tree = etree.parse(fh, parser)
+        except OSError as exc:
+            raise InputError(f"{what}: cannot read the file ({exc})", file=file) from None
+        except etree.XMLSyntaxError as exc:
+            line = exc.lineno if exc.lineno else None
+            col = exc.offset if exc.offset else None
+            raise InputError(
+                f"{what}: not well-formed XML ({excerpt(exc.msg)})",
+                file=file,
+                line=line,
+                column=col,
+            ) from None
+    if tree.docinfo.doctype or tree.docinfo.internalDTD is not None:
+        raise _doctype_error(what, file)
     root = tree.getroot()
     series = root.xpath("//wml2:MeasurementTimeseries", namespaces=NS)
     if not series:

@@ -43,6 +43,7 @@ from typing import TYPE_CHECKING, Any, Literal
 import numpy as np
 
 from ..errors import ConfigError, DataQualityWarning, FitError, suggest
+from ..resources import check_memory
 from ..results import Summary, estimate
 from .laws import GaugedStages, Law, Rating, discharge_with
 from .nls import covariance_from_jacobian, solve_least_squares
@@ -827,6 +828,13 @@ def fit_rating_curve(
     if options.bootstrap > 0:
         if rng is None:
             raise FitError("a bootstrap needs a random generator (rng)")
+        # resampled indices and data, the model, its Jacobian (three copies) per refit and point
+        check_memory(
+            8.0 * options.bootstrap * len(problem.h) * (6 + 3 * int(np.sum(free))),
+            option="bootstrap",
+            value=options.bootstrap,
+            what=f"the bootstrap refits of {len(problem.h)} gaugings",
+        )
         boot, boot_res = _bootstrap(problem, best, options.bootstrap, rng)
     for m in msgs:
         warnings.warn(f"rating: {m}", DataQualityWarning, stacklevel=2)

@@ -11,6 +11,9 @@ from ..options import Options, setting
 __all__ = ["OutletComponent", "OutletOptions"]
 
 
+MAX_BOOTSTRAP = 100_000  # refits; percentile intervals settle within a few thousand
+
+
 @dataclass(frozen=True)
 class OutletComponent(Options):
     """``[[outlet.component]]``: one control of a compound outlet (acting in parallel)."""
@@ -40,6 +43,7 @@ class OutletOptions(Options):
     discharge_units: str = "m**3/s"
     delimiter: str | None = None
     decimal: str = "."
+    encoding: str | None = None  # text encoding of a CSV table (UTF-8 when absent)
     dayfirst: bool = False
     form: Literal["power", "weir", "vnotch", "orifice", "compound", "segmented"] = "power"
     residuals: Literal["log", "linear"] = "log"
@@ -53,7 +57,7 @@ class OutletOptions(Options):
     )  # V-notch angle
     component: tuple[OutletComponent, ...] = ()  # compound/segmented controls
     shift_date: str | None = None  # ISO date for a before/after rating-shift test
-    bootstrap: int = setting(0, unit="refits", low=0)  # 0 = delta method only
+    bootstrap: int = setting(0, unit="refits", low=0, high=MAX_BOOTSTRAP)  # 0 = delta method only
 
     def fit_options(self):
         """The :class:`~lakebalance.outlet.fit.FitOptions` this section asks for (component keys

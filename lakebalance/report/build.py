@@ -949,14 +949,30 @@ def make_report(
     progress : bool
         Show progress on stderr.
     """
+    from ..config import load_site
+    from ..io.output import OutputFolder, site_inputs
+
+    site = load_site(site_file)
+    # checked before any work: --out must not hold an input, nor be a folder we did not write
+    folder = OutputFolder(out_dir, inputs=site_inputs(site), replace=True, kind="report")
+    try:
+        return _write_report(folder, site, year=year, seed=seed, draws=draws, members=members,
+                             progress=progress)  # fmt: skip
+    finally:
+        folder.abandon()  # after a commit, nothing to remove
+
+
+def _write_report(
+    folder: Any, site: Any, *, year: int | None, seed: int | None, draws: int | None,
+    members: int | None, progress: bool,
+) -> ReportResult:  # fmt: skip
+    """Run the steps of ``site`` and write the report into ``folder`` (an OutputFolder)."""
     from .. import __version__
     from .._json import dumps
     from ..analysis import Lake
-    from ..config import load_site
-    from ..io.output import write_csv, write_text, write_xlsx
+    from ..io.output import unique_slugs
     from .html import CAUTIONS, png_base64, render
 
-    site = load_site(site_file)
     seed = int(site.site.seed if seed is None else seed)
     # the outlook draws from seed + 1, so that its streams are not the balance's
     run = Lake(site, seed=seed, forecast_seed=seed + 1, draws=draws, members=members,
@@ -976,15 +992,13 @@ def make_report(
     sections, head, summary = build_sections(run, int(year))
     prov = _provenance_dict(run)
 
-    folder = Path(out_dir)
-    folder.mkdir(parents=True, exist_ok=True)
     tables = [t for s in sections for t in s.tables]
     csv_paths = {}
-    for t in tables:
-        csv_paths[t.id] = write_csv(folder / f"{t.id}.csv", t.frame, index=False)
+    for t, (name, _) in zip(tables, unique_slugs((t.id for t in tables), "table"), strict=True):
+        csv_paths[t.id] = folder.write_csv(f"{name}.csv", t.frame, index=False)
     # first column as the index, so the sheets carry no extra 0..n row-number column
-    xlsx = write_xlsx(
-        folder / "tables.xlsx", {t.id: t.frame.set_index(t.frame.columns[0]) for t in tables}
+    xlsx = folder.write_xlsx(
+        "tables.xlsx", {t.id: t.frame.set_index(t.frame.columns[0]) for t in tables}
     )
     key_numbers = [
         {"key": k, "label": label, "unit": unit, "text": f"{head[k]:.{d}f}"}
@@ -1006,7 +1020,7 @@ def make_report(
         "cautions": list(CAUTIONS),
         "provenance": prov,
     }
-    json_path = write_text(folder / "summary.json", dumps(document))
+    json_path = folder.write_text("summary.json", dumps(document))
     title = site.report.title or f"{site.site.name}: water balance"
     html = render(
         "report.html",
@@ -1040,10 +1054,11 @@ def make_report(
         ],
         provenance=prov,
     )
-    html_path = write_text(folder / "report.html", html)
+    html_path = folder.write_text("report.html", html)
+    folder.commit()  # the whole folder at once: never a mix of two runs
     return ReportResult(
         name=site.site.name,
-        folder=folder,
+        folder=folder.root,
         html=html_path,
         json=json_path,
         xlsx=xlsx,
