@@ -176,6 +176,9 @@ def reader(path: str | Path, kind: Kind, what: str) -> Callable[..., Any]:
     fmt = format_of(path)
     if fmt is not None and fmt.reads(kind):
         return fmt.function(kind)
+    from .files import check_input
+
+    check_input(path, what)  # a missing file, a device or a folder says so first
     suffix = Path(path).suffix.lower()
     if fmt is None:
         found = f"unknown file suffix {suffix!r}" if suffix else "the file has no suffix"
