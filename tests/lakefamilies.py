@@ -175,7 +175,7 @@ def seepage_m3s(f: LakeFamily, h: np.ndarray) -> np.ndarray:
 
 
 def _forcing(f: LakeFamily, rng: np.random.Generator, n: int, idx: pd.DatetimeIndex) -> dict:
-    doy = idx.dayofyear.to_numpy()
+    doy = idx.day_of_year.to_numpy()
     season = np.sin(2 * np.pi * (doy - 100) / 365.25)
     storm = rng.random(n) < f.storm_rate * (1.0 - 0.5 * season)
     base = f.inflow_mean_m3s * (0.6 - 0.3 * season)

@@ -142,7 +142,7 @@ def test_crossing_days_are_sub_daily_and_directional():
 def _history(years=6, seed=3):
     idx = pd.date_range("2010-01-01", periods=365 * years + 2, freq="D", name="date")
     rng = np.random.default_rng(seed)
-    doy = idx.dayofyear.to_numpy()
+    doy = idx.day_of_year.to_numpy()
     inflow = 2.0 + np.sin(2 * np.pi * doy / 365.0) + 0.1 * idx.year.to_numpy() % 7
     return pd.DataFrame(
         {

@@ -38,7 +38,7 @@ def weather(days: int = 730, seed: int = 3) -> pd.DataFrame:
     """Invented daily weather, two years."""
     rng = np.random.default_rng(seed)
     index = pd.date_range("2019-01-01", periods=days, freq="D", name="date")
-    season = np.sin(2 * np.pi * (index.dayofyear.to_numpy() - 110) / 365.0)
+    season = np.sin(2 * np.pi * (index.day_of_year.to_numpy() - 110) / 365.0)
     tmean = 10 + 11 * season + rng.normal(0, 2, days)
     return pd.DataFrame(
         {
@@ -147,7 +147,7 @@ def test_climatology_fill_of_a_sine_is_the_window_mean_analytic():
     year is the mean of A sin(ωd) over days d-15..d+15 of the other two, i.e.
     A sin(ωd) × sin(31ω/2) / (31 sin(ω/2)) (discrete Dirichlet kernel), ω = 2π/365."""
     index = pd.date_range("2001-01-01", "2003-12-31", freq="D")  # no leap year
-    d = index.dayofyear.to_numpy()
+    d = index.day_of_year.to_numpy()
     omega = 2 * np.pi / 365
     x = 5.0 * np.sin(omega * d)
     frame = pd.DataFrame({"x": x}, index=index)
@@ -168,7 +168,7 @@ def test_climatology_fill_equals_a_plain_pooled_mean_of_the_window():
     frame.loc[rng.random(len(index)) < 0.2, "x"] = np.nan
     filled, mask = climatology_fill(frame)
     # day on a 365-day circle, 29 February sharing 28 February's slot (as documented)
-    doy = index.dayofyear.to_numpy() - ((index.is_leap_year) & (index.dayofyear > 59))
+    doy = index.day_of_year.to_numpy() - ((index.is_leap_year) & (index.day_of_year > 59))
     for day in index[mask["x"].to_numpy()][:60]:
         d0 = doy[index.get_loc(day)]
         dist = np.abs(doy - d0)

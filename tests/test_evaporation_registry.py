@@ -72,7 +72,7 @@ def _weather(days: int = 365) -> pd.DataFrame:
     """Invented daily weather of a mid-latitude site."""
     rng = np.random.default_rng(11)
     index = pd.date_range("2020-01-01", periods=days, freq="D", name="date")
-    season = np.sin(2 * np.pi * (index.dayofyear.to_numpy() - 110) / 365.0)
+    season = np.sin(2 * np.pi * (index.day_of_year.to_numpy() - 110) / 365.0)
     tmean = 10 + 11 * season + rng.normal(0, 2, days)
     return pd.DataFrame(
         {
