@@ -12,9 +12,13 @@ HELP = "run the full annual report on the bundled demo reservoir (invented data)
 
 
 def demo_site() -> Path:
-    """The demo's site file: ``data_demo/site.toml`` beside the package (source checkout)."""
-    here = Path(__file__).resolve().parents[2] / "data_demo" / "site.toml"
-    return here
+    """The demo's site file: shipped inside the package (``lakebalance/_demo/``, a wheel), else
+    ``data_demo/site.toml`` of the source checkout (an editable install)."""
+    package = Path(__file__).resolve().parents[1]
+    shipped = package / "_demo" / "site.toml"
+    if shipped.is_file():
+        return shipped
+    return package.parent / "data_demo" / "site.toml"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -42,8 +46,8 @@ def run(args: argparse.Namespace) -> int:
     site = demo_site()
     if not site.is_file():
         raise LakebalanceError(
-            f"the demo data is not here ({site}); the demo runs from a source checkout "
-            "(git clone, then pip install -e .)"
+            f"the demo data is not here ({site}): this installation of lakebalance is "
+            "incomplete; reinstall it (pip install lakebalance, or pip install -e . in a checkout)"
         )
     result = make_report(
         site, args.out, year=args.year, seed=args.seed, progress=sys.stderr.isatty()
