@@ -1,0 +1,226 @@
+"""Numbers for people: one formatting layer for every human output (CLI, HTML, PDF).
+
+Machine outputs (CSV, JSON) keep full precision in SI with the unit in each name; what a person
+reads goes through here, so that one report speaks one set of display units, with digits chosen
+per quantity:
+
+* stage and levels to the gauge resolution (1 mm gives three decimals in m);
+* volumes, flows, areas and depths to 3 significant digits (4 when the value is large), with
+  thousands separators, in a display unit chosen once per report (``SI`` or ``US`` customary);
+* percentages whole, or to one decimal below 10 %;
+* probabilities as "in 4 of 18 years" when they count cases, else a percentage with its basis.
+
+Column names of the SI tables (``residual_p05_m3``) become headers in words with their display
+unit (``residual, 5th percentile (thousand m³)``) through one mapping, :func:`header`.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from dataclasses import dataclass
+from typing import Literal
+
+from .units import from_si
+
+__all__ = [
+    "DisplayUnits",
+    "SI",
+    "US",
+    "number",
+    "quantity",
+    "stage",
+    "percent",
+    "count_of",
+    "header",
+    "display_units",
+]
+
+System = Literal["SI", "US"]
+
+
+@dataclass(frozen=True)
+class DisplayUnits:
+    """The display unit of each quantity kind, with the scale shown in headers.
+
+    Parameters
+    ----------
+    system : {"SI", "US"}
+        The unit system.
+    length, volume, flow, depth, area : (str, str) or (str, str, float)
+        ``(pint unit, label[, scale])`` of each kind, e.g. ``("m**3", "thousand m³", 1e-3)``:
+        the value in the pint unit times ``scale`` is shown under ``label``.
+    """
+
+    system: System
+    length: tuple
+    volume: tuple
+    flow: tuple
+    depth: tuple
+    area: tuple
+
+    def of(self, kind: str) -> tuple[str, str]:
+        """``(pint unit, label)`` of a quantity kind."""
+        entry = getattr(self, kind)
+        return entry[0], entry[1]
+
+    def scale(self, kind: str) -> float:
+        """The multiple shown (``1e-3`` for thousands)."""
+        entry = getattr(self, kind)
+        return float(entry[2]) if len(entry) > 2 else 1.0
+
+
+SI = DisplayUnits(
+    "SI",
+    length=("m", "m"),
+    volume=("m**3", "thousand m³", 1e-3),
+    flow=("m**3/s", "m³/s"),
+    depth=("mm", "mm"),
+    area=("km**2", "km²"),
+)
+US = DisplayUnits(
+    "US",
+    length=("ft", "ft"),
+    volume=("acre_foot", "acre-ft"),
+    flow=("ft**3/s", "cfs"),
+    depth=("inch", "in"),
+    area=("acre", "acres"),
+)
+
+
+def display_units(system: str) -> DisplayUnits:
+    """The display units of ``"SI"`` or ``"US"`` (US customary)."""
+    return {"SI": SI, "US": US}[system]
+
+
+_SI_KIND = {
+    "length": "length",
+    "volume": "volume",
+    "flow": "flow",
+    "depth": "depth",
+    "area": "area",
+}
+
+
+def _to_display(value_si: float, kind: str, units: DisplayUnits) -> float:
+    unit, _ = units.of(kind)
+    si_kind = "length" if kind == "depth" else _SI_KIND[kind]
+    return float(from_si([value_si], si_kind, unit)[0]) * units.scale(kind)
+
+
+def number(value: float, digits: int = 3, *, decimals: int | None = None) -> str:
+    """``value`` to ``digits`` significant digits (or fixed ``decimals``) with thousands separators;
+    a dash for NaN or None.
+
+    Large values keep every integer digit (``1,234,567`` at 3 digits is ``1,230,000``); small ones
+    never go to scientific notation.
+    """
+    if value is None or not math.isfinite(float(value)):
+        return "–"
+    x = float(value)
+    if decimals is None:
+        if x == 0:
+            return "0"
+        order = math.floor(math.log10(abs(x)))
+        x = round(x, digits - 1 - order)
+        if x != 0:  # rounding may carry into the next power of ten (99.96 -> 100.0)
+            order = math.floor(math.log10(abs(x)))
+        decimals = max(digits - 1 - order, 0)
+    text = f"{x:,.{decimals}f}"
+    return "0" if re.fullmatch(r"-?0(\.0*)?", text) else text
+
+
+def quantity(
+    value_si: float, kind: str, units: DisplayUnits = SI, *, digits: int | None = None
+) -> str:
+    """A volume, flow, depth or area (SI) in the display unit, to 3 significant digits (4 from
+    1,000 up), without the unit (the header or the sentence says it)."""
+    if value_si is None or not math.isfinite(float(value_si)):
+        return "–"
+    x = _to_display(float(value_si), kind, units)
+    if digits is None:
+        digits = 4 if abs(x) >= 1000 else 3
+    return number(x, digits)
+
+
+def stage(value_m: float, units: DisplayUnits = SI, resolution_m: float = 0.001) -> str:
+    """A stage (m on the gauge datum) to the gauge resolution, in the display length unit."""
+    if value_m is None or not math.isfinite(float(value_m)):
+        return "–"
+    x = _to_display(float(value_m), "length", units)
+    step = _to_display(float(resolution_m), "length", units)
+    decimals = max(0, -math.floor(math.log10(step) + 1e-9)) if step > 0 else 3
+    return number(x, decimals=decimals)
+
+
+def percent(value: float) -> str:
+    """A percentage: whole, or to one decimal below 10 % (``7.5 %``, ``42 %``)."""
+    if value is None or not math.isfinite(float(value)):
+        return "–"
+    x = float(value)
+    return f"{number(x, decimals=1 if abs(x) < 10 else 0)} %"
+
+
+def count_of(k: int, n: int, what: str = "years") -> str:
+    """A probability that counts cases, as a person says it: ``in 4 of 18 years``."""
+    return f"in {int(k)} of {int(n)} {what}"
+
+
+#: Words of the SI column names of the balance, dynamics, seepage and drawdown tables, and the
+#: kind of their unit. One mapping for every header a person reads.
+_WORDS: dict[str, str] = {
+    "storage_change": "storage change",
+    "storage_start": "storage at the start",
+    "storage_end": "storage at the end",
+    "storage": "storage",
+    "inflow": "gauged inflow",
+    "rain": "rain on the lake",
+    "evaporation": "evaporation",
+    "outflow": "outlet outflow",
+    "withdrawal": "withdrawals",
+    "release": "releases",
+    "residual": "residual (unexplained)",
+    "mean_area": "mean lake area",
+    "area": "lake area",
+    "stage": "stage",
+    "closure_error": "residual share of gains",
+    "complete_days": "days with every term",
+    "days": "days",
+    "p_gain": "chance the residual is a gain",
+    "p_nonzero": "confidence the residual is not zero",
+    "volume_above_dead": "volume above the dead level",
+}
+_PERCENTILE = re.compile(r"_p(\d{1,2})$")
+_SUFFIX_KIND = {"_m3": "volume", "_m3s": "flow", "_mm": "depth", "_m2": "area", "_m": "length"}
+
+
+def header(column: str, units: DisplayUnits = SI) -> str:
+    """Words and display unit of an SI column name (``residual_p05_m3`` →
+    ``residual (unexplained), 5th percentile (thousand m³)``); unknown names are returned with
+    underscores as spaces."""
+    name = column
+    unit = ""
+    if name.endswith("_pct"):
+        name, unit = name[: -len("_pct")], "%"
+    for suffix, kind in sorted(_SUFFIX_KIND.items(), key=lambda kv: -len(kv[0])):
+        if name.endswith(suffix):
+            name, unit = name[: -len(suffix)], units.of(kind)[1]
+            break
+    tail = ""
+    m = _PERCENTILE.search(name)
+    if m:
+        name = name[: m.start()]
+        p = int(m.group(1))
+        tail = f", {p}{_ordinal(p)} percentile"
+    tributary = ""
+    if ":" in name:
+        name, tributary = name.split(":", 1)
+        tributary = f" ({tributary.replace('_', ' ')})"
+    words = _WORDS.get(name, name.replace("_", " "))
+    return f"{words}{tributary}{tail}" + (f" ({unit})" if unit else "")
+
+
+def _ordinal(n: int) -> str:
+    if 10 <= n % 100 <= 20:
+        return "th"
+    return {1: "st", 2: "nd", 3: "rd"}.get(n % 10, "th")
