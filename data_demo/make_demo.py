@@ -207,7 +207,7 @@ def penman_open_water(w: pd.DataFrame, wind10_ms: np.ndarray) -> np.ndarray:
     delta = 4098 * saturation_vp(tmean) / (tmean + 237.3) ** 2  # eq. 13
     pressure = 101.3 * ((293 - 0.0065 * ELEVATION) / 293) ** 5.26  # eq. 7
     gamma = 0.000665 * pressure  # eq. 8
-    doy = w.index.dayofyear.to_numpy()
+    doy = w.index.day_of_year.to_numpy()
     ra, _ = extraterrestrial(doy, LATITUDE)
     rso = (0.75 + 2e-5 * ELEVATION) * ra  # eq. 37
     rs = w["solar"].to_numpy()
@@ -229,7 +229,7 @@ def penman_open_water(w: pd.DataFrame, wind10_ms: np.ndarray) -> np.ndarray:
 def make_weather(rng: np.random.Generator, days: pd.DatetimeIndex) -> dict:
     """Daily weather (rounded as a station reports it), hourly rain, 3-hourly wind."""
     n = len(days)
-    doy = days.dayofyear.to_numpy()
+    doy = days.day_of_year.to_numpy()
     season = np.cos(2 * np.pi * (doy - 201) / 365.25)  # +1 late July, -1 late January
     drought = (days >= DROUGHT[0]) & (days <= DROUGHT[1])
 
@@ -570,7 +570,7 @@ def generate(out: Path) -> dict:
     # -- withdrawals
     month = days.month.to_numpy()
     demand = np.asarray(DEMAND_M3S)[month - 1]
-    weekend = days.dayofweek.to_numpy() >= 5
+    weekend = days.day_of_week.to_numpy() >= 5
     demand = demand * np.where(weekend, 0.93, 1.0) * np.exp(rng.normal(0, 0.05, n))
     unmet = np.where(
         (days >= UNMETERED["start"]) & (days <= UNMETERED["end"]), UNMETERED["rate_m3s"], 0.0

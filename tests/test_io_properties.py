@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
-from hypothesis import HealthCheck, given, settings
+from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
 
 import lakebalance as lb
@@ -47,6 +47,9 @@ def corrupt(data: bytes, edits) -> bytes:
     max_examples=120, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
 )
 @given(st.lists(edit, min_size=1, max_size=6))
+# A line break inside a date leaves "-11" in the date column, which pandas 3 reads as the year
+# -11, outside the daily index's clock (found by this test in CI).
+@example(edits=[("insert", 200, b"\n")])
 def test_corrupted_csv_gives_records_or_an_input_error(tmp_path, edits):
     (tmp_path / "s.csv").write_bytes(corrupt(VALID, edits))
     site_file = tmp_path / "site.toml"

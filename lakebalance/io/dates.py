@@ -131,11 +131,34 @@ def parse_timestamps(
                         parsed = pd.DatetimeIndex(
                             pd.to_datetime(s, dayfirst=dayfirst, errors="coerce", utc=aware)
                         )
+    parsed = _within_clock_range(parsed)
     bad = np.asarray(parsed.isna()) & ~empty
     local = to_site_time(parsed, timezone, source_timezone).as_unit("ns")
     if not absolute:
         return local, bad
     return local, bad, _ordering_clock(parsed, local, timezone, source_timezone)
+
+
+# Timestamps the daily index can hold (nanosecond clock), with a day of margin for the
+# conversion to the site's zone: a cell such as "-11" that a parser reads as the year -11 is a
+# date that did not parse, not a reading from antiquity.
+_EARLIEST = "1677-09-23"
+_LATEST = "2262-04-10"
+
+
+def _within_clock_range(parsed: pd.DatetimeIndex) -> pd.DatetimeIndex:
+    """``parsed`` with timestamps outside the nanosecond clock's range set to NaT."""
+    import pandas as pd
+
+    idx = pd.DatetimeIndex(parsed)
+    if len(idx) == 0:
+        return idx
+    naive = idx.tz_localize(None) if idx.tz is not None else idx
+    low, high = pd.Timestamp(_EARLIEST), pd.Timestamp(_LATEST)
+    outside = np.asarray((naive < low) | (naive > high))
+    if not outside.any():
+        return idx
+    return idx.where(~outside)
 
 
 def _ordering_clock(
