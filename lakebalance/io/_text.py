@@ -13,11 +13,15 @@ import io as _io
 import re
 from dataclasses import dataclass
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from ..errors import InputError, LimitError, excerpt, suggest
 from .files import MAX_COLUMNS, MAX_LINE_CHARS, read_input
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 __all__ = ["TextTable", "decode", "sniff_delimiter", "read_text_table", "resolve_column"]
 
@@ -241,8 +245,63 @@ def read_text_table(
     LimitError
         Not a regular file, or past a documented limit (file size, line length, columns).
     """
-    import pandas as pd
+    file = str(path)
+    data, used_encoding = _utf8_bytes(path, what, encoding)
+    starts, ends, skip, data_idx = _line_spans(data, what, file)
+    header_line = int(data_idx[0]) + 1
+    sample = [data[starts[i] : ends[i]].decode("utf-8", errors="replace") for i in data_idx[:30]]
+    if delimiter is None:
+        delimiter = sniff_delimiter(sample, decimal) or ","
+    header = _header(sample[0], delimiter, decimal, what, file, header_line)
+    positions: dict[str, int] = {}
+    for key, col in wanted.items():
+        positions[key] = resolve_column(col, header, file=file, line=header_line, what=what)
+    _check_split_decimals(
+        sample, data_idx[: len(sample)] + 1, header, delimiter, decimal, what, file
+    )
+    if len(data_idx) == 1:
+        raise InputError(
+            f"{what}: the file has a header but no data rows", file=file, line=header_line
+        )
+    if delimiter == ",":
+        numeric = sorted(
+            {p for k, p in positions.items() if k not in (*string_columns, *iso_columns)}
+        )
+        _check_split_thousands(data, starts, ends, data_idx[1:], len(header), numeric, what, file)
+    clean = _data_lines(data, starts, ends, skip)
+    del data
+    lines = data_idx[1:] + 1
+    frame = None
+    if decimal == "." and len(set(header)) == len(header) and all(h.strip() for h in header):
+        frame = _read_with_arrow(
+            clean,
+            delimiter,
+            header,
+            {k: header[p] for k, p in positions.items()},
+            string_keys=set(string_columns),
+            iso_keys=set(iso_columns),
+            rows=len(lines),
+        )
+    if frame is None:
+        str_pos = {positions[k] for k in (*string_columns, *iso_columns) if k in positions}
+        frame, lines = _read_with_pandas(
+            clean, delimiter, decimal, positions, str_pos, lines, data_idx, what=what, file=file
+        )
+    return TextTable(
+        file=file,
+        frame=frame,
+        lines=np.asarray(lines, dtype=np.int64),
+        header=header,
+        header_line=header_line,
+        positions={k: p + 1 for k, p in positions.items()},
+        delimiter=delimiter,
+        encoding=used_encoding,
+    )
 
+
+def _utf8_bytes(path: str | Path, what: str, encoding: str | None) -> tuple[bytes, str]:
+    """The file's bytes as UTF-8 without a byte-order mark and with ``\\n`` line ends, and the
+    encoding it was read in; an empty file is an :class:`InputError`."""
     file = str(path)
     raw = read_input(path, what)
     text, used_encoding = decode(raw, file, encoding, what)
@@ -256,6 +315,14 @@ def read_text_table(
     del text
     if b"\r" in data:
         data = data.replace(b"\r\n", b"\n").replace(b"\r", b"\n")
+    return data, used_encoding
+
+
+def _line_spans(
+    data: bytes, what: str, file: str
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Start and (exclusive) end offset of every line, which lines are comments or blank, and
+    the indices of the others (header first)."""
     buf = np.frombuffer(data, dtype=np.uint8)
     nl = np.flatnonzero(buf == 10)
     starts = np.concatenate(([0], nl + 1))
@@ -273,12 +340,14 @@ def read_text_table(
     data_idx = np.flatnonzero(~skip)
     if len(data_idx) == 0:
         raise InputError(f"{what}: the file holds only comments or blank lines", file=file)
-    header_line = int(data_idx[0]) + 1
+    return starts, ends, skip, data_idx
 
-    sample = [data[starts[i] : ends[i]].decode("utf-8", errors="replace") for i in data_idx[:30]]
-    header_text = sample[0]
-    if delimiter is None:
-        delimiter = sniff_delimiter(sample, decimal) or ","
+
+def _header(
+    header_text: str, delimiter: str, decimal: str, what: str, file: str, header_line: int
+) -> tuple[str, ...]:
+    """The header's column names, after checking the delimiter against the decimal mark and the
+    column limit."""
     if decimal == delimiter:
         raise InputError(
             f"{what}: the decimal mark and the field delimiter are both {delimiter!r}",
@@ -292,61 +361,40 @@ def read_text_table(
             line=header_line,
         )
     try:
-        header = tuple(next(_csv.reader([header_text], delimiter=delimiter)))
+        return tuple(next(_csv.reader([header_text], delimiter=delimiter)))
     except (_csv.Error, StopIteration):
-        header = (header_text,)
-    positions: dict[str, int] = {}
-    for key, col in wanted.items():
-        positions[key] = resolve_column(col, header, file=file, line=header_line, what=what)
-    _check_split_decimals(
-        sample, data_idx[: len(sample)] + 1, header, delimiter, decimal, what, file
-    )
-    if len(data_idx) == 1:
-        raise InputError(
-            f"{what}: the file has a header but no data rows", file=file, line=header_line
-        )
-    if delimiter == ",":
-        numeric = sorted(
-            {p for k, p in positions.items() if k not in (*string_columns, *iso_columns)}
-        )
-        _check_split_thousands(data, starts, ends, data_idx[1:], len(header), numeric, what, file)
-    # The bytes pandas sees: only the data lines (header first).
-    if skip.any():
-        keep = np.concatenate(([0], (~skip).astype(np.int8), [0]))
-        edges = np.flatnonzero(np.diff(keep))
-        pieces = []
-        for a, b in zip(edges[::2], edges[1::2]):  # one piece per run of data lines
-            piece = data[starts[a] : ends[b - 1]]
-            pieces.append(piece + b"\n")
-        clean = b"".join(pieces)
-    else:
-        clean = data
-    del data, buf
-    lines = data_idx[1:] + 1
+        return (header_text,)
+
+
+def _data_lines(data: bytes, starts: np.ndarray, ends: np.ndarray, skip: np.ndarray) -> bytes:
+    """The bytes the parsers see: only the data lines (header first)."""
+    if not skip.any():
+        return data
+    keep = np.concatenate(([0], (~skip).astype(np.int8), [0]))
+    edges = np.flatnonzero(np.diff(keep))
+    pieces = []
+    for a, b in zip(edges[::2], edges[1::2]):  # one piece per run of data lines
+        pieces.append(data[starts[a] : ends[b - 1]] + b"\n")
+    return b"".join(pieces)
+
+
+def _read_with_pandas(
+    clean: bytes,
+    delimiter: str,
+    decimal: str,
+    positions: dict[str, int],
+    str_pos: set[int],
+    lines: np.ndarray,
+    data_idx: np.ndarray,
+    *,
+    what: str,
+    file: str,
+) -> tuple[pd.DataFrame, np.ndarray]:
+    """Parse ``clean`` with pandas' C parser: the wanted columns under our keys, and the file
+    line of each row (recovered record by record when quoted fields span lines)."""
+    import pandas as pd
+
     cols = sorted(set(positions.values()))
-    fast = None
-    if decimal == "." and len(set(header)) == len(header) and all(h.strip() for h in header):
-        fast = _read_with_arrow(
-            clean,
-            delimiter,
-            header,
-            {k: header[p] for k, p in positions.items()},
-            string_keys=set(string_columns),
-            iso_keys=set(iso_columns),
-            rows=len(lines),
-        )
-    if fast is not None:
-        return TextTable(
-            file=file,
-            frame=fast,
-            lines=np.asarray(lines, dtype=np.int64),
-            header=header,
-            header_line=header_line,
-            positions={k: p + 1 for k, p in positions.items()},
-            delimiter=delimiter,
-            encoding=used_encoding,
-        )
-    str_pos = {positions[k] for k in (*string_columns, *iso_columns) if k in positions}
     dtype = {p: str for p in str_pos} or None
     try:
         frame = pd.read_csv(
@@ -378,21 +426,11 @@ def read_text_table(
                 "check quoting",
                 file=file,
             )
-    # map to our keys
     out = pd.DataFrame(index=pd.RangeIndex(len(frame)))
     by_pos = {p: frame.iloc[:, i] for i, p in enumerate(cols)}
     for key, p in positions.items():
         out[key] = by_pos[p].to_numpy()
-    return TextTable(
-        file=file,
-        frame=out,
-        lines=np.asarray(lines, dtype=np.int64),
-        header=header,
-        header_line=header_line,
-        positions={k: p + 1 for k, p in positions.items()},
-        delimiter=delimiter,
-        encoding=used_encoding,
-    )
+    return out, lines
 
 
 _ARROW_MIN_BYTES = 1_000_000  # smaller files: the C parser is as fast and starts quicker
