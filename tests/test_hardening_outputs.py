@@ -139,6 +139,14 @@ def test_a_killed_report_leaves_the_earlier_folder_as_it_was(tmp_path):
     )
     assert proc.returncode == -signal.SIGKILL
     assert _digests(out) == before
+    # the killed run's temporary sibling is left behind; the next run removes it (its process is
+    # gone) and leaves a sibling of a live process alone
+    stale = [p for p in tmp_path.iterdir() if p.name.endswith(".partial")]
+    assert len(stale) == 1
+    live = tmp_path / f".report.{os.getpid()}.abcd.partial"
+    live.mkdir()
+    assert main(["report", str(site), "--out", str(out)]) == 0
+    assert sorted(p.name for p in tmp_path.iterdir() if p.name.startswith(".")) == [live.name]
 
 
 # ---- names from user text ---------------------------------------------------------------------

@@ -212,9 +212,12 @@ class OutputFolder:
                     "folder"
                 )
             self.root.parent.mkdir(parents=True, exist_ok=True)
+            _remove_stale_siblings(self.root)
             self._tmp = Path(
                 tempfile.mkdtemp(
-                    prefix=f".{self.root.name}.", suffix=".partial", dir=self.root.parent
+                    prefix=f".{self.root.name}.{os.getpid()}.",
+                    suffix=".partial",
+                    dir=self.root.parent,
                 )
             )
             os.chmod(self._tmp, 0o777 & ~_umask())
@@ -323,6 +326,33 @@ class OutputFolder:
             self.abandon()
 
 
+def _process_alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except OSError:  # e.g. another user's process
+        return True
+    return True
+
+
+def _remove_stale_siblings(root: Path) -> list[Path]:
+    """Remove the temporary siblings (``.NAME.PID.*.partial`` or ``.old``) that a killed run of
+    this folder left behind, when the process that made them is gone; returns those removed.
+
+    A sibling of a run still alive (this one or another) is kept.
+    """
+    removed = []
+    pattern = re.compile(rf"^\.{re.escape(root.name)}\.(\d+)\.[^/]*\.(partial|old)$")
+    with contextlib.suppress(OSError):
+        for entry in os.scandir(root.parent):
+            m = pattern.match(entry.name)
+            if m and entry.is_dir(follow_symlinks=False) and not _process_alive(int(m.group(1))):
+                shutil.rmtree(entry.path, ignore_errors=True)
+                removed.append(Path(entry.path))
+    return removed
+
+
 def _is_ours(folder: Path) -> bool:
     """Whether a folder may be replaced: empty, marked, or an earlier lakebalance report or
     batch (from before the marker)."""
@@ -354,7 +384,9 @@ def _swap_in(new: Path, target: Path) -> None:
     if _exchange(new, target):
         shutil.rmtree(new, ignore_errors=True)  # now holds the earlier folder
         return
-    old = Path(tempfile.mkdtemp(prefix=f".{target.name}.", suffix=".old", dir=target.parent))
+    old = Path(
+        tempfile.mkdtemp(prefix=f".{target.name}.{os.getpid()}.", suffix=".old", dir=target.parent)
+    )
     os.rmdir(old)
     os.rename(target, old)
     os.rename(new, target)
