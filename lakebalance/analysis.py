@@ -320,6 +320,7 @@ class Lake:
         return self._step(("evaporation", method), lambda: self._evaporation(method))
 
     def _evaporation(self, method: str | None) -> EvaporationResult:
+        import numpy as np
         import pandas as pd
 
         from .evaporation.lake import WEATHER_ROLES, estimate_lake_evaporation, surface_volume_m3
@@ -338,20 +339,32 @@ class Lake:
         frame = pd.DataFrame(weather, index=records.daily.index)
         if method is not None and method != opts.method:
             opts = dataclasses.replace(opts, method=method)
+        storage = self.get("storage")
+        daily = records.daily
+        area_m2 = depth_m = None
+        if storage is not None and "stage" in daily.columns:
+            stage = daily["stage"].to_numpy()
+            area_m2 = pd.Series(storage.area(stage), index=daily.index)
+            if hasattr(storage, "volume"):  # mean depth = volume / area, day by day
+                volume = storage.volume(stage, warn=False)
+                with np.errstate(invalid="ignore", divide="ignore"):
+                    depth_m = np.where(area_m2.to_numpy() > 0, volume / area_m2.to_numpy(), 0.0)
+        # Declared ice periods of the site ([[period]], lakebalance.periods) plug in here as
+        # ice_mask=...; until then [evaporation] ice says where the ice days come from.
         result = estimate_lake_evaporation(
             frame,
             opts,
             latitude_deg=site.site.latitude,
             elevation_m=site.site.elevation,
             site_file=str(site.path),
+            mean_depth_m=depth_m,
+            area_m2=None if area_m2 is None else area_m2.to_numpy(),
+            water_year_start=site.site.water_year_start,
         )
         changes: dict[str, Any] = {}
         if averaged:
             changes["notes"] = (*result.notes, *averaged)
-        storage = self.get("storage")
-        daily = records.daily
-        if storage is not None and "stage" in daily.columns:
-            area_m2 = pd.Series(storage.area(daily["stage"].to_numpy()), index=daily.index)
+        if area_m2 is not None:
             changes["evaporation_m3"] = surface_volume_m3(result.depth_m, area_m2).rename(
                 "evaporation_m3"
             )

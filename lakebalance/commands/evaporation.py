@@ -11,7 +11,16 @@ HELP = "lake evaporation: monthly totals of every method the weather allows, sid
 #: ``--method`` choices: ``auto`` and the names of lakebalance.evaporation.registry.REGISTRY,
 #: spelled here so that ``--help`` imports nothing heavy (tests/test_evaporation_registry.py
 #: checks that they agree).
-METHOD_CHOICES = ("auto", "given", "pan", "penman", "priestley_taylor", "fao56", "hargreaves")
+METHOD_CHOICES = (
+    "auto",
+    "given",
+    "equilibrium_temperature",
+    "pan",
+    "penman",
+    "priestley_taylor",
+    "fao56",
+    "hargreaves",
+)
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
