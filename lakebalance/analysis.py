@@ -399,7 +399,26 @@ class Lake:
         resolution = None
         if spec is not None and spec.resolution is not None:
             resolution = float(conversion(spec.units, "length", "stage").scale * spec.resolution)
-        return TermErrors.from_options(self.site.uncertainty, resolution)
+        spread = None
+        if self.site.uncertainty.evaporation_error == "method_spread":
+            spread = self._evaporation_spread()
+        return TermErrors.from_options(self.site.uncertainty, resolution, spread)
+
+    def _evaporation_spread(self) -> float:
+        """The relative spread between the evaporation methods over complete water years (-),
+        for ``[uncertainty] evaporation_error = "method_spread"``."""
+        if self._evaporation_depth() is None:
+            raise ConfigError(
+                "[uncertainty] evaporation_error = 'method_spread' needs lake evaporation from "
+                "weather series"
+            )
+        spread = self.evaporation.relative_spread()
+        if spread is None:
+            raise ConfigError(
+                "[uncertainty] evaporation_error = 'method_spread' needs two or more evaporation "
+                "methods over at least one complete water year"
+            )
+        return spread
 
     @property
     def balance(self) -> Balance:
@@ -433,10 +452,13 @@ class Lake:
         rain_keys = records.keys("rain")
         if len(rain_keys) > 1:
             notes.append(f"rain is the daily mean of {len(rain_keys)} gauges")
+        rain_m = records.mean("rain")
+        if rain_m is not None and evaporation_m is not None:
+            rain_m = self._precipitation_on_ice(rain_m, notes)
         terms = DailyTerms(
             stage_m=daily["stage"],
             inflow_m3s=inflows,
-            rain_m=records.mean("rain"),
+            rain_m=rain_m,
             evaporation_m=evaporation_m,
             withdrawal_m3s=records.total("withdrawal") if records.has("withdrawal") else None,
             release_m3s=records.total("release") if records.has("release") else None,
@@ -488,6 +510,19 @@ class Lake:
                 rating_variants=site.uncertainty.rating_variants,
             )
         return dataclasses.replace(balance, notes=(*balance.notes, *notes))
+
+    def _precipitation_on_ice(self, rain_m: pd.Series, notes: list[str]) -> pd.Series:
+        """Rain and snow on the ice as ``[evaporation] precipitation_on_ice`` says."""
+        from .evaporation.ice import precipitation_on_ice
+
+        ice = self.evaporation.ice
+        rule = self.site.evaporation.precipitation_on_ice
+        if ice is None or not ice.any() or rule == "as_it_falls":
+            return rain_m
+        notes.append("precipitation on the ice held until the first open day (at_break_up)")
+        return precipitation_on_ice(
+            rain_m, ice.reindex(rain_m.index, fill_value=False).to_numpy(), rule
+        )
 
     @property
     def flags(self) -> Flags:

@@ -6,7 +6,10 @@ import argparse
 
 from ._common import LakebalanceWarnings, add_json, add_site, open_lake
 
-HELP = "lake evaporation: monthly totals of every method the weather allows, side by side"
+HELP = (
+    "lake evaporation: monthly and water-year totals of every method the weather allows, side by "
+    "side, with the spread between them"
+)
 
 #: ``--method`` choices: ``auto`` and the names of lakebalance.evaporation.registry.REGISTRY,
 #: spelled here so that ``--help`` imports nothing heavy (tests/test_evaporation_registry.py
@@ -75,6 +78,15 @@ def run(args: argparse.Namespace) -> int:
     line += "".join(fmt(diffs[m].sum(min_count=1), width + 1) for m in others)
     print(line)
     print(f"Δ columns: each method's monthly total minus {result.method}'s.")
+    _water_years(result, args.unit, methods, width, fmt)
+    heat = result.lake_heat
+    if heat is not None:
+        print(
+            "lake method: mean depth "
+            f"{heat['mean_depth_m'].mean():.1f} m (volume/area), time constant "
+            f"{heat['time_constant_days'].mean():.0f} days, water temperature "
+            f"{heat['water_temperature_c'].min():.1f} to {heat['water_temperature_c'].max():.1f} °C"
+        )
     for key, value in result.inputs.items():
         print(f"input: {key}: {value}")
     for note in result.notes:
@@ -83,3 +95,30 @@ def run(args: argparse.Namespace) -> int:
         print(f"warning: {msg}")
     print(CAUTION)
     return 0
+
+
+def _water_years(result, unit: str, methods: list[str], width: int, fmt) -> None:
+    """The water-year totals of every method and the spread between them."""
+    years = result.water_years(unit)
+    spread = result.spread(unit)
+    start = result.water_year_start
+    print()
+    print(f"water-year totals ({unit}; water year starts in month {start}, named by its end)")
+    head = f"{'year':<8}" + "".join(f"{m:>{width}}" for m in methods)
+    head += f"{'days':>6}{'ice':>5}{'sd':>8}{'rel.sd':>8}"
+    print(head)
+    for year, row in years.iterrows():
+        line = f"{year:<8}" + "".join(fmt(row[m], width) for m in methods)
+        line += f"{int(row['days']):>6}{int(row['ice_days']):>5}"
+        if year in spread.index and spread.loc[year, "methods"] >= 2:
+            line += f"{spread.loc[year, 'sd']:>8.1f}{spread.loc[year, 'relative_sd']:>8.1%}"
+        else:
+            line += f"{'-':>8}{'-':>8}"
+        print(line)
+    rel = result.relative_spread()
+    if rel is not None:
+        print(
+            f"spread between the methods (sd of complete water years' totals / their mean): "
+            f'{rel:.1%} on average; [uncertainty] evaporation_error = "method_spread" uses it '
+            "as the evaporation error of the balance"
+        )
