@@ -362,6 +362,15 @@ class Lake:
             water_year_start=site.site.water_year_start,
         )
         changes: dict[str, Any] = {}
+        frozen_pan = sum(
+            f.count for f in records.findings if f.series == "pan" and "'ice'" in f.detail.lower()
+        )
+        if frozen_pan and opts.ice == "none":
+            averaged.append(
+                f"the pan record has {frozen_pan} 'ICE' days, filled as open water: declare the "
+                "ice periods ([evaporation] ice = 'declared') or infer them "
+                "(ice = 'from_air_temperature') so that they count as ice"
+            )
         if averaged:
             changes["notes"] = (*result.notes, *averaged)
         if area_m2 is not None:
