@@ -500,6 +500,9 @@ def lake_heat_of(weather: PreparedWeather, options: EvaporationOptions) -> LakeH
     """:func:`lake_heat` on the prepared weather of a site."""
     if weather.net_radiation_water is None or weather.mean_depth_m is None:
         raise ConfigError("the lake method needs net radiation and a mean depth")
+    depth = weather.mean_depth_m
+    if options.mixed_depth_max is not None:
+        depth = np.minimum(depth, options.mixed_depth_max)
     return lake_heat(
         weather.net_radiation_water,
         weather.tmean_c,
@@ -507,7 +510,7 @@ def lake_heat_of(weather: PreparedWeather, options: EvaporationOptions) -> LakeH
         weather.vapour_pressure_kpa,
         open_water_transfer(weather, options),
         weather.pressure_kpa,
-        weather.mean_depth_m,
+        depth,
         initial_c=options.initial_water_temperature,
         frozen=weather.ice,
     )
@@ -519,14 +522,19 @@ def _equilibrium(weather: PreparedWeather, options: EvaporationOptions) -> np.nd
 
 
 def _note(options: EvaporationOptions) -> str:
+    depth = (
+        "the mean depth (volume/area each day)"
+        if options.mixed_depth_max is None
+        else f"the mean depth (volume/area each day), at most {options.mixed_depth_max:g} m"
+    )
     wind = (
         "the area-dependent wind function of Sweers (1976)"
         if options.wind_function == "sweers"
         else "the log profile over open water"
     )
     return (
-        "equilibrium_temperature: heat storage of a mixed layer as deep as the mean depth "
-        f"(volume/area each day), aerodynamic resistance from {wind}, wind from "
+        f"equilibrium_temperature: heat storage of a mixed layer as deep as {depth}, "
+        f"aerodynamic resistance from {wind}, wind from "
         f"{options.wind_height:g} m over {options.wind_exposure}; negative days (condensation, "
         "heat released) are kept"
     )

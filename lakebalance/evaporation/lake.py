@@ -439,6 +439,11 @@ def _heat_table(
             "equilibrium_temperature_c": heat.equilibrium_c,
             "heat_storage_mj_m2": heat.storage,
             "mean_depth_m": prepared.mean_depth_m,
+            "mixed_depth_m": (
+                prepared.mean_depth_m
+                if options.mixed_depth_max is None
+                else np.minimum(prepared.mean_depth_m, options.mixed_depth_max)
+            ),
             "time_constant_days": heat.tau_days,
             "no_storage_m": heat.no_storage_mm * mm,
         },

@@ -47,6 +47,9 @@ class EvaporationOptions(Options):
     # lake geometry when there is no storage relation and stage (else from them, day by day)
     mean_depth: float | None = setting(None, unit="m", low=0.0, high=2000.0)
     lake_area: float | None = setting(None, unit="m2", low=0.0, low_open=True)
+    # depth of the water in the seasonal heat store, at most this (a stratified lake's mixed
+    # layer); unset: the whole mean depth
+    mixed_depth_max: float | None = setting(None, unit="m", low=0.1, high=500.0)
     initial_water_temperature: float | None = setting(None, unit="degC", low=0.0, high=40.0)
     heat_storage_lag: float = setting(0.0, unit="days", low=0.0)  # lag on energy (0 = off)
     fill: Literal["climatology", "none"] = "climatology"  # missing weather days

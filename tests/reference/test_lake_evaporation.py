@@ -344,3 +344,37 @@ def test_precipitation_on_ice_held_until_break_up_keeps_the_total():
     assert held.sum() == pytest.approx(rain.sum())
     assert (held.iloc[2:5] == 0).all() and held.iloc[5] == pytest.approx(0.008)
     assert precipitation_on_ice(rain, ice, "as_it_falls") is rain
+
+
+def test_deep_lake_seasonal_shift_is_at_least_that_of_fao56_table12():
+    """Published figures (FAO-56 Table 12 and notes, from memory): deep temperate water runs at
+    0.65/1.05 of the shallow coefficient while it gains heat and 1.25/1.05 while it releases it.
+    The lake method at 10 m, against itself at 1 m, shifts spring down and autumn up at least
+    that much (it follows the heat store day by day, the table gives season means)."""
+    weather = _weather(365 * 3)
+    ratio = {}
+    for depth in (1.0, 10.0):
+        opts = EvaporationOptions(wind_height=10.0, mean_depth=depth, lake_area=5e6)
+        r = estimate_lake_evaporation(weather, opts, latitude_deg=46.0, elevation_m=400.0)
+        ratio[depth] = r.by_method["equilibrium_temperature"].groupby(r.by_method.index.month).sum()
+    shift = ratio[10.0] / ratio[1.0]
+    assert shift[[4, 5]].max() < 0.65 / 1.05
+    assert shift[[10, 11]].min() > 1.25 / 1.05
+
+
+def test_mixed_depth_cap_limits_the_heat_store():
+    weather = _weather(365 * 2)
+    deep = EvaporationOptions(wind_height=10.0, mean_depth=40.0, lake_area=5e6)
+    capped = EvaporationOptions(
+        wind_height=10.0, mean_depth=40.0, lake_area=5e6, mixed_depth_max=8.0
+    )
+    eight = EvaporationOptions(wind_height=10.0, mean_depth=8.0, lake_area=5e6)
+    run = {
+        k: estimate_lake_evaporation(weather, w_opts, latitude_deg=46.0, elevation_m=400.0)
+        for k, w_opts in (("deep", deep), ("capped", capped), ("eight", eight))
+    }
+    col = "equilibrium_temperature"
+    np.testing.assert_allclose(run["capped"].by_method[col], run["eight"].by_method[col])
+    assert (run["capped"].lake_heat["mixed_depth_m"] == 8.0).all()
+    assert (run["capped"].lake_heat["mean_depth_m"] == 40.0).all()
+    assert not np.allclose(run["deep"].by_method[col], run["eight"].by_method[col])
