@@ -167,6 +167,27 @@ class EvaporationResult:
         rel = self.spread()["relative_sd"].dropna()
         return float(rel.mean()) if len(rel) else None
 
+    def _lake_heat_monthly(self) -> list[dict[str, Any]] | None:
+        """Monthly means of the lake method's heat path for JSON (None without the method)."""
+        if self.lake_heat is None:
+            return None
+        heat = self.lake_heat
+        grouper = heat.index.to_period("M")
+        means = (
+            heat[["water_temperature_c", "mean_depth_m", "mixed_depth_m"]].groupby(grouper).mean()
+        )
+        stored = heat["heat_storage_mj_m2"].groupby(grouper).sum(min_count=1)
+        return [
+            {
+                "month": str(month),
+                "water_temperature_c": row["water_temperature_c"],
+                "mean_depth_m": row["mean_depth_m"],
+                "mixed_depth_m": row["mixed_depth_m"],
+                "heat_stored_mj_m2": stored[month],
+            }
+            for month, row in means.iterrows()
+        ]
+
     def monthly_differences(self, unit: str = "mm") -> pd.DataFrame:
         """Monthly total of each other method minus the chosen one, in ``unit``."""
         totals = self.monthly(unit)
@@ -210,6 +231,8 @@ class EvaporationResult:
             filled days per month), ``differences`` (each other method minus the chosen one),
             ``totals``, ``water_year_start``, ``water_years`` (totals by water year),
             ``spread`` (between the methods, by complete water year), ``ice_days``,
+            ``lake_heat`` (monthly water temperature, depths and heat stored of the lake method,
+            or None),
             ``filled_days``, ``inputs``, ``notes``, ``warnings``, ``caution``.
         """
         monthly = self.monthly(unit)
@@ -242,6 +265,7 @@ class EvaporationResult:
                 ],
             },
             "ice_days": 0 if self.ice is None else int(self.ice.sum()),
+            "lake_heat": self._lake_heat_monthly(),
             "filled_days": int(self.filled.sum()),
             "inputs": self.inputs,
             "notes": list(self.notes),

@@ -378,3 +378,42 @@ def test_mixed_depth_cap_limits_the_heat_store():
     assert (run["capped"].lake_heat["mixed_depth_m"] == 8.0).all()
     assert (run["capped"].lake_heat["mean_depth_m"] == 40.0).all()
     assert not np.allclose(run["deep"].by_method[col], run["eight"].by_method[col])
+
+
+def test_fao56_route_by_depth_class_follows_table12():
+    """FAO-56 route with open_water_class = "by_depth": ET₀ times the Table 12 coefficient of
+    each day's depth class (from memory), here against the constant-coefficient route."""
+    weather = _weather(365)
+    const = EvaporationOptions(wind_height=10.0, open_water_coefficient=1.0, mean_depth=12.0)
+    by_depth = EvaporationOptions(wind_height=10.0, open_water_class="by_depth", mean_depth=12.0)
+    a = estimate_lake_evaporation(weather, const, latitude_deg=46.0, elevation_m=400.0)
+    b = estimate_lake_evaporation(weather, by_depth, latitude_deg=46.0, elevation_m=400.0)
+    doy = weather.index.day_of_year.to_numpy()
+    expected = open_water_coefficient(doy, 12.0, 46.0)
+    ratio = (b.by_method["fao56"] / a.by_method["fao56"]).to_numpy()
+    ok = np.isfinite(ratio) & (a.by_method["fao56"].to_numpy() > 1e-5)
+    np.testing.assert_allclose(ratio[ok], expected[ok], rtol=1e-9)
+    with pytest.raises(Exception, match="mean depth"):
+        estimate_lake_evaporation(
+            weather,
+            EvaporationOptions(wind_height=10.0, open_water_class="by_depth"),
+            latitude_deg=46.0,
+            elevation_m=400.0,
+        )
+
+
+def test_sun_angle_albedo_enters_the_net_radiation():
+    """With albedo_model = "sun_angle" the open-water methods use the daily albedo of
+    openwater.water_albedo (Taylor et al. 1996; from memory); winter days reflect more."""
+    weather = _weather(365)
+    base = EvaporationOptions(wind_height=10.0)
+    sun = EvaporationOptions(wind_height=10.0, albedo_model="sun_angle")
+    a = estimate_lake_evaporation(weather, base, latitude_deg=46.0, elevation_m=400.0)
+    b = estimate_lake_evaporation(weather, sun, latitude_deg=46.0, elevation_m=400.0)
+    assert "albedo" in b.inputs and "albedo" not in a.inputs
+    month = weather.index.month
+    winter = (month == 12) | (month == 1)
+    assert (
+        b.by_method.loc[winter, "priestley_taylor"].sum()
+        < a.by_method.loc[winter, "priestley_taylor"].sum()
+    )
