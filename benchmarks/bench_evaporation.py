@@ -72,6 +72,10 @@ def main() -> None:
                     ],
                     wind_height=10.0,
                     heat_storage_lag=20.0,
+                    mean_depth=8.0,  # m: the lake method (equilibrium_temperature) runs too
+                    lake_area=3e6,  # m²
+                    albedo_model="sun_angle",
+                    open_water_class="by_depth",
                 ),
                 latitude_deg=46.4,
                 elevation_m=412.0,

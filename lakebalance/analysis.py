@@ -320,6 +320,7 @@ class Lake:
         return self._step(("evaporation", method), lambda: self._evaporation(method))
 
     def _evaporation(self, method: str | None) -> EvaporationResult:
+        import numpy as np
         import pandas as pd
 
         from .evaporation.lake import WEATHER_ROLES, estimate_lake_evaporation, surface_volume_m3
@@ -338,20 +339,41 @@ class Lake:
         frame = pd.DataFrame(weather, index=records.daily.index)
         if method is not None and method != opts.method:
             opts = dataclasses.replace(opts, method=method)
+        storage = self.get("storage")
+        daily = records.daily
+        area_m2 = depth_m = None
+        if storage is not None and "stage" in daily.columns:
+            stage = daily["stage"].to_numpy()
+            area_m2 = pd.Series(storage.area(stage), index=daily.index)
+            if hasattr(storage, "volume"):  # mean depth = volume / area, day by day
+                volume = storage.volume(stage, warn=False)
+                with np.errstate(invalid="ignore", divide="ignore"):
+                    depth_m = np.where(area_m2.to_numpy() > 0, volume / area_m2.to_numpy(), 0.0)
+        # Declared ice periods of the site ([[period]], lakebalance.periods) plug in here as
+        # ice_mask=...; until then [evaporation] ice says where the ice days come from.
         result = estimate_lake_evaporation(
             frame,
             opts,
             latitude_deg=site.site.latitude,
             elevation_m=site.site.elevation,
             site_file=str(site.path),
+            mean_depth_m=depth_m,
+            area_m2=None if area_m2 is None else area_m2.to_numpy(),
+            water_year_start=site.site.water_year_start,
         )
         changes: dict[str, Any] = {}
+        frozen_pan = sum(
+            f.count for f in records.findings if f.series == "pan" and "'ice'" in f.detail.lower()
+        )
+        if frozen_pan and opts.ice == "none":
+            averaged.append(
+                f"the pan record has {frozen_pan} 'ICE' days, filled as open water: declare the "
+                "ice periods ([evaporation] ice = 'declared') or infer them "
+                "(ice = 'from_air_temperature') so that they count as ice"
+            )
         if averaged:
             changes["notes"] = (*result.notes, *averaged)
-        storage = self.get("storage")
-        daily = records.daily
-        if storage is not None and "stage" in daily.columns:
-            area_m2 = pd.Series(storage.area(daily["stage"].to_numpy()), index=daily.index)
+        if area_m2 is not None:
             changes["evaporation_m3"] = surface_volume_m3(result.depth_m, area_m2).rename(
                 "evaporation_m3"
             )
@@ -386,7 +408,26 @@ class Lake:
         resolution = None
         if spec is not None and spec.resolution is not None:
             resolution = float(conversion(spec.units, "length", "stage").scale * spec.resolution)
-        return TermErrors.from_options(self.site.uncertainty, resolution)
+        spread = None
+        if self.site.uncertainty.evaporation_error == "method_spread":
+            spread = self._evaporation_spread()
+        return TermErrors.from_options(self.site.uncertainty, resolution, spread)
+
+    def _evaporation_spread(self) -> float:
+        """The relative spread between the evaporation methods over complete water years (-),
+        for ``[uncertainty] evaporation_error = "method_spread"``."""
+        if self._evaporation_depth() is None:
+            raise ConfigError(
+                "[uncertainty] evaporation_error = 'method_spread' needs lake evaporation from "
+                "weather series"
+            )
+        spread = self.evaporation.relative_spread()
+        if spread is None:
+            raise ConfigError(
+                "[uncertainty] evaporation_error = 'method_spread' needs two or more evaporation "
+                "methods over at least one complete water year"
+            )
+        return spread
 
     @property
     def balance(self) -> Balance:
@@ -420,10 +461,13 @@ class Lake:
         rain_keys = records.keys("rain")
         if len(rain_keys) > 1:
             notes.append(f"rain is the daily mean of {len(rain_keys)} gauges")
+        rain_m = records.mean("rain")
+        if rain_m is not None and evaporation_m is not None:
+            rain_m = self._precipitation_on_ice(rain_m, notes)
         terms = DailyTerms(
             stage_m=daily["stage"],
             inflow_m3s=inflows,
-            rain_m=records.mean("rain"),
+            rain_m=rain_m,
             evaporation_m=evaporation_m,
             withdrawal_m3s=records.total("withdrawal") if records.has("withdrawal") else None,
             release_m3s=records.total("release") if records.has("release") else None,
@@ -475,6 +519,19 @@ class Lake:
                 rating_variants=site.uncertainty.rating_variants,
             )
         return dataclasses.replace(balance, notes=(*balance.notes, *notes))
+
+    def _precipitation_on_ice(self, rain_m: pd.Series, notes: list[str]) -> pd.Series:
+        """Rain and snow on the ice as ``[evaporation] precipitation_on_ice`` says."""
+        from .evaporation.ice import precipitation_on_ice
+
+        ice = self.evaporation.ice
+        rule = self.site.evaporation.precipitation_on_ice
+        if ice is None or not ice.any() or rule == "as_it_falls":
+            return rain_m
+        notes.append("precipitation on the ice held until the first open day (at_break_up)")
+        return precipitation_on_ice(
+            rain_m, ice.reindex(rain_m.index, fill_value=False).to_numpy(), rule
+        )
 
     @property
     def flags(self) -> Flags:

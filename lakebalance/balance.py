@@ -104,6 +104,9 @@ class UncertaintyOptions(Options):
     inflow: float | None = setting(None, unit="-", low=0.0, high=1.0)  # gauged inflows
     rain: float | None = setting(None, unit="-", low=0.0, high=1.0)  # rain depth
     evaporation: float | None = setting(None, unit="-", low=0.0, high=1.0)  # lake evaporation
+    # "method_spread": the evaporation error is the spread between the evaporation methods
+    # (EvaporationResult.relative_spread), not `evaporation`
+    evaporation_error: Literal["stated", "method_spread"] = "stated"
     withdrawal: float | None = setting(None, unit="-", low=0.0, high=1.0)  # metered withdrawals
     release: float | None = setting(None, unit="-", low=0.0, high=1.0)  # metered releases
     stage_resolution: float | None = setting(None, unit="m", low=0.0)  # stage gauge resolution
@@ -258,7 +261,10 @@ class TermErrors:
 
     @classmethod
     def from_options(
-        cls, options: UncertaintyOptions, stage_resolution_m: float | None = None
+        cls,
+        options: UncertaintyOptions,
+        stage_resolution_m: float | None = None,
+        evaporation_spread: float | None = None,
     ) -> TermErrors:
         """The errors an ``[uncertainty]`` section asks for, over the defaults above.
 
@@ -269,6 +275,10 @@ class TermErrors:
         stage_resolution_m : float, optional
             The stage gauge's resolution (m) when the section gives none (e.g. from the stage
             series' declared resolution).
+        evaporation_spread : float, optional
+            The relative spread between the evaporation methods (-,
+            :meth:`lakebalance.evaporation.EvaporationResult.relative_spread`); with
+            ``evaporation_error = "method_spread"`` it is the evaporation term's relative error.
         """
         changes = {
             name: float(getattr(options, name))
@@ -284,6 +294,8 @@ class TermErrors:
             if getattr(options, name) is not None
         }
         changes["systematic_period"] = options.systematic_period
+        if options.evaporation_error == "method_spread" and evaporation_spread is not None:
+            changes["evaporation"] = min(float(evaporation_spread), 1.0)
         if options.stage_resolution is not None:
             changes["stage_resolution_m"] = float(options.stage_resolution)
         elif stage_resolution_m is not None:

@@ -13,6 +13,8 @@ Methods by family, each an :class:`EvaporationMethod` entry of :data:`REGISTRY`
 (:mod:`~lakebalance.evaporation.registry`):
 
 - :mod:`~lakebalance.evaporation.measured`: ``given``, a measured series;
+- :mod:`~lakebalance.evaporation.equilibrium`: ``equilibrium_temperature``, the lake method
+  (heat storage from the mean depth, Penman-Monteith for open water);
 - :mod:`~lakebalance.evaporation.pan`: ``pan``, pan times a coefficient;
 - :mod:`~lakebalance.evaporation.combination`: ``penman`` (open water), ``fao56``
   (Penman-Monteith reference times an open-water coefficient);
@@ -20,7 +22,10 @@ Methods by family, each an :class:`EvaporationMethod` entry of :data:`REGISTRY`
 - :mod:`~lakebalance.evaporation.temperature_based`: ``hargreaves``.
 
 :mod:`~lakebalance.evaporation.lake` runs every method the weather allows for one site and
-chooses one (:func:`estimate_lake_evaporation`, :class:`EvaporationResult`). All equations are
+chooses one (:func:`estimate_lake_evaporation`, :class:`EvaporationResult`).
+:mod:`~lakebalance.evaporation.openwater` holds what makes water differ from grass (wind over
+water, the fetch-aware wind function, albedo by sun angle, the FAO-56 open-water coefficients);
+:mod:`~lakebalance.evaporation.ice` the ice cover. All equations are
 pure numpy functions that broadcast over days and ensemble members.
 """
 
@@ -39,8 +44,17 @@ from .atmosphere import (
     wind_at_2m,
 )
 from .combination import fao56_reference, penman_open_water
+from .equilibrium import lake_heat, penman_monteith_open_water
+from .ice import ice_mask_from_air_temperature, ice_mask_from_periods, precipitation_on_ice
 from .lake import EvaporationResult, estimate_lake_evaporation, surface_volume_m3
 from .method import EvaporationMethod
+from .openwater import (
+    fetch_from_area,
+    open_water_coefficient,
+    sweers_wind_function,
+    water_albedo,
+    wind_over_water,
+)
 from .options import EvaporationOptions
 from .pan import pan_to_lake
 from .radiation import (
@@ -77,6 +91,16 @@ __all__ = [
     "estimate_lake_evaporation",
     "extraterrestrial_radiation",
     "fao56_reference",
+    "fetch_from_area",
+    "ice_mask_from_air_temperature",
+    "ice_mask_from_periods",
+    "lake_heat",
+    "open_water_coefficient",
+    "penman_monteith_open_water",
+    "precipitation_on_ice",
+    "sweers_wind_function",
+    "water_albedo",
+    "wind_over_water",
     "hargreaves",
     "heat_storage_lag",
     "inverse_relative_distance",

@@ -1,8 +1,10 @@
 """Combination methods: an energy term and an aerodynamic term (Penman, 1948; FAO-56).
 
 - ``penman``: open-water Penman (1948), SI form, on the available energy of open water;
-- ``fao56``: the FAO-56 Penman-Monteith grass reference ET0 (eq. 6, grass albedo 0.23) times
-  ``open_water_coefficient``.
+- ``fao56``: the FAO-56 Penman-Monteith grass reference ET0 (eq. 6, grass albedo 0.23) times an
+  open-water coefficient: ``open_water_coefficient``, or by depth class and season
+  (``open_water_class = "by_depth"``, FAO-56 Table 12 notes;
+  :func:`~lakebalance.evaporation.openwater.open_water_coefficient`).
 
 Equations return mm per day, the unit they are published in; the entries convert to m per day
 through :mod:`lakebalance.units`.
@@ -170,6 +172,29 @@ def _penman(weather: PreparedWeather, options: EvaporationOptions) -> np.ndarray
     return np.asarray(mm_per_day, dtype=float) * factor("mm", "m")
 
 
+def open_water_kc(weather: PreparedWeather, options: EvaporationOptions) -> np.ndarray | float:
+    """The FAO-56 open-water coefficient of each day (-): the constant, or by depth class.
+
+    Raises
+    ------
+    ConfigError
+        With ``open_water_class = "by_depth"`` and no mean depth or latitude.
+    """
+    if options.open_water_class == "constant":
+        return options.open_water_coefficient
+    from ..errors import ConfigError
+    from .openwater import open_water_coefficient
+
+    if weather.mean_depth_m is None or weather.latitude_deg is None:
+        raise ConfigError(
+            "[evaporation] open_water_class = 'by_depth' needs the lake's mean depth (a storage "
+            "relation with a stage record, or [evaporation] mean_depth) and [site] latitude"
+        )
+    return open_water_coefficient(
+        weather.index.day_of_year.to_numpy(), weather.mean_depth_m, weather.latitude_deg
+    )
+
+
 def _fao56(weather: PreparedWeather, options: EvaporationOptions) -> np.ndarray:
     """FAO-56 grass reference ET0 times the open-water coefficient, m/d."""
     rn_grass = rad.net_radiation(
@@ -183,7 +208,7 @@ def _fao56(weather: PreparedWeather, options: EvaporationOptions) -> np.ndarray:
         weather.wind_2m_ms,
         weather.pressure_kpa,
     )
-    mm_per_day = options.open_water_coefficient * et0
+    mm_per_day = open_water_kc(weather, options) * et0
     return np.asarray(mm_per_day, dtype=float) * factor("mm", "m")
 
 
@@ -195,9 +220,10 @@ PENMAN = EvaporationMethod(
     roles=_ROLES,
     needs=("energy", "wind"),
     compute=_penman,
-    preference=2,
+    preference=3,
     condensation=True,
     uses_pressure=True,
+    keep_negative=lambda options: options.heat_storage_lag > 0,
 )
 
 FAO56 = EvaporationMethod(
@@ -208,11 +234,15 @@ FAO56 = EvaporationMethod(
     roles=_ROLES,
     needs=("energy", "wind"),
     compute=_fao56,
-    preference=3,
+    preference=4,
     condensation=True,
     uses_pressure=True,
     chosen_note=lambda options: (
         f"FAO-56 grass reference ET0 times an open-water coefficient of "
         f"{options.open_water_coefficient:g}"
+        if options.open_water_class == "constant"
+        else "FAO-56 grass reference ET0 times the open-water coefficient of the lake's depth "
+        "class (FAO-56 Table 12 notes: 1.05 below 2 m; 0.65 in spring to 1.25 in autumn "
+        "beyond 5 m)"
     ),
 )

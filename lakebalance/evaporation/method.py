@@ -24,8 +24,9 @@ __all__ = ["Family", "FAMILIES", "EvaporationMethod"]
 #: Families of methods as the literature groups them (e.g. Xu and Singh, 2000-2002, from memory):
 #: a measurement, a pan with a coefficient, combination (energy and aerodynamic terms),
 #: radiation-based (energy only), temperature-based.
-Family = Literal["measured", "pan", "combination", "radiation", "temperature"]
-FAMILIES: tuple[str, ...] = ("measured", "pan", "combination", "radiation", "temperature")
+#: ``lake`` (module :mod:`.equilibrium`): methods that follow the lake's own heat store.
+Family = Literal["measured", "lake", "pan", "combination", "radiation", "temperature"]
+FAMILIES: tuple[str, ...] = ("measured", "lake", "pan", "combination", "radiation", "temperature")
 
 
 @dataclass(frozen=True)
@@ -71,6 +72,10 @@ class EvaporationMethod:
         An :class:`~lakebalance.errors.ApproximationWarning` raised when it is the one chosen.
     comparison_note : str, optional
         A note when it is computed but another method is chosen.
+    keep_negative : callable, optional
+        ``keep_negative(options) -> bool``: whether negative days are kept even with
+        ``clip_negative`` (a method with heat storage: heat released on a cold night is real,
+        and clipping it would bias the totals upward).
     """
 
     name: str
@@ -87,3 +92,4 @@ class EvaporationMethod:
     chosen_note: Callable[[EvaporationOptions], str] | None = None
     chosen_warning: str | None = None
     comparison_note: str | None = None
+    keep_negative: Callable[[EvaporationOptions], bool] | None = None

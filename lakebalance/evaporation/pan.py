@@ -84,6 +84,6 @@ PAN = EvaporationMethod(
     roles=("pan",),
     needs=("pan",),
     compute=_pan,
-    preference=1,
+    preference=2,
     input_note=_rule_of_thumb,
 )

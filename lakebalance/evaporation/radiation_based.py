@@ -83,7 +83,8 @@ PRIESTLEY_TAYLOR = EvaporationMethod(
     roles=("tmax", "tmin", "tmean", "rh", "rh_max", "rh_min", "dewpoint", "solar", "sunshine"),
     needs=("energy",),
     compute=_priestley_taylor,
-    preference=4,
+    preference=5,
     condensation=True,
     uses_pressure=True,
+    keep_negative=lambda options: options.heat_storage_lag > 0,
 )

@@ -2,7 +2,7 @@
 
 A method is an :class:`~lakebalance.evaporation.method.EvaporationMethod` defined in the module
 of its family (:mod:`.measured`, :mod:`.pan`, :mod:`.combination`, :mod:`.radiation_based`,
-:mod:`.temperature_based`) and listed once in :data:`REGISTRY`; the method names of the site
+:mod:`.temperature_based`, :mod:`.equilibrium`) and listed once in :data:`REGISTRY`; the method names of the site
 file, the command line and the tables all come from here (``tests/test_evaporation_registry.py``
 checks that the options, the command and the documentation agree with it).
 """
@@ -11,6 +11,7 @@ from __future__ import annotations
 
 from ..errors import ConfigError
 from .combination import FAO56, PENMAN
+from .equilibrium import EQUILIBRIUM
 from .measured import GIVEN
 from .method import EvaporationMethod
 from .pan import PAN
@@ -20,13 +21,22 @@ from .temperature_based import HARGREAVES
 __all__ = ["REGISTRY", "METHODS", "PREFERENCE", "method_named"]
 
 #: Every method, in the order tables list them.
-REGISTRY: tuple[EvaporationMethod, ...] = (GIVEN, PAN, PENMAN, PRIESTLEY_TAYLOR, FAO56, HARGREAVES)
+REGISTRY: tuple[EvaporationMethod, ...] = (
+    GIVEN,
+    EQUILIBRIUM,
+    PAN,
+    PENMAN,
+    PRIESTLEY_TAYLOR,
+    FAO56,
+    HARGREAVES,
+)
 
 #: Method names in table order.
 METHODS: tuple[str, ...] = tuple(m.name for m in REGISTRY)
 
-#: The order ``method = "auto"`` tries them: a measurement, then a pan, then the open-water
-#: energy-and-aerodynamic method, the grass reference scaled, energy only, temperature only.
+#: The order ``method = "auto"`` tries them: a measurement, then the lake method (where the lake's
+#: depth and area are known), a pan, the open-water energy-and-aerodynamic method, the grass
+#: reference scaled, energy only, temperature only.
 PREFERENCE: tuple[str, ...] = tuple(m.name for m in sorted(REGISTRY, key=lambda m: m.preference))
 
 _BY_NAME = {m.name: m for m in REGISTRY}

@@ -66,8 +66,17 @@ def hargreaves(
 
 
 def _hargreaves(weather: PreparedWeather, options: EvaporationOptions) -> np.ndarray:
-    """Hargreaves ET0 from the daily temperature range and R_a, m/d."""
+    """Hargreaves ET0 from the daily temperature range and R_a, times an open-water
+    coefficient (``hargreaves_coefficient``, else that of the FAO-56 route), m/d.
+
+    Hargreaves estimates the evapotranspiration of a grass reference, not of a lake: as lake
+    evaporation it needs the coefficient that FAO-56 applies to any ET0 (the ET0 of eq. 52 is
+    the same quantity as that of eq. 6)."""
+    from .combination import open_water_kc
+
     mm_per_day = hargreaves(weather.tmax_c, weather.tmin_c, weather.extraterrestrial)
+    k = options.hargreaves_coefficient
+    mm_per_day = (open_water_kc(weather, options) if k is None else k) * mm_per_day
     return np.asarray(mm_per_day, dtype=float) * factor("mm", "m")
 
 
@@ -79,8 +88,16 @@ HARGREAVES = EvaporationMethod(
     roles=("tmax", "tmin"),
     needs=("temperature_range", "extraterrestrial"),
     compute=_hargreaves,
-    preference=5,
+    preference=6,
     condensation=True,
+    input_note=lambda options: (
+        "hargreaves: the grass reference ET0 of FAO-56 eq. 52 times "
+        + (
+            f"hargreaves_coefficient {options.hargreaves_coefficient:g}"
+            if options.hargreaves_coefficient is not None
+            else "the open-water coefficient of the FAO-56 route (no hargreaves_coefficient)"
+        )
+    ),
     chosen_note=lambda options: "Hargreaves (temperature only) is a rough estimate for open water",
     chosen_warning=(
         "lake evaporation by Hargreaves uses temperature only; expect errors of 20% or more "

@@ -63,6 +63,10 @@ QUANTITIES: dict[str, str] = {
     "wind": "wind at 2 m (m/s)",
     "temperature_range": "daily maximum and minimum temperature (°C)",
     "extraterrestrial": "extraterrestrial radiation (MJ m⁻² d⁻¹), from the site latitude",
+    "lake_geometry": (
+        "the lake's mean depth (volume/area, m) and area (m²) of each day, from the storage "
+        "relation and the stage record (or [evaporation] mean_depth and lake_area)"
+    ),
 }
 
 _FILL_HALF_WINDOW = 15  # days either side of the day of year in the climatology
@@ -89,6 +93,8 @@ class PreparedWeather:
         Air pressure, kPa.
     elevation_m : float
         Site elevation used, m (0 when unknown).
+    latitude_deg : float or None
+        Site latitude, decimal degrees north.
     wind_2m_ms : ndarray or None
         Wind speed at 2 m, m/s.
     extraterrestrial : ndarray or None
@@ -99,6 +105,14 @@ class PreparedWeather:
         R_nl, MJ m⁻² d⁻¹.
     available_energy : ndarray or None
         Net radiation of open water (``albedo``) less heat going into storage, MJ m⁻² d⁻¹.
+    net_radiation_water : ndarray or None
+        Net radiation of open water, without any heat-storage lag, MJ m⁻² d⁻¹.
+    albedo : ndarray or None
+        The daily albedo of the water used, (-).
+    mean_depth_m, area_m2 : ndarray or None
+        Mean depth (volume / area, m) and surface area (m²) of the lake each day.
+    ice : ndarray of bool or None
+        Days under ice.
     quantities : dict
         Each quantity of :data:`QUANTITIES` that could be made -> the series roles behind it.
     missing : dict
@@ -119,11 +133,17 @@ class PreparedWeather:
     vapour_pressure_kpa: np.ndarray | None = None
     pressure_kpa: float = 101.3
     elevation_m: float = 0.0
+    latitude_deg: float | None = None
     wind_2m_ms: np.ndarray | None = None
     extraterrestrial: np.ndarray | None = None
     solar: np.ndarray | None = None
     net_longwave: np.ndarray | None = None
     available_energy: np.ndarray | None = None
+    net_radiation_water: np.ndarray | None = None
+    albedo: np.ndarray | None = None
+    mean_depth_m: np.ndarray | None = None
+    area_m2: np.ndarray | None = None
+    ice: np.ndarray | None = None
     quantities: Mapping[str, tuple[str, ...]] = field(default_factory=dict)
     missing: Mapping[str, str] = field(default_factory=dict)
     notes: tuple[str, ...] = ()
@@ -157,6 +177,9 @@ def prepare_weather(
     *,
     latitude_deg: float | None,
     elevation_m: float | None,
+    mean_depth_m: pd.Series | np.ndarray | None = None,
+    area_m2: pd.Series | np.ndarray | None = None,
+    ice: np.ndarray | None = None,
 ) -> PreparedWeather:
     """Fill the weather and derive the quantities every method uses (FAO-56 chapter 3).
 
@@ -174,6 +197,12 @@ def prepare_weather(
         Site latitude, decimal degrees north (radiation).
     elevation_m : float or None
         Site elevation, m above sea level (air pressure); sea level when None.
+    mean_depth_m, area_m2 : pandas.Series or ndarray, optional
+        The lake's mean depth (volume / area, m) and area (m²) of each day; default: the
+        constants ``options.mean_depth`` and ``options.lake_area`` when set.
+    ice : ndarray of bool, optional
+        Days under ice: a missing ``pan`` or ``evaporation`` value on them is not filled (the
+        pan is frozen, and the day's lake evaporation is the sublimation of the ice).
 
     Returns
     -------
@@ -187,6 +216,14 @@ def prepare_weather(
     else:
         data = raw.copy()
         was_filled = pd.DataFrame(False, index=index, columns=roles)
+    if ice is not None and roles:
+        frozen = np.asarray(ice, dtype=bool)
+        for role in ("pan", "evaporation"):
+            if role in data.columns:
+                unfill = frozen & was_filled[role].to_numpy()
+                if unfill.any():
+                    data.loc[unfill, role] = np.nan
+                    was_filled.loc[unfill, role] = False
 
     def col(role: str) -> np.ndarray | None:
         return data[role].to_numpy() if role in data.columns else None
@@ -224,9 +261,10 @@ def prepare_weather(
         inputs=inputs,
     )
 
-    available = None
+    available = rn_water = albedo = None
     if rnl is not None:
-        rn_water = rad.net_radiation(rad.net_shortwave(rs, options.albedo), rnl)
+        albedo = _albedo(options, latitude_deg, index, rs, ra, inputs)
+        rn_water = rad.net_radiation(rad.net_shortwave(rs, albedo), rnl)
         if options.heat_storage_lag > 0:
             available = rad.heat_storage_lag(rn_water, options.heat_storage_lag)
             notes.append(
@@ -247,6 +285,7 @@ def prepare_weather(
         quantities["extraterrestrial"] = ()
     else:
         missing["extraterrestrial"] = _LATITUDE
+    depth, area = _geometry(index, options, mean_depth_m, area_m2, quantities, missing)
 
     return PreparedWeather(
         index=index,
@@ -259,11 +298,17 @@ def prepare_weather(
         vapour_pressure_kpa=ea,
         pressure_kpa=pressure,
         elevation_m=elevation,
+        latitude_deg=latitude_deg,
         wind_2m_ms=u2,
         extraterrestrial=ra,
         solar=rs,
         net_longwave=rnl,
         available_energy=available,
+        net_radiation_water=rn_water,
+        albedo=albedo,
+        mean_depth_m=depth,
+        area_m2=area,
+        ice=None if ice is None else np.asarray(ice, dtype=bool),
         quantities=quantities,
         missing=missing,
         notes=tuple(notes),
@@ -385,6 +430,50 @@ def _radiation(
             tmean_c=tmean,
         )
     return ra, rs, rnl, rad_cols
+
+
+def _albedo(options, latitude_deg, index, rs, ra, inputs) -> np.ndarray:
+    """The daily albedo of the water: constant, or by sun angle (Taylor et al. 1996)."""
+    if options.albedo_model == "constant":
+        return np.full(len(index), float(options.albedo))
+    from .openwater import water_albedo
+
+    inputs["albedo"] = (
+        "by sun angle (Taylor et al. 1996 direct beam, diffuse "
+        f"{options.albedo:g}, diffuse fraction by Erbs et al. 1982)"
+    )
+    return water_albedo(
+        latitude_deg, index.day_of_year.to_numpy(), rs, ra, diffuse_albedo=options.albedo
+    )
+
+
+def _geometry(index, options, mean_depth_m, area_m2, quantities, missing):
+    """``(mean depth m, area m²)`` of each day (arrays or None) and the lake_geometry quantity."""
+    n = len(index)
+
+    def daily(values, constant):
+        if values is not None:
+            out = pd.Series(np.asarray(values, dtype=float).reshape(-1))
+            if out.size == n and np.isfinite(out).any():  # gaps bridged linearly, ends held
+                return out.interpolate(limit_area="inside").ffill().bfill().to_numpy()
+        return None if constant is None else np.full(n, float(constant))
+
+    depth = daily(mean_depth_m, options.mean_depth)
+    area = daily(area_m2, options.lake_area)
+    needs_area = options.wind_function == "sweers"
+    if depth is not None and (area is not None or not needs_area):
+        quantities["lake_geometry"] = ()
+    else:
+        words = []
+        if depth is None:
+            words.append("the lake's mean depth")
+        if area is None and needs_area:
+            words.append("its area")
+        missing["lake_geometry"] = (
+            " and ".join(words) + " (a storage relation with a stage record, or [evaporation] "
+            "mean_depth and lake_area)"
+        )
+    return depth, area
 
 
 def _energy_needs(latitude_deg, tmean, rs, ea) -> str:
