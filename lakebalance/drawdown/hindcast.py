@@ -66,7 +66,7 @@ __all__ = [
 BINS = (0.0, 0.1, 0.3, 0.5, 0.7, 0.9, 1.0)
 
 _MIN_COVERAGE = 0.95  # share of the horizon's days with a recorded stage for a start to be scored
-_MEMBER_DAYS = 2_000_000  # member-days per engine run (memory of a chunk)
+_MEMBER_DAYS = 200_000  # member-days per engine run (a chunk: memory, and progress shown)
 
 
 # ---- scores ---------------------------------------------------------------------------------
@@ -379,7 +379,7 @@ def run_hindcast(
     stage_max_m : float, optional
         Top of the engine's tables (m).
     progress : callable, optional
-        Called with the number of starts done.
+        Called with the number of starts scored, after each chunk.
 
     Returns
     -------
@@ -413,7 +413,6 @@ def run_hindcast(
     pending: list[dict[str, Any]] = []
     results: list[dict[str, Any]] = []
     notes: list[str] = []
-    done = 0
 
     def flush() -> None:
         if not pending:
@@ -435,6 +434,8 @@ def run_hindcast(
             del p["forcing"]
             k += m
         pending.clear()
+        if progress is not None:
+            progress(len(results))
 
     per_chunk = 0
     for s in starts:
@@ -472,9 +473,6 @@ def run_hindcast(
         if per_chunk >= _MEMBER_DAYS:
             flush()
             per_chunk = 0
-        done += 1
-        if progress is not None:
-            progress(done)
     flush()
     if not results:
         raise ConfigError("no start of the hindcast could be run: " + "; ".join(notes[:3]))

@@ -86,6 +86,8 @@ __all__ = [
     "SupplyDays",
     "days_of_supply",
     "monthly_factors",
+    "RecordPerformance",
+    "YieldStudy",
     "CAUTION",
 ]
 
@@ -972,3 +974,43 @@ def days_of_supply(
         volume_m3=max(float(v[1] - v[0]), 0.0),
         stage_m=res.stage_m[:, 0],
     )
+
+
+# ---- the study of one lake ------------------------------------------------------------------
+@dataclass(frozen=True)
+class YieldStudy:
+    """Firm yield, storage–yield curve, the demand's reliability under its rules and the days
+    of supply from the last state, for one lake (:meth:`lakebalance.analysis.Lake.yield_`).
+    ``performance`` and ``supply`` are None when there is no demand to judge."""
+
+    firm: FirmYield
+    curve: StorageYield
+    performance: RecordPerformance | None
+    supply: SupplyDays | None
+    notes: tuple[str, ...] = ()
+
+    def to_frame(self) -> pd.DataFrame:
+        """The storage–yield curve."""
+        return self.curve.to_frame()
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-ready summary."""
+        return {
+            "firm_yield": self.firm.to_dict(),
+            "storage_yield": self.curve.to_dict(),
+            "performance": None if self.performance is None else self.performance.to_dict(),
+            "days_of_supply": None if self.supply is None else self.supply.to_dict(),
+            "notes": list(self.notes),
+            "caution": CAUTION,
+        }
+
+    def summary(self) -> Summary:
+        """The whole study as text."""
+        parts = [self.firm.summary(), "", self.curve.summary()]
+        if self.performance is not None:
+            parts += ["", self.performance.summary()]
+        if self.supply is not None:
+            parts += ["", self.supply.sentence()]
+        parts += [f"note: {n}" for n in self.notes]
+        parts += ["", CAUTION]
+        return Summary("\n".join(parts), "yield and reliability")
