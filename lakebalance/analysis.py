@@ -872,6 +872,7 @@ class Lake:
         dry_inflow_m3s: float = 0.0,
         supply_days: int = 3650,
         shares: tuple[float, ...] = (0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9),
+        rtol: float = 1e-3,
     ) -> YieldStudy:
         """Firm yield through the record, storage–yield curve, reliability of the demand under
         the restriction rules, and days of supply from the last recorded stage.
@@ -893,6 +894,8 @@ class Lake:
             Horizon of the days of supply (days; several years by default).
         shares : tuple of float
             Yields of the storage–yield curve, as shares of the mean net inflow (-).
+        rtol : float
+            Relative width of the firm yield's final bracket (-), 1e-6 to 0.5.
 
         See :mod:`lakebalance.drawdown.yield_` for the methods and their references.
         """
@@ -902,11 +905,16 @@ class Lake:
             raise ConfigError(f"days of supply horizon {supply_days}: 1 to 36,525 days")
         if dry_inflow_m3s < 0:
             raise ConfigError(f"dry inflow {dry_inflow_m3s} m³/s: not below zero")
-        key = ("yield", failure_level, start_level, pattern, dry_inflow_m3s, supply_days, shares)
+        if not 1e-6 <= rtol <= 0.5:
+            raise ConfigError(f"firm yield tolerance {rtol}: 1e-6 to 0.5")
+        key = (
+            "yield", failure_level, start_level, pattern, dry_inflow_m3s, supply_days, shares,
+            rtol,
+        )  # fmt: skip
         return self._step(
             key,
             lambda: self._yield(
-                failure_level, start_level, pattern, dry_inflow_m3s, supply_days, shares
+                failure_level, start_level, pattern, dry_inflow_m3s, supply_days, shares, rtol
             ),
         )
 
@@ -918,6 +926,7 @@ class Lake:
         dry_inflow_m3s: float,
         supply_days: int,
         shares: tuple[float, ...],
+        rtol: float,
     ) -> YieldStudy:
         import numpy as np
         import pandas as pd
@@ -977,7 +986,7 @@ class Lake:
             firm = firm_yield(
                 laws, forcing, failure_level_m=fail_m, failure_level=fail_name, start_stage_m=h0,
                 pattern=use_pattern, environmental_release_m3s=opts.environmental_release,
-                progress=callback,
+                rtol=rtol, progress=callback,
             )  # fmt: skip
         finally:
             if bar is not None:

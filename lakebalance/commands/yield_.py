@@ -50,6 +50,13 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         metavar="N",
         help="horizon of the days of supply, days (default 3650: ten years)",
     )
+    parser.add_argument(
+        "--tolerance",
+        type=float,
+        default=1e-3,
+        metavar="R",
+        help="relative width of the firm yield's final bracket (default 0.001)",
+    )
     parser.add_argument("--no-progress", action="store_true", help="no progress bar on stderr")
     add_json(parser)
     add_out(parser)
@@ -69,6 +76,7 @@ def run(args: argparse.Namespace) -> int:
             pattern="constant" if args.constant else "demand",
             dry_inflow_m3s=args.dry_inflow,
             supply_days=args.supply_days,
+            rtol=args.tolerance,
         )
     written = []
     if out is not None:
