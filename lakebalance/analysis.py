@@ -1034,6 +1034,7 @@ class Lake:
         members: int = 100,
         first: str | None = None,
         last: str | None = None,
+        anniversary: str | None = None,
     ) -> Hindcast:
         """Hindcast skill of the drawdown outlook (:mod:`lakebalance.drawdown.hindcast`).
 
@@ -1049,6 +1050,8 @@ class Lake:
             Members per start of the stochastic scenario.
         first, last : str, optional
             ISO dates bounding the starts.
+        anniversary : str, optional
+            ISO date: start on its day of the year in every year instead (``every`` unused).
 
         Notes
         -----
@@ -1065,11 +1068,30 @@ class Lake:
             raise ConfigError(f"hindcast scenario {scenario!r}: replay, stochastic or percentile")
         if members < 1:
             raise ConfigError(f"hindcast members {members}: at least 1")
-        key = ("hindcast", days, every, scenario, members, first, last)
-        return self._step(key, lambda: self._hindcast(days, every, scenario, members, first, last))
+        if anniversary is not None:
+            import pandas as pd
+
+            try:
+                pd.Timestamp(anniversary)
+            except (ValueError, TypeError):
+                raise ConfigError(
+                    f"hindcast anniversary {anniversary!r} is not an ISO date"
+                ) from None
+        key = ("hindcast", days, every, scenario, members, first, last, anniversary)
+        return self._step(
+            key,
+            lambda: self._hindcast(days, every, scenario, members, first, last, anniversary),
+        )
 
     def _hindcast(
-        self, days: int, every: int, scenario: str, members: int, first: Any, last: Any
+        self,
+        days: int,
+        every: int,
+        scenario: str,
+        members: int,
+        first: Any,
+        last: Any,
+        anniversary: Any,
     ) -> Hindcast:
         import numpy as np
 
@@ -1083,7 +1105,7 @@ class Lake:
         if "inflow_m3s" not in history.columns:
             raise ConfigError("the hindcast's scenarios need an inflow record")
         stage = daily["stage"]
-        starts = hindcast_starts(stage, days, every, first, last)
+        starts = hindcast_starts(stage, days, every, first, last, anniversary=anniversary)
         _, dead = self._dead_level()
         laws, why = self.laws(seepage=opts.seepage)
         bar = callback = None

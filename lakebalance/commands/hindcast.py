@@ -41,6 +41,12 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     )
     parser.add_argument("--first", default=None, metavar="DATE", help="first start, ISO date")
     parser.add_argument("--last", default=None, metavar="DATE", help="last start, ISO date")
+    parser.add_argument(
+        "--anniversary",
+        default=None,
+        metavar="DATE",
+        help="start on this date's day of the year in every year (the outlook's season)",
+    )
     parser.add_argument("--no-progress", action="store_true", help="no progress bar on stderr")
     add_seed(parser)
     add_json(parser)
@@ -62,6 +68,7 @@ def run(args: argparse.Namespace) -> int:
             members=args.members,
             first=args.first,
             last=args.last,
+            anniversary=args.anniversary,
         )
     written = []
     if out is not None:

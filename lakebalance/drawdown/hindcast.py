@@ -146,11 +146,21 @@ def _murphy(table: pd.DataFrame, base_rate: float, n: int) -> tuple[float, float
 
 # ---- starts ---------------------------------------------------------------------------------
 def hindcast_starts(
-    stage: pd.Series, days: int, every: int = 30, first: Any = None, last: Any = None
+    stage: pd.Series,
+    days: int,
+    every: int = 30,
+    first: Any = None,
+    last: Any = None,
+    *,
+    anniversary: Any = None,
 ) -> pd.DatetimeIndex:
     """Start dates every ``every`` days from the first recorded stage (or ``first``) to the last
     date whose whole horizon lies in the record (or ``last``), kept where the stage is recorded
-    on the start day and on at least 95 % of the horizon's days, the last one included."""
+    on the start day and on at least 95 % of the horizon's days, the last one included.
+
+    With ``anniversary`` (a date), the starts are that day of the year in every year instead
+    (29 February as 28 February in other years): the outlook's own season, year after year.
+    """
     s = stage.dropna()
     if s.empty:
         raise ConfigError("the hindcast needs a stage record")
@@ -163,7 +173,17 @@ def hindcast_starts(
             f"the stage record ({s.index[0].date()} to {s.index[-1].date()}) is shorter than one "
             f"horizon of {days:,} days after the first start"
         )
-    cand = pd.date_range(t0, t1, freq=f"{int(every)}D")
+    if anniversary is None:
+        cand = pd.date_range(t0, t1, freq=f"{int(every)}D")
+    else:
+        a = pd.Timestamp(anniversary)
+        cand = pd.DatetimeIndex(
+            [
+                pd.Timestamp(y, a.month, 28 if (a.month, a.day) == (2, 29) else a.day)
+                for y in range(t0.year, t1.year + 1)
+            ]
+        )
+        cand = cand[(cand >= t0) & (cand <= t1)]
     known = stage.notna()
     cum = np.concatenate([[0], np.cumsum(known.to_numpy())])
     pos = pd.Index(stage.index)
