@@ -494,6 +494,10 @@ def run_hindcast(
             flush()
             per_chunk = 0
     flush()
+    notes.append(
+        "each start's forcing leaves its own future out; the lake's laws (storage, rating, "
+        "seepage) are those fitted to the whole record"
+    )
     if not results:
         raise ConfigError("no start of the hindcast could be run: " + "; ".join(notes[:3]))
     return _score(results, levels, stage, scenario, days, every, seed, notes)
