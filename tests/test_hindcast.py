@@ -87,7 +87,8 @@ def _truth(laws, inflow: pd.Series, h0: float) -> pd.Series:
     return pd.Series(res.stage_m[1:, 0], index=inflow.index, name="stage")
 
 
-def test_hindcast_of_a_lake_whose_years_repeat_is_perfect():
+@pytest.mark.parametrize("days", [120, 500])  # within a year, and a horizon of over a year
+def test_hindcast_of_a_lake_whose_years_repeat_is_perfect(days):
     # inflow by calendar month, the same every year: every replayed year is the year that came,
     # so the outlook's probabilities are 0 or 1 and right, and its CRPS is zero (common
     # practice: a perfect forecast scores 0)
@@ -99,13 +100,15 @@ def test_hindcast_of_a_lake_whose_years_repeat_is_perfect():
         laws, inflow, 4.0
     )  # the outlook sees the forcing of other years, not their stage
     hist = pd.DataFrame({"inflow_m3s": inflow})
-    starts = hindcast_starts(stage, 120, every=61)
-    hc = run_hindcast(laws, hist, stage, days=120, starts=starts)
-    assert hc.starts == len(starts) > 20
+    starts = hindcast_starts(stage, days, every=61)
+    hc = run_hindcast(laws, hist, stage, days=days, starts=starts)
+    assert hc.starts == len(starts) > 15
     ev = hc.events
     assert set(ev["probability"].unique()) <= {0.0, 1.0}
     assert (ev["probability"] == ev["happened"]).all()
-    assert ev["happened"].sum() > 0 and (ev["happened"] == 0).sum() > 0
+    assert ev["happened"].sum() > 0
+    if days < 365:  # within a season some levels are reached and some not
+        assert (ev["happened"] == 0).sum() > 0
     assert (hc.skill["brier"] == 0).all()
     assert hc.crps_m == pytest.approx(0.0, abs=1e-4)
     assert hc.crps_skill_persistence == pytest.approx(1.0, abs=1e-3)

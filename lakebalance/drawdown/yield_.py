@@ -526,7 +526,8 @@ def sequent_peak(inflow: Any, demand: Any, *, passes: int = 2) -> SequentPeak:
     demand : float or array (n,)
         Demand per period (same unit).
     passes : int
-        Times the record is run (2: a critical period wrapping round the end is seen).
+        Times the record is run (2: a critical period wrapping round the end is seen). With more
+        than one pass, a demand larger than the record's inflow needs infinite storage.
 
     Returns
     -------
@@ -541,6 +542,11 @@ def sequent_peak(inflow: Any, demand: Any, *, passes: int = 2) -> SequentPeak:
     d = np.broadcast_to(np.asarray(demand, dtype=float), q.shape)
     if q.size == 0 or not np.all(np.isfinite(q)) or not np.all(np.isfinite(d)):
         raise ValueError("sequent peak needs finite inflow and demand")
+    if passes > 1 and float(np.sum(d - q)) > 0.0:
+        # more demand than inflow over the record: no storage meets it in a repeated record
+        return SequentPeak(
+            storage=float("inf"), deficit=np.full(q.size * passes, np.inf), peak=0, start=0
+        )
     x = np.tile(d - q, int(passes))
     # K_t = max(0, K_{t-1} + x_t) = S_t - min(0, min_{s<=t} S_s), S the cumulative sum (Lindley)
     s = np.cumsum(x)
