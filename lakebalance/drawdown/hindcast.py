@@ -44,6 +44,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
+from ..display import number, stage
 from ..errors import ConfigError
 from ..results import Summary
 from .engine import build_tables, simulate
@@ -296,15 +297,16 @@ class Hindcast:
         for r in self.skill.itertuples():
             lines.append(
                 f"{r.level:<12}{r.direction:<10}{r.starts:>7}{r.happened:>10}"
-                f"{r.brier:>8.3f}{r.brier_climatology:>8.3f}{_skill(r.brier_skill):>8}"
+                f"{number(r.brier, decimals=3):>8}{number(r.brier_climatology, decimals=3):>8}"
+                f"{_skill(r.brier_skill):>8}"
             )
         lines += [
             "",
             "stage at the horizon, CRPS (m): "
-            f"outlook {self.crps_m:.3f}, persistence "
-            f"{self.stage['crps_persistence_m'].mean():.3f} (skill "
+            f"outlook {stage(self.crps_m)}, persistence "
+            f"{stage(self.stage['crps_persistence_m'].mean())} (skill "
             f"{_skill(self.crps_skill_persistence)}), climatology "
-            f"{self.stage['crps_climatology_m'].mean():.3f} (skill "
+            f"{stage(self.stage['crps_climatology_m'].mean())} (skill "
             f"{_skill(self.crps_skill_climatology)})",
             "",
             "reliability (all levels pooled):",
@@ -317,18 +319,18 @@ class Hindcast:
             )
         lines.append(
             "skill: 1 - Brier / Brier of the sample climatology of the same starts; "
-            "'-' where the event never or always happened (no skill can be told)"
+            "'–' where the event never or always happened (no skill can be told)"
         )
         lines += [f"note: {n}" for n in self.notes]
         return Summary("\n".join(lines), "hindcast skill")
 
 
 def _skill(x: Any) -> str:
-    return "-" if x is None or not np.isfinite(x) else f"{x:+.2f}"
+    return "–" if x is None or not np.isfinite(x) else f"{x:+.2f}"
 
 
 def _f(x: float) -> str:
-    return "-" if not np.isfinite(x) else f"{x:.2f}"
+    return number(x, decimals=2)
 
 
 def _jsonable(v: Any) -> Any:

@@ -60,6 +60,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
+from ..display import SI, number, percent, quantity, stage
 from ..errors import ConfigError
 from ..results import Summary
 from ..units import SECONDS_PER_DAY
@@ -98,6 +99,31 @@ CAUTION = (
 )
 
 _RAMP_M = 0.01  # m: the intake draws in full from this height above the failure level up
+
+_FLOW = SI.of("flow")[1]  # display labels of the summaries (SI display units)
+_VOLUME = SI.of("volume")[1]
+_LENGTH = SI.of("length")[1]
+
+
+def _flow(x: float) -> str:
+    return f"{quantity(x, 'flow')} {_FLOW}"
+
+
+def _volume(x: float) -> str:
+    return f"{quantity(x, 'volume')} {_VOLUME}"
+
+
+def _stage(x: float) -> str:
+    return f"{stage(x)} {_LENGTH}"
+
+
+def _share(x: float | None) -> str:
+    return percent(100.0 * x) if x is not None else "–"
+
+
+def _reliable(x: float | None) -> str:
+    """A reliability to one decimal (99.6 % is not 100 %)."""
+    return f"{number(100.0 * x, decimals=1)} %" if x is not None else "–"
 
 
 # ---- the record as the forcing of one run ---------------------------------------------------
@@ -315,19 +341,16 @@ class FirmYield:
         """A short text report."""
         d = self.demand_m3s
         pattern = "constant" if np.allclose(self.factors, 1.0) else "monthly pattern"
+        share = self.share_of_inflow
         lines = [
             f"Firm yield through the record {self.period[0]} to {self.period[1]} ({pattern}): "
-            f"{d:.4g} m3/s ({d * SECONDS_PER_DAY:,.0f} m3/d"
-            + (
-                f", {self.share_of_inflow:.0%} of the mean inflow)"
-                if np.isfinite(self.share_of_inflow)
-                else ")"
-            ),
+            f"{_flow(d)} ({_volume(d * SECONDS_PER_DAY)} a day"
+            + (f", {_share(share)} of the mean inflow)" if np.isfinite(share) else ")"),
             f"  without the intake failing at the {self.failure_level} level "
-            f"({self.failure_level_m:.2f} m), starting at {self.start_stage_m:.2f} m",
+            f"({_stage(self.failure_level_m)}), starting at {_stage(self.start_stage_m)}",
             f"  critical period: {self.critical_start} to {self.critical_end} "
-            f"({self.critical_days} days), lowest stage {self.lowest_stage_m:.2f} m"
-            + (f"; refilled {self.refill_date}" if self.refill_date else "; not refilled"),
+            f"({self.critical_days:,} days), lowest stage {_stage(self.lowest_stage_m)}"
+            + (f"; back by {self.refill_date}" if self.refill_date else "; not back by the end"),
         ]
         lines += [f"  note: {n}" for n in self.notes]
         return Summary("\n".join(lines), "firm yield")
@@ -602,17 +625,19 @@ class StorageYield:
     def summary(self) -> Summary:
         """A short table."""
         lines = [
-            f"Storage-yield (sequent peak, {self.months} months of net inflow at an area of "
-            f"{self.area_m2 / 1e4:,.1f} ha, record run twice)",
-            f"{'yield m3/s':>12}{'share':>8}{'storage m3':>16}",
+            f"Storage-yield (sequent peak, {self.months} months of net inflow on "
+            f"{quantity(self.area_m2, 'area')} {SI.of('area')[1]}, record run twice)",
+            f"{'yield ' + _FLOW:>14}{'share':>8}{'storage ' + _VOLUME:>22}",
         ]
         share = self.to_frame()["share_of_net_inflow"].to_numpy()
-        for y, f, s in zip(self.yields_m3s, share, self.storage_m3, strict=True):
-            lines.append(f"{y:>12.4g}{f:>8.0%}{s:>16,.0f}")
-        lines.append(f"storage between the start and failure levels: {self.available_m3:,.0f} m3")
+        for y, f, v in zip(self.yields_m3s, share, self.storage_m3, strict=True):
+            lines.append(
+                f"{quantity(y, 'flow'):>14}{percent(100.0 * f):>8}{quantity(v, 'volume'):>22}"
+            )
+        lines.append(f"storage between the start and failure levels: {_volume(self.available_m3)}")
         if self.yield_at_available_m3s is not None:
             lines.append(
-                f"sequent-peak yield of that storage: {self.yield_at_available_m3s:.4g} m3/s "
+                f"sequent-peak yield of that storage: {_flow(self.yield_at_available_m3s)} "
                 "(no outlet losses below the start level: an upper bound)"
             )
         return Summary("\n".join(lines), "storage-yield")
@@ -798,11 +823,13 @@ class RecordPerformance:
 
     def summary(self) -> Summary:
         """A short table."""
-        rules = ", ".join(f"{c:.0%} below {t:.2f} m" for t, c in self.rules) or "none"
+        rules = (
+            ", ".join(f"{percent(100.0 * c)} below {_stage(t)}" for t, c in self.rules) or "none"
+        )
         lines = [
-            f"Demand {self.demand_m3s:.4g} m3/s (mean of its pattern) through the record "
+            f"Demand {_flow(self.demand_m3s)} (mean of its pattern) through the record "
             f"{self.period[0]} to {self.period[1]}, restrictions: {rules}",
-            f"{'':<28}{'days ok':>9}{'years ok':>10}{'resilience':>12}{'vulnerab.':>11}"
+            f"{'':<22}{'days ok':>9}{'years ok':>10}{'resilience':>12}{'vulnerab.':>11}"
             f"{'events':>8}{'longest d':>11}",
         ]
         for label, p in (
@@ -810,20 +837,17 @@ class RecordPerformance:
             ("without failure", self.failure),
         ):
             lines.append(
-                f"{label:<28}{p.reliability_days:>9.1%}"
-                f"{_pct(p.reliability_years):>10}{_pct(p.resilience):>12}"
-                f"{_pct(p.vulnerability):>11}{p.events:>8}{p.longest_days:>11}"
+                f"{label:<22}{_reliable(p.reliability_days):>9}"
+                f"{_reliable(p.reliability_years):>10}"
+                f"{_reliable(p.resilience):>12}{_reliable(p.vulnerability):>11}"
+                f"{number(p.events, decimals=0):>8}{number(p.longest_days, decimals=0):>11}"
             )
         lines.append(
             f"failure: the intake gives less than the restricted demand (at the "
-            f"{self.failure_level} level, {self.failure_level_m:.2f} m); lowest stage "
-            f"{self.lowest_stage_m:.2f} m"
+            f"{self.failure_level} level, {_stage(self.failure_level_m)}); lowest stage "
+            f"{_stage(self.lowest_stage_m)}"
         )
         return Summary("\n".join(lines), "reliability")
-
-
-def _pct(x: float | None) -> str:
-    return "-" if x is None else f"{x:.1%}"
 
 
 def record_performance(
@@ -895,12 +919,12 @@ class SupplyDays:
         scen = (
             "no inflow"
             if self.inflow_m3s == 0
-            else f"a constant inflow of {self.inflow_m3s:.3g} m3/s"
+            else f"a constant inflow of {_flow(self.inflow_m3s)}"
         )
         head = (
-            f"From {self.start} at {self.start_stage_m:.2f} m ({self.volume_m3:,.0f} m3 above the "
-            f"{self.failure_level} level), with {scen}, rain and evaporation at their day-of-year "
-            f"means and a demand of {self.demand_m3s:.3g} m3/s"
+            f"From {self.start} at {_stage(self.start_stage_m)} ({_volume(self.volume_m3)} above "
+            f"the {self.failure_level} level), with {scen}, rain and evaporation at their "
+            f"day-of-year means and a demand of {_flow(self.demand_m3s)}"
         )
         if self.days is None:
             return head + f", supply lasts beyond the horizon of {self.horizon:,} days."

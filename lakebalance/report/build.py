@@ -1244,6 +1244,8 @@ def _drawdown_section(run: Lake) -> Section:
 def _hindcast_skill(run: Lake, fc: Any) -> tuple[tuple[str, ...], Table | None]:
     """The skill of this outlook, hindcast from its own day of the year in the past years of the
     record (each start without its own future): sentences and a table."""
+    from ..display import count_of
+
     scenario = fc.scenario if fc.scenario in ("replay", "stochastic", "percentile") else "replay"
     try:
         hc = run.hindcast(
@@ -1259,8 +1261,9 @@ def _hindcast_skill(run: Lake, fc: Any) -> tuple[tuple[str, ...], Table | None]:
         f"years, each without its own future: "
         + (
             "; ".join(
-                f"reaching the {r.level} level ({r.direction}) happened in {r.happened} of "
-                f"{r.starts}, Brier skill against climatology {r.brier_skill:+.2f}"
+                f"reaching the {r.level} level ({r.direction}) happened "
+                f"{count_of(r.happened, r.starts)}, Brier skill against climatology "
+                f"{r.brier_skill:+.2f}"
                 for r in scored.itertuples()
             )
             if not scored.empty
@@ -1272,7 +1275,7 @@ def _hindcast_skill(run: Lake, fc: Any) -> tuple[tuple[str, ...], Table | None]:
     crps = hc.crps_skill_persistence
     if crps is not None:
         text.append(
-            f"Stage at the horizon: mean CRPS {hc.crps_m:.2f} m, skill {crps:+.2f} against "
+            f"Stage at the horizon: mean CRPS {hc.crps_m:.3f} m, skill {crps:+.2f} against "
             "persistence (the start stage)"
             + (
                 f" and {hc.crps_skill_climatology:+.2f} against climatology."
@@ -1296,14 +1299,16 @@ def _yield_section(run: Lake) -> Section:
     study = run.get("yield")
     if study is None:
         return Section("yield", title, missing=_missing(run, "yield"))
+    from ..display import quantity, stage
     from .figures_yield import firm_yield_figure, storage_yield_figure
 
     firm, curve = study.firm, study.curve
     paragraphs = [
         f"Firm yield through the record {firm.period[0]} to {firm.period[1]}: "
-        f"{firm.demand_m3s:.3f} m³/s ({firm.demand_m3s * SECONDS_PER_DAY:,.0f} m³ a day), the "
+        f"{quantity(firm.demand_m3s, 'flow')} m³/s "
+        f"({quantity(firm.demand_m3s * SECONDS_PER_DAY, 'volume')} thousand m³ a day), the "
         f"largest demand met on every day without the intake failing at the "
-        f"{firm.failure_level} level ({firm.failure_level_m:.2f} m). Its critical period runs "
+        f"{firm.failure_level} level ({stage(firm.failure_level_m)} m). Its critical period runs "
         f"from {firm.critical_start} to {firm.critical_end} ({firm.critical_days} days)"
         + (f"; the lake was back by {firm.refill_date}." if firm.refill_date else "."),
     ]
@@ -1343,7 +1348,8 @@ def _yield_section(run: Lake) -> Section:
         tables.append(
             table(
                 "yield-reliability",
-                f"The demand of {perf.demand_m3s:.3f} m³/s under its restriction rules through the "
+                f"The demand of {quantity(perf.demand_m3s, 'flow')} m³/s under its restriction "
+                "rules through the "
                 "record (Hashimoto et al. 1982)",
                 frame,
                 {"days_ok_pct": 1, "years_ok_pct": 1, "resilience_pct": 1, "vulnerability_pct": 1},
