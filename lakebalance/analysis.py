@@ -31,6 +31,8 @@ if TYPE_CHECKING:  # pragma: no cover
 
     from .balance import Balance, TermErrors
     from .drawdown import Forecast
+    from .drawdown.hindcast import Hindcast
+    from .drawdown.yield_ import YieldStudy
     from .dynamics import Dynamics, WhatIfRequest
     from .evaporation.lake import EvaporationResult
     from .flags import Flags
@@ -53,6 +55,8 @@ STEPS = {
     "seepage": "the seepage estimate",
     "dynamics": "the dynamics",
     "forecast": "the drawdown forecast",
+    "yield": "the yield study",
+    "hindcast": "the hindcast",
 }
 
 
@@ -204,8 +208,12 @@ class Lake:
         :meth:`reason` says why). Optional parts that a site does not have (no ``[outlet]``)
         are None too, with no reason."""
         try:
+            if step == "yield":
+                return self.yield_()
             return (
-                getattr(self, step)() if step in ("dynamics", "forecast") else getattr(self, step)
+                getattr(self, step)()
+                if step in ("dynamics", "forecast", "hindcast")
+                else getattr(self, step)
             )
         except LakebalanceError:
             return None
@@ -879,6 +887,309 @@ class Lake:
         finally:
             if bar is not None:
                 bar.close()
+
+    # ---- yield and hindcast --------------------------------------------------------------
+    def _dead_level(self, name: str | None = None) -> tuple[str, float]:
+        """The named level at which the intake fails (default ``[drawdown] dead_level``, else
+        ``dead``, else the bottom of the storage relation) and its stage (m)."""
+        levels = dict(self.site.levels)
+        name = name or self.site.drawdown.dead_level or ("dead" if "dead" in levels else None)
+        if name is None:
+            return "bottom", float(self.laws_without_seepage.min_stage_m)
+        if name not in levels:
+            known = ", ".join(levels) or "none"
+            raise ConfigError(f"'{name}' is not a [levels] name (levels: {known})")
+        return name, float(levels[name])
+
+    def _demand(self) -> tuple[float | None, Any, str]:
+        """(mean demand m³/s, 12 monthly values or None, where it came from): ``[drawdown]
+        demand``, else the record's mean withdrawal by calendar month, else none."""
+        import numpy as np
+
+        demand = self.site.drawdown.demand
+        if isinstance(demand, int | float):
+            return float(demand), None, "[drawdown] demand"
+        if demand is not None:
+            return float(np.mean(demand)), list(demand), "[drawdown] demand (monthly)"
+        if self.records.has("withdrawal"):
+            w = self.records.total("withdrawal").dropna()
+            if not w.empty:
+                by_month = w.groupby(w.index.month).mean().reindex(range(1, 13))
+                monthly = by_month.fillna(float(w.mean())).to_numpy()
+                if monthly.sum() > 0:
+                    return float(monthly.mean()), list(monthly), "the record's mean withdrawals"
+        return None, None, "none"
+
+    def yield_(
+        self,
+        *,
+        failure_level: str | None = None,
+        start_level: str | None = None,
+        pattern: str = "demand",
+        dry_inflow_m3s: float = 0.0,
+        supply_days: int = 3650,
+        shares: tuple[float, ...] = (0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9),
+        rtol: float = 1e-3,
+    ) -> YieldStudy:
+        """Firm yield through the record, storage–yield curve, reliability of the demand under
+        the restriction rules, and days of supply from the last recorded stage.
+
+        Parameters
+        ----------
+        failure_level : str, optional
+            ``[levels]`` name at which the intake fails (default: the dead level, see
+            :meth:`forecast`).
+        start_level : str, optional
+            ``[levels]`` name of the stage the record is started from (default: the first
+            recorded stage).
+        pattern : {"demand", "constant"}
+            Firm yield as a constant demand, or with the monthly pattern of the demand
+            (``[drawdown] demand``, else the record's withdrawals by month).
+        dry_inflow_m3s : float
+            Constant inflow of the dry scenario of the days of supply (m³/s; 0: none).
+        supply_days : int
+            Horizon of the days of supply (days; several years by default).
+        shares : tuple of float
+            Yields of the storage–yield curve, as shares of the mean net inflow (-).
+        rtol : float
+            Relative width of the firm yield's final bracket (-), 1e-6 to 0.5.
+
+        See :mod:`lakebalance.drawdown.yield_` for the methods and their references.
+        """
+        if pattern not in ("demand", "constant"):
+            raise ConfigError(f"yield pattern {pattern!r}: 'demand' or 'constant'")
+        if supply_days < 1 or supply_days > 36_525:
+            raise ConfigError(f"days of supply horizon {supply_days}: 1 to 36,525 days")
+        if dry_inflow_m3s < 0:
+            raise ConfigError(f"dry inflow {dry_inflow_m3s} m³/s: not below zero")
+        if not 1e-6 <= rtol <= 0.5:
+            raise ConfigError(f"firm yield tolerance {rtol}: 1e-6 to 0.5")
+        key = (
+            "yield", failure_level, start_level, pattern, dry_inflow_m3s, supply_days, shares,
+            rtol,
+        )  # fmt: skip
+        return self._step(
+            key,
+            lambda: self._yield(
+                failure_level, start_level, pattern, dry_inflow_m3s, supply_days, shares, rtol
+            ),
+        )
+
+    def _yield(
+        self,
+        failure_level: str | None,
+        start_level: str | None,
+        pattern: str,
+        dry_inflow_m3s: float,
+        supply_days: int,
+        shares: tuple[float, ...],
+        rtol: float,
+    ) -> YieldStudy:
+        import numpy as np
+        import pandas as pd
+
+        from .drawdown.yield_ import (
+            YieldStudy,
+            days_of_supply,
+            firm_yield,
+            record_forcing,
+            record_performance,
+            storage_yield_curve,
+        )
+
+        opts = self.site.drawdown
+        history = self.drawdown_history()
+        if "inflow_m3s" not in history.columns:
+            raise ConfigError("the yield study needs an inflow record")
+        daily = self.records.daily
+        stage = daily["stage"] if "stage" in daily.columns else None
+        notes: list[str] = []
+        fail_name, fail_m = self._dead_level(failure_level)
+        if start_level is not None:
+            levels = dict(self.site.levels)
+            if start_level not in levels:
+                raise ConfigError(f"start level '{start_level}' is not a [levels] name")
+            first = pd.Timestamp(history.index[0])
+            h0 = float(levels[start_level])
+            start_name = f"the {start_level} level"
+        else:
+            if stage is None or not stage.notna().any():
+                raise ConfigError(
+                    "the yield study starts from the first recorded stage: there is none; "
+                    "name a start level"
+                )
+            first = pd.Timestamp(stage.first_valid_index())
+            h0 = float(stage.loc[first])
+            start_name = f"the first recorded stage ({first.date()})"
+        notes.append(f"the record is run from {start_name}")
+        forcing = record_forcing(history, first + pd.Timedelta(days=1), None)
+        laws, why = self.laws(seepage=opts.seepage and stage is not None)
+        if why:
+            notes.append(f"seepage left out: {why}")
+        mean_demand, monthly, source = self._demand()
+        use_pattern = monthly if pattern == "demand" else None
+        if pattern == "demand" and monthly is not None:
+            notes.append(f"firm yield with the monthly pattern of {source}")
+        bar = callback = None
+        if self.progress:
+            from tqdm import tqdm
+
+            bar = tqdm(total=None, unit="round", desc="firm yield", leave=False)
+
+            def callback(done: int) -> None:
+                bar.update(done - bar.n)
+
+        try:
+            firm = firm_yield(
+                laws, forcing, failure_level_m=fail_m, failure_level=fail_name, start_stage_m=h0,
+                pattern=use_pattern, environmental_release_m3s=opts.environmental_release,
+                rtol=rtol, progress=callback,
+            )  # fmt: skip
+        finally:
+            if bar is not None:
+                bar.close()
+        vol = np.asarray(laws.volume(np.array([fail_m, h0], dtype=float)), dtype=float)
+        area = float(np.asarray(laws.area(np.array([h0], dtype=float)))[0])
+        curve = storage_yield_curve(
+            forcing,
+            area_m2=area,
+            available_m3=max(float(vol[1] - vol[0]), 0.0),
+            shares=shares,
+            pattern=use_pattern,
+        )
+        rules = tuple((r.trigger, r.cut) for r in opts.restriction)
+        performance = supply = None
+        if mean_demand is None:
+            notes.append("no demand ([drawdown] demand or withdrawals): no reliability judged")
+        else:
+            performance = record_performance(
+                laws, forcing, demand_m3s=mean_demand, pattern=monthly, restriction=rules,
+                failure_level_m=fail_m, failure_level=fail_name, start_stage_m=h0,
+                water_year_start=self.site.site.water_year_start,
+                environmental_release_m3s=opts.environmental_release,
+            )  # fmt: skip
+            try:
+                start_ts, start_h = self._forecast_start(opts)
+            except ConfigError as exc:
+                notes.append(f"no days of supply: {exc.message}")
+            else:
+                supply = days_of_supply(
+                    laws, history, start=start_ts, start_stage_m=start_h, demand_m3s=mean_demand,
+                    pattern=monthly, inflow_m3s=dry_inflow_m3s, horizon=supply_days,
+                    restriction=rules, failure_level_m=fail_m, failure_level=fail_name,
+                    environmental_release_m3s=opts.environmental_release,
+                )  # fmt: skip
+            notes.append(f"demand: {source}")
+        return YieldStudy(firm, curve, performance, supply, tuple(notes))
+
+    def hindcast(
+        self,
+        *,
+        days: int | None = None,
+        every: int = 60,
+        scenario: str = "replay",
+        members: int = 100,
+        first: str | None = None,
+        last: str | None = None,
+        anniversary: str | None = None,
+    ) -> Hindcast:
+        """Hindcast skill of the drawdown outlook (:mod:`lakebalance.drawdown.hindcast`).
+
+        Parameters
+        ----------
+        days : int, optional
+            Horizon (default ``[drawdown] days``).
+        every : int
+            Days between start dates.
+        scenario : {"replay", "stochastic", "percentile"}
+            Scenario of the outlook scored.
+        members : int
+            Members per start of the stochastic scenario.
+        first, last : str, optional
+            ISO dates bounding the starts.
+        anniversary : str, optional
+            ISO date: start on its day of the year in every year instead (``every`` unused).
+
+        Notes
+        -----
+        Uses the dead level, demand, environmental release and restriction rules of
+        ``[drawdown]``, the seed ``forecast_seed``.
+        """
+        opts = self.site.drawdown
+        days = int(opts.days if days is None else days)
+        if not 1 <= days <= 36_525:
+            raise ConfigError(f"hindcast horizon {days} days: 1 to 36,525")
+        if every < 1:
+            raise ConfigError(f"days between hindcast starts {every}: at least 1")
+        if scenario not in ("replay", "stochastic", "percentile"):
+            raise ConfigError(f"hindcast scenario {scenario!r}: replay, stochastic or percentile")
+        if members < 1:
+            raise ConfigError(f"hindcast members {members}: at least 1")
+        if anniversary is not None:
+            import pandas as pd
+
+            try:
+                pd.Timestamp(anniversary)
+            except (ValueError, TypeError):
+                raise ConfigError(
+                    f"hindcast anniversary {anniversary!r} is not an ISO date"
+                ) from None
+        key = ("hindcast", days, every, scenario, members, first, last, anniversary)
+        return self._step(
+            key,
+            lambda: self._hindcast(days, every, scenario, members, first, last, anniversary),
+        )
+
+    def _hindcast(
+        self,
+        days: int,
+        every: int,
+        scenario: str,
+        members: int,
+        first: Any,
+        last: Any,
+        anniversary: Any,
+    ) -> Hindcast:
+        import numpy as np
+
+        from .drawdown.hindcast import hindcast_starts, run_hindcast
+
+        opts = self.site.drawdown
+        daily = self.records.daily
+        if "stage" not in daily.columns:
+            raise ConfigError("the hindcast is scored against a stage record: there is none")
+        history = self.drawdown_history()
+        if "inflow_m3s" not in history.columns:
+            raise ConfigError("the hindcast's scenarios need an inflow record")
+        stage = daily["stage"]
+        starts = hindcast_starts(stage, days, every, first, last, anniversary=anniversary)
+        _, dead = self._dead_level()
+        laws, why = self.laws(seepage=opts.seepage)
+        bar = callback = None
+        if self.progress:
+            from tqdm import tqdm
+
+            bar = tqdm(total=len(starts), unit="start", desc="hindcast", leave=False)
+
+            def callback(done: int) -> None:
+                bar.update(done - bar.n)
+
+        try:
+            hc = run_hindcast(
+                laws, history, stage, days=days, starts=starts, scenario=scenario, every=every,
+                dead_level_m=dead, demand_m3s=opts.demand,
+                environmental_release_m3s=opts.environmental_release,
+                restriction=tuple((r.trigger, r.cut) for r in opts.restriction),
+                members=members, rng=np.random.default_rng(self.forecast_seed),
+                seed=self.forecast_seed, method=opts.stochastic, block_days=opts.block_days,
+                progress=callback,
+            )  # fmt: skip
+        finally:
+            if bar is not None:
+                bar.close()
+        if why:
+            hc = dataclasses.replace(hc, notes=(*hc.notes, f"seepage left out: {why}"))
+        return hc
 
 
 def _persistent_errors(balance: Balance, chosen: Any, used: pd.Series) -> Callable | None:

@@ -18,6 +18,9 @@ from . import __version__
 
 __all__ = ["main", "COMMANDS"]
 
+#: Command names whose module is named otherwise (``yield`` is a Python keyword).
+MODULES = {"yield": "yield_"}
+
 #: Subcommands in the order ``--help`` lists them.
 COMMANDS = (
     "check",
@@ -29,6 +32,8 @@ COMMANDS = (
     "flags",
     "seepage",
     "drawdown",
+    "yield",
+    "hindcast",
     "report",
     "demo",
 )
@@ -43,10 +48,11 @@ def _parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"lakebalance {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     for name in COMMANDS:
+        path = f"lakebalance.commands.{MODULES.get(name, name)}"
         try:
-            module = importlib.import_module(f"lakebalance.commands.{name}")
+            module = importlib.import_module(path)
         except ModuleNotFoundError as exc:
-            if exc.name != f"lakebalance.commands.{name}":
+            if exc.name != path:
                 raise
             continue
         p = sub.add_parser(name, help=module.HELP, description=module.HELP)

@@ -32,6 +32,8 @@ DEMO_RUNS = {
     "flags": [],
     "seepage": [],
     "drawdown": ["--members", "20", "--days", "30", "--no-progress"],
+    "yield": ["--tolerance", "0.05", "--supply-days", "400", "--no-progress"],
+    "hindcast": ["--days", "30", "--every", "365", "--no-progress"],
 }
 SMALL_RUNS = {
     "check": [],
@@ -39,6 +41,7 @@ SMALL_RUNS = {
     "balance": ["--draws", "20"],
     "dynamics": [],
     "drawdown": ["--scenario", "constant", "--days", "20", "--no-progress"],
+    "yield": ["--tolerance", "0.05", "--no-progress"],
 }
 
 

@@ -31,6 +31,7 @@ SMALL: dict[str, list[str]] = {
     "balance": ["--draws", "20"],
     "dynamics": [],
     "drawdown": ["--scenario", "constant", "--days", "20", "--no-progress"],
+    "yield": ["--tolerance", "0.05", "--no-progress"],
 }
 
 #: command -> extra arguments (small ensembles and draws: the shape does not depend on them)
@@ -44,6 +45,8 @@ COMMANDS: dict[str, list[str]] = {
     "flags": [],
     "seepage": [],
     "drawdown": ["--members", "20", "--days", "30", "--no-progress"],
+    "yield": ["--tolerance", "0.05", "--supply-days", "400", "--no-progress"],
+    "hindcast": ["--days", "30", "--every", "365", "--no-progress"],
 }
 
 ESTIMATE_KEYS = {"value", "stderr", "ci95", "unit"}

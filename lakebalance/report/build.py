@@ -150,6 +150,7 @@ REPORT_STEPS = (
     "seepage",
     "dynamics",
     "forecast",
+    "yield",
 )
 
 
@@ -898,6 +899,7 @@ def build_sections(run: Lake, year: int) -> tuple[list[Section], dict[str, Any],
         _seepage_section(run),
         _dynamics_section(run),
         _drawdown_section(run),
+        _yield_section(run),
         _rating_section(run, stage),
         _storage_section(run),
         _evaporation_section(run, days),
@@ -1212,10 +1214,14 @@ def _drawdown_section(run: Lake) -> Section:
             )
         )
     fig = fan_chart(fc)
+    skill_text, skill_table = _hindcast_skill(run, fc)
+    if skill_table is not None:
+        tables.append(skill_table)
     paragraphs = [
         f"Scenario {fc.scenario}, {fc.members} members from {fc.start} at stage "
         f"{fc.start_stage_m:.2f} m, seed {fc.seed}.",
         *_forecast_sentences(run),
+        *skill_text,
         *fc.notes,
     ]
     return Section(
@@ -1232,6 +1238,145 @@ def _drawdown_section(run: Lake) -> Section:
                 "Fan chart of forecast stage",
             ),
         ),
+    )
+
+
+def _hindcast_skill(run: Lake, fc: Any) -> tuple[tuple[str, ...], Table | None]:
+    """The skill of this outlook, hindcast from its own day of the year in the past years of the
+    record (each start without its own future): sentences and a table."""
+    from ..display import count_of
+
+    scenario = fc.scenario if fc.scenario in ("replay", "stochastic", "percentile") else "replay"
+    try:
+        hc = run.hindcast(
+            days=fc.days, scenario=scenario, members=min(fc.members, 200),
+            anniversary=str(fc.start),
+        )  # fmt: skip
+    except LakebalanceError as exc:
+        return (f"No hindcast of this outlook: {exc.one_line().removeprefix('error: ')}",), None
+    rows = hc.skill[["level", "direction", "starts", "happened", "brier", "brier_skill"]].copy()
+    scored = rows.dropna(subset=["brier_skill"])
+    text = [
+        f"Hindcast of this outlook ({scenario}) started on {fc.start:%d %B} in {hc.starts} past "
+        f"years, each without its own future: "
+        + (
+            "; ".join(
+                f"reaching the {r.level} level ({r.direction}) happened "
+                f"{count_of(r.happened, r.starts)}, Brier skill against climatology "
+                f"{r.brier_skill:+.2f}"
+                for r in scored.itertuples()
+            )
+            if not scored.empty
+            else "no level was reached in some years and not in others, so no skill can be told"
+        )
+        + ". A skill of zero or below means the outlook did no better than the share of past "
+        "years in which the level was reached."
+    ]
+    crps = hc.crps_skill_persistence
+    if crps is not None:
+        text.append(
+            f"Stage at the horizon: mean CRPS {hc.crps_m:.3f} m, skill {crps:+.2f} against "
+            "persistence (the start stage)"
+            + (
+                f" and {hc.crps_skill_climatology:+.2f} against climatology."
+                if hc.crps_skill_climatology is not None
+                else "."
+            )
+        )
+    rows["brier_skill"] = rows["brier_skill"].astype(float)
+    return tuple(text), table(
+        "drawdown-hindcast",
+        f"Hindcast skill of this outlook from {fc.start:%d %B} in past years",
+        rows,
+        {"brier": 3, "brier_skill": 2},
+        note="Brier skill: 1 - Brier score / Brier score of the share of years in which the "
+        "level was reached; '–' where it was reached in every year or in none.",
+    )
+
+
+def _yield_section(run: Lake) -> Section:
+    title = "Yield and reliability"
+    study = run.get("yield")
+    if study is None:
+        return Section("yield", title, missing=_missing(run, "yield"))
+    from ..display import quantity, stage
+    from .figures_yield import firm_yield_figure, storage_yield_figure
+
+    firm, curve = study.firm, study.curve
+    paragraphs = [
+        f"Firm yield through the record {firm.period[0]} to {firm.period[1]}: "
+        f"{quantity(firm.demand_m3s, 'flow')} m³/s "
+        f"({quantity(firm.demand_m3s * SECONDS_PER_DAY, 'volume')} thousand m³ a day), the "
+        f"largest demand met on every day without the intake failing at the "
+        f"{firm.failure_level} level ({stage(firm.failure_level_m)} m). Its critical period runs "
+        f"from {firm.critical_start} to {firm.critical_end} ({firm.critical_days} days)"
+        + (f"; the lake was back by {firm.refill_date}." if firm.refill_date else "."),
+    ]
+    tables = [
+        table(
+            "yield-storage",
+            "Storage needed for a yield (sequent peak of the monthly net inflow, no outlet losses)",
+            curve.to_frame(),
+            {"yield_m3s": 3, "share_of_net_inflow": 2, "storage_m3": 0},
+        )
+    ]
+    if study.performance is not None:
+        perf = study.performance
+        rows = []
+        for label, p in (
+            ("without restriction", perf.restriction),
+            ("without failure", perf.failure),
+        ):
+            rows.append(
+                {
+                    "judged": label,
+                    "days_ok_pct": 100.0 * p.reliability_days,
+                    "years_ok_pct": None
+                    if p.reliability_years is None
+                    else 100.0 * p.reliability_years,
+                    "resilience_pct": None if p.resilience is None else 100.0 * p.resilience,
+                    "vulnerability_pct": None
+                    if p.vulnerability is None
+                    else 100.0 * p.vulnerability,
+                    "events": p.events,
+                    "longest_days": p.longest_days,
+                }
+            )
+        frame = pd.DataFrame(rows)
+        for c in ("years_ok_pct", "resilience_pct", "vulnerability_pct"):
+            frame[c] = frame[c].astype(float)
+        tables.append(
+            table(
+                "yield-reliability",
+                f"The demand of {quantity(perf.demand_m3s, 'flow')} m³/s under its restriction "
+                "rules through the "
+                "record (Hashimoto et al. 1982)",
+                frame,
+                {"days_ok_pct": 1, "years_ok_pct": 1, "resilience_pct": 1, "vulnerability_pct": 1},
+            )
+        )
+    if study.supply is not None:
+        paragraphs.append(study.supply.sentence())
+    from ..drawdown.yield_ import CAUTION as YIELD_CAUTION
+
+    paragraphs += [*study.notes, YIELD_CAUTION]
+    figures = (
+        Figure(
+            "firm-yield",
+            "Stage through the record at the firm yield, critical period shaded.",
+            _png(firm_yield_figure(study)),
+            "Stage at the firm yield",
+        ),
+        Figure(
+            "storage-yield",
+            "Storage–yield curve (sequent peak) with the storage between the start and failure "
+            "levels and the simulated firm yield.",
+            _png(storage_yield_figure(study)),
+            "Storage-yield curve",
+        ),
+    )
+    return Section(
+        "yield", title, paragraphs=tuple(paragraphs), tables=tuple(tables), figures=figures
     )
 
 
