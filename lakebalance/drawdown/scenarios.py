@@ -6,8 +6,9 @@ release, all in SI) into arrays ``(days, members)`` starting on the day after th
 * ``replay``: each historical year of the record is a member, its days taken from the same day of
   the year as the forecast days (a year is used when at least 80 % of its inflow days are known;
   the gaps are filled with the day-of-year climatology);
-* ``percentile``: inflow at a given non-exceedance for each day of the year (all years pooled in a
-  window of +-7 days), rain and evaporation at their day-of-year means;
+* ``percentile``: the trace whose accumulated inflow volume over the horizon has the stated
+  non-exceedance among the historical years (Weibull plotting position), a historical year's
+  daily pattern scaled to that volume, with that year's rain and evaporation;
 * ``stochastic``: either a block bootstrap of the historical years (blocks of ``block_days``, each
   member drawing a year per block, all terms of a block from the same year so that dry inflow
   and high evaporation stay together), or a seasonal AR(1) model of the log inflow anomalies
@@ -35,7 +36,7 @@ import pandas as pd
 from ..errors import ConfigError
 from ..resources import check_memory
 
-__all__ = ["Forcing", "TERMS", "climatology", "build_forcing"]
+__all__ = ["Forcing", "TERMS", "climatology", "build_forcing", "horizon_volumes"]
 
 #: Columns of the history frame (SI): flows m³/s, depths m per day.
 TERMS = ("inflow_m3s", "rain_m", "evaporation_m", "withdrawal_m3s", "release_m3s")
@@ -285,13 +286,9 @@ def build_forcing(
         inflow = history["inflow_m3s"] if "inflow_m3s" in history.columns else None
         if inflow is None or not inflow.notna().any():
             raise ConfigError("the 'percentile' scenario needs an inflow record")
-        q = climatology(inflow, statistic="quantile", q=percentile / 100.0)
-        arrays = {t: flat(t, 1) for t in TERMS}
-        arrays["inflow_m3s"] = np.nan_to_num(q, nan=0.0)[doy][:, None]
-        labels = (f"p{percentile:g}",)
-        notes.append(
-            f"inflow at {percentile:g}% non-exceedance by day of year; other terms at their means"
-        )
+        arrays, label, note = _volume_percentile(history, dates, percentile)
+        labels = (label,)
+        notes.append(note)
     elif scenario == "constant":
         arrays = {t: flat(t, 1) for t in TERMS}
         arrays["inflow_m3s"] = np.full((days, 1), float(inflow_m3s))
@@ -311,11 +308,71 @@ def build_forcing(
     )
 
 
+def horizon_volumes(inflow_m3s: np.ndarray) -> np.ndarray:
+    """Accumulated inflow volume of each member over the horizon (m³): the sum of the daily mean
+    flows (m³/s, array ``(days, members)``) times 86,400 s."""
+    return np.asarray(inflow_m3s, dtype=float).sum(axis=0) * 86_400.0
+
+
+def _volume_percentile(
+    history: pd.DataFrame, dates: pd.DatetimeIndex, percentile: float
+) -> tuple[dict[str, np.ndarray], str, str]:
+    """The trace whose inflow volume over the horizon has the stated non-exceedance.
+
+    The historical years aligned on the forecast's days (as in ``replay``) give n horizon
+    volumes; the target is their ``percentile`` quantile by the Weibull plotting position
+    i/(n+1) (``numpy.quantile(method="weibull")``; Weibull 1939, the usual plotting position of
+    hydrology), which stays at the driest or wettest year outside 1/(n+1)..n/(n+1). The year
+    whose volume is nearest the target gives the pattern; its daily inflow is scaled so that the
+    horizon volume equals the target exactly, and its rain, evaporation, withdrawals and
+    releases are kept as they were (one trace).
+    """
+    years, mat, _ = _year_matrix(history, dates)
+    if not years:
+        raise ConfigError(
+            f"the 'percentile' scenario needs at least one historical year with {_MIN_COVERAGE:.0%}"
+            f" of its inflow days recorded over the {len(dates)} forecast days of the year"
+        )
+    vol = horizon_volumes(mat["inflow_m3s"].T)
+    n = len(years)
+    target = float(np.quantile(vol, percentile / 100.0, method="weibull"))
+    k = int(np.argmin(np.abs(vol - target)))
+    scale = target / vol[k] if vol[k] > 0 else 1.0
+    arrays = {t: mat[t][k][:, None].copy() for t in TERMS}
+    arrays["inflow_m3s"] = arrays["inflow_m3s"] * scale
+    label = f"p{percentile:g} of horizon inflow volume ({years[k]} scaled x{scale:.3f})"
+    note = (
+        f"percentile scenario: the inflow volume over the {len(dates)} days at "
+        f"{percentile:g}% non-exceedance among {n} historical years (Weibull plotting position "
+        f"i/(n+1)), {target:.4g} m3; daily pattern, rain and evaporation of {years[k]}, its inflow "
+        f"scaled by {scale:.3f}"
+    )
+    lo, hi = 100.0 / (n + 1), 100.0 * n / (n + 1)
+    if not lo <= percentile <= hi:
+        note += (
+            f"; {n} years resolve non-exceedances from {lo:.0f} to {hi:.0f}% only, so this is the "
+            f"{'driest' if percentile < lo else 'wettest'} year of the record, not a "
+            f"{percentile:g}% volume"
+        )
+    return arrays, label, note
+
+
+def _anomaly_at(z: pd.Series, start: pd.Timestamp) -> tuple[float, pd.Timestamp | None]:
+    """The anomaly on ``start``, or the last one recorded up to 3 days before it; (0, None) when
+    there is none. The record may go on after ``start`` (a forecast started inside the record):
+    those later values are never used."""
+    known = z.loc[: pd.Timestamp(start)]
+    if known.empty or known.index[-1] < pd.Timestamp(start) - pd.Timedelta(days=3):
+        return 0.0, None
+    return float(known.iloc[-1]), pd.Timestamp(known.index[-1])
+
+
 def _ar1(
     history: pd.DataFrame, dates: pd.DatetimeIndex, members: int, rng: np.random.Generator
 ) -> tuple[dict[str, np.ndarray], str]:
     """Seasonal AR(1) of log inflow: z = (log(Q + eps) - mu(doy)) / sd(doy), z_t = phi z_{t-1}
-    + e_t with e ~ N(0, sigma^2) of the fit, started from the last observed anomaly."""
+    + e_t with e ~ N(0, sigma^2) of the fit, started from the anomaly on the forecast's start day
+    (the last one recorded up to 3 days before it; the mean when there is none)."""
     from statsmodels.tsa.ar_model import AutoReg
 
     q = history["inflow_m3s"] if "inflow_m3s" in history.columns else None
@@ -338,7 +395,7 @@ def _ar1(
     phi = float(np.clip(fit.params[0], -0.999, 0.999))
     innov = float(np.sqrt(max(fit.sigma2, 1e-12)))
     days = len(dates)
-    z0 = float(z.iloc[-1]) if z.index[-1] >= dates[0] - pd.Timedelta(days=3) else 0.0
+    z0, z0_date = _anomaly_at(z, dates[0] - pd.Timedelta(days=1))
     e = rng.standard_normal((days, members)) * innov
     sim = np.empty((days, members))
     prev = np.full(members, z0)
@@ -347,5 +404,9 @@ def _ar1(
         sim[d] = prev
     doy = _doy(dates)
     inflow = np.exp(mu[doy][:, None] + sd[doy][:, None] * sim) - eps
-    note = f"seasonal AR(1) of log inflow: phi = {phi:.3f}, innovation sd = {innov:.3f}"
+    note = f"seasonal AR(1) of log inflow: phi = {phi:.3f}, innovation sd = {innov:.3f}, " + (
+        f"started from the anomaly of {z0_date.date()} ({z0:+.2f} sd)"
+        if z0_date is not None
+        else "started from the mean (no inflow recorded within 3 days before the start)"
+    )
     return {"inflow_m3s": np.maximum(inflow, 0.0)}, note
