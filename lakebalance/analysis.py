@@ -667,7 +667,7 @@ class Lake:
         days : int, optional
             Horizon in days (default ``[drawdown] days``).
         scenario : str, optional
-            ``"replay"``, ``"percentile"``, ``"stochastic"`` or ``"constant"`` (default
+            ``"replay"``, ``"esp"``, ``"percentile"``, ``"stochastic"`` or ``"constant"`` (default
             ``[drawdown] scenario``).
         members : int, optional
             Members of the stochastic scenario, or of any scenario when model uncertainty is
@@ -695,12 +695,13 @@ class Lake:
         }
         if changes.get("scenario", opts.scenario) not in (
             "replay",
+            "esp",
             "percentile",
             "stochastic",
             "constant",
         ):
             raise ConfigError(
-                f"unknown drawdown scenario {changes['scenario']!r}: replay, percentile, "
+                f"unknown drawdown scenario {changes['scenario']!r}: replay, esp, percentile, "
                 "stochastic or constant",
                 file=self.site.path,
             )
@@ -775,6 +776,7 @@ class Lake:
             inflow_m3s=opts.inflow,
             method=opts.stochastic,
             block_days=opts.block_days,
+            antecedent_days=opts.antecedent_days,
         )
         levels = dict(self.site.levels)
         dead_name = opts.dead_level or ("dead" if "dead" in levels else None)

@@ -37,7 +37,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     )
     parser.add_argument(
         "--scenario",
-        choices=("replay", "percentile", "stochastic", "constant"),
+        choices=("replay", "esp", "percentile", "stochastic", "constant"),
         default=None,
         help="how future inflows are made (default: [drawdown] scenario)",
     )
