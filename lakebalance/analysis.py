@@ -791,12 +791,18 @@ class Lake:
         if self.rating is None:
             notes.append("no [outlet]: the lake has no outflow but its withdrawals and releases")
         dead = levels[dead_name] if dead_name is not None else laws.min_stage_m
-        samples = None
-        if opts.sample_uncertainty:
-            samples = sample_model_uncertainty(
-                self.rating, opts.members, self.site.uncertainty.evaporation,
-                opts.rating_variants, rng,
+        seep_fit = self.get("seepage") if laws.seepage is not None else None
+        seep_constant = self.site.seepage.in_forecasts == "constant"
+
+        def draw(members: int, gen: Any) -> Any:
+            if not opts.sample_uncertainty:
+                return None
+            return sample_model_uncertainty(
+                self.rating, members, self.site.uncertainty.evaporation, opts.rating_variants,
+                gen, seepage=seep_fit, seepage_constant=seep_constant,
             )  # fmt: skip
+
+        samples = draw(opts.members, rng)
         plan = ForecastPlan(
             start=start_ts,
             start_stage_m=h0,
@@ -817,13 +823,59 @@ class Lake:
                 bar.update(done - bar.n)
 
         try:
-            return run_forecast(
+            main = run_forecast(
                 laws, forcing, plan, samples=samples, rng=rng, seed=seed, progress=callback,
                 notes=notes,
             )  # fmt: skip
         finally:
             if bar is not None:
                 bar.close()
+        if not opts.compare_methods or opts.scenario == "constant":
+            return main
+        return self._method_spread(main, opts, history, start_ts, laws, plan, draw, seed)
+
+    def _method_spread(
+        self, main: Any, opts: Any, history: Any, start_ts: Any, laws: Any, plan: Any,
+        draw: Callable, seed: int | None,
+    ) -> Forecast:  # fmt: skip
+        """The same outlook by every scenario method, side by side (``Forecast.method_spread``):
+        replay, ESP-weighted replay, the 30-day block bootstrap and the persistent monthly
+        generator (and the daily AR(1) when it is the chosen one), each with
+        ``[drawdown] compare_members`` members (the years themselves for a plain replay) and
+        its own draws of the model uncertainty; the chosen method's own row is its forecast."""
+        import numpy as np
+
+        from .drawdown import MethodOdds, build_forcing, run_forecast
+
+        specs = [("replay", "bootstrap"), ("esp", "bootstrap"), ("stochastic", "bootstrap"),
+                 ("stochastic", "monthly")]  # fmt: skip
+        if opts.scenario == "stochastic" and opts.stochastic == "ar1":
+            specs.append(("stochastic", "ar1"))
+        rows, notes = [], []
+        for k, (scenario, method) in enumerate(specs):
+            name = method if scenario == "stochastic" else scenario
+            if name == main.method:
+                rows.append(MethodOdds.of(main))
+                continue
+            gen = np.random.default_rng([int(seed or 0), 14, k])
+            members = opts.compare_members
+            try:
+                forcing = build_forcing(
+                    history, start_ts, opts.days, scenario, members=members, rng=gen,
+                    method=method, block_days=opts.block_days,
+                    antecedent_days=opts.antecedent_days,
+                )  # fmt: skip
+                fc = run_forecast(
+                    laws, forcing, dataclasses.replace(plan, scenario=scenario),
+                    samples=draw(members, gen), rng=gen, side_by_side=False,
+                )  # fmt: skip
+            except LakebalanceError as exc:
+                notes.append(f"the {name} method left out of the comparison: {exc}")
+                continue
+            rows.append(MethodOdds.of(fc))
+        return dataclasses.replace(
+            main, method_spread=tuple(rows), notes=(*main.notes, *notes)
+        )  # fmt: skip
 
 
 def _persistent_errors(balance: Balance, chosen: Any, used: pd.Series) -> Callable | None:

@@ -248,5 +248,5 @@ def test_constant_scenario_and_forecast_odds():
     assert fc.probability_below["a"].iloc[-1] == 1.0
     assert fc.volume_percentiles["p50"].iloc[0] == pytest.approx(9.0 * area)
     text = " ".join(fc.sentences())
-    assert "reaches the a level (9.00 m) on 24 April 2016" in text  # 23.15 days after 31 March
+    assert "falls to the a level (9.00 m) on 24 April 2016" in text  # 23.15 days after 31 March
     assert "licensed professionals" in text

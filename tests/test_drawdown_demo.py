@@ -30,7 +30,10 @@ def demo():
 
 def test_replay_member_reproduces_its_year_within_the_balance_residual(demo):
     site, records = demo
-    opts = dataclasses.replace(site.drawdown, demand=None, restriction=(), seepage=False)
+    opts = dataclasses.replace(
+        site.drawdown, demand=None, restriction=(), seepage=False, sample_uncertainty=False,
+        compare_methods=False,
+    )  # fmt: skip
     site = dataclasses.replace(site, drawdown=opts)
     start, days = "2015-06-30", 90
     with warnings.catch_warnings():
@@ -111,7 +114,10 @@ def test_sampled_uncertainty_spreads_a_single_scenario(demo):
     their evaporation factor and rating draw: the fan has a width, the median stays near the
     unsampled run."""
     site, records = demo
-    plain = dataclasses.replace(site.drawdown, restriction=(), seepage=False)
+    plain = dataclasses.replace(
+        site.drawdown, restriction=(), seepage=False, sample_uncertainty=False,
+        compare_methods=False,
+    )  # fmt: skip
     sampled = dataclasses.replace(plain, sample_uncertainty=True, rating_variants=50)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", lb.errors.LakebalanceWarning)

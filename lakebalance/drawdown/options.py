@@ -35,7 +35,11 @@ class DrawdownOptions(Options):
     demand: float | list[float] | None = setting(None, unit="m3/s", low=0.0)  # or 12 monthly
     environmental_release: float = setting(0.0, unit="m3/s", low=0.0)
     restriction: tuple[DemandRule, ...] = ()
-    sample_uncertainty: bool = False  # draw rating and evaporation errors per member
+    # draw the rating, evaporation and seepage errors per member (the outlook says which)
+    sample_uncertainty: bool = True
+    # run every scenario method (replay, esp, bootstrap, monthly) and show them side by side
+    compare_methods: bool = True
+    compare_members: int = setting(500, unit="members", low=20, high=MAX_MEMBERS)
     start: str | None = None  # ISO date of the start (default: last day with a recorded stage)
     start_stage: float | None = setting(None, unit="m")  # default: recorded stage that day
     # model of the stochastic scenario: 30-day block bootstrap, daily seasonal AR(1), or the

@@ -62,7 +62,7 @@ class MonthlyTraces:
     months: tuple[tuple[int, int], ...]
     monthly_mean_m3s: np.ndarray
     params: pd.DataFrame
-    years: tuple[int, ...]
+    years: tuple[int, ...]  # the years of the calendar month with the fewest whole records
     note: str
 
 
@@ -223,7 +223,9 @@ def monthly_generator(
                 arrays[t][rows] = frag[pick][:, dom].T * qm[None, :]
             else:
                 arrays[t][rows] = full[pick][:, dom].T
-    years = tuple(sorted(set(int(v) for v in table["year"])))
+    # the independent years: those of the calendar month with the fewest whole records
+    fewest = int(params["years"].idxmin())
+    years = tuple(sorted(int(v) for v in table.loc[table["month"] == fewest, "year"]))
     note = (
         f"periodic monthly AR(1) of log inflow (Thomas-Fiering) fitted on {len(years)} years, "
         f"lag-one month correlation {params['r1'].min():.2f} to {params['r1'].max():.2f}, "

@@ -84,6 +84,8 @@ class Forcing:
     member_year: np.ndarray | None = field(default=None, repr=False)
     #: (years,) weight of each year (``esp``; None: equal)
     year_weights: np.ndarray | None = field(default=None, repr=False)
+    #: window (days) of the ESP conditioning
+    antecedent_days: int | None = None
 
     @property
     def members(self) -> int:
@@ -312,6 +314,7 @@ def build_forcing(
                 independent_years=max(1, int(np.floor(n_eff + 1e-9))),
                 member_year=alloc,
                 year_weights=w,
+                antecedent_days=antecedent_days,
             )
         else:
             if rng is None:
