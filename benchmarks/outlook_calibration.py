@@ -47,9 +47,10 @@ def _name(scenario: str, method: str) -> str:
 
 def run_family(family: str, args: argparse.Namespace, root: Path) -> pd.DataFrame:
     """One row per (start, method): stated probability and outcome."""
+    from lakefamilies import simulate
+
     import lakebalance as lb
     from lakebalance.drawdown import ForecastPlan, build_forcing, forecast_stage_max, run_forecast
-    from lakefamilies import simulate
 
     sim = simulate(family, seed=args.seed, root=root / family, years=args.years)
     with warnings.catch_warnings():
@@ -107,9 +108,7 @@ def report(frame: pd.DataFrame) -> str:
     for family, fam in frame.groupby("family", sort=False):
         n_starts = fam["start"].nunique()
         clim = fam.drop_duplicates("start")["outcome"].mean()
-        lines.append(
-            f"\n{family}: {n_starts} starts, observed crossing frequency {clim:.2f}"
-        )
+        lines.append(f"\n{family}: {n_starts} starts, observed crossing frequency {clim:.2f}")
         lines.append(
             f"  {'method':<10}{'Brier':>7}{'skill':>7}   reliability: bin [lo, hi) n, stated, seen"
         )
