@@ -131,3 +131,24 @@ def test_sampled_uncertainty_spreads_a_single_scenario(demo):
     end = many.stage_percentiles.iloc[-1]
     assert end["p95"] - end["p5"] > 0.01
     assert abs(end["p50"] - one.stage_percentiles.iloc[-1]["p50"]) < end["p95"] - end["p5"]
+
+
+def test_default_outlook_draws_model_uncertainty_and_shows_every_method(demo):
+    """Issue 14: by default the outlook draws the rating, evaporation and seepage errors, says
+    what it carries, and shows each scenario method's probabilities side by side."""
+    site, _ = demo
+    opts = dataclasses.replace(site.drawdown, compare_members=40, rating_variants=20)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", lb.errors.LakebalanceWarning)
+        fc = lb.Lake(dataclasses.replace(site, drawdown=opts)).forecast(
+            "2022-06-30", days=60, scenario="stochastic", members=60
+        )
+    assert fc.sampled_uncertainty
+    assert any("rating" in c for c in fc.carried) and any("evaporation" in c for c in fc.carried)
+    methods = [r.method for r in fc.method_spread]
+    assert methods == ["replay", "esp", "bootstrap", "monthly"]
+    replay = fc.method_spread[0]
+    assert all(v is not None for v in replay.years_reached.values())
+    doc = fc.to_dict()
+    assert len(doc["method_spread"]) == 4 and doc["uncertainty"]["not_carried"]
+    assert "side by side" in fc.summary()
