@@ -17,12 +17,16 @@ than their counts suggest.
 Run::
 
     python benchmarks/outlook_calibration.py [--families flow_through,gated] [--starts 24]
-        [--members 200] [--days 90] [--years 16]
+        [--members 200] [--days 90] [--years 16] [--level NAME]
+
+``--families`` also takes site files (``data_demo/site.toml``) to hindcast a real record the
+same way.
 """
 
 from __future__ import annotations
 
 import argparse
+import dataclasses
 import sys
 import tempfile
 import time
@@ -52,16 +56,20 @@ def run_family(family: str, args: argparse.Namespace, root: Path) -> pd.DataFram
     import lakebalance as lb
     from lakebalance.drawdown import ForecastPlan, build_forcing, forecast_stage_max, run_forecast
 
-    sim = simulate(family, seed=args.seed, root=root / family, years=args.years)
+    if family.endswith(".toml"):  # a site file of one's own (e.g. the demo)
+        site_file = Path(family)
+    else:
+        site_file = simulate(family, seed=args.seed, root=root / family, years=args.years).site_file
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        lake = lb.open_site(sim.site_file)
+        lake = lb.open_site(site_file)
         history = lake.drawdown_history()
         laws, _ = lake.laws(seepage=True)
     stage = lake.records.daily["stage"].dropna()
-    low = float(stage.quantile(0.25))
-    laws = laws.__class__(**{**laws.__dict__, "levels": {"low": low}})
-    first = stage.index[0] + pd.Timedelta(days=int(365.25 * args.years / 2))
+    low = laws.levels[args.level] if args.level else float(stage.quantile(0.25))
+    laws = dataclasses.replace(laws, levels={"low": low})
+    years = (stage.index[-1] - stage.index[0]).days / 365.25
+    first = stage.index[0] + pd.Timedelta(days=int(365.25 * years / 2))
     last = stage.index[-1] - pd.Timedelta(days=args.days)
     starts = pd.date_range(first, last, periods=args.starts).normalize()
     rows = []
@@ -131,7 +139,14 @@ def report(frame: pd.DataFrame) -> str:
 
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--families", default="flow_through,seepage,gated,snowmelt_us")
+    parser.add_argument(
+        "--families",
+        default="flow_through,seepage,gated,snowmelt_us",
+        help="lake families of tests/lakefamilies.py, or site files (.toml), comma-separated",
+    )
+    parser.add_argument(
+        "--level", default=None, help="a [levels] name (default: 25th percentile of stage)"
+    )
     parser.add_argument("--starts", type=int, default=24)
     parser.add_argument("--members", type=int, default=200)
     parser.add_argument("--days", type=int, default=90)
@@ -146,8 +161,9 @@ def main(argv: list[str] | None = None) -> int:
             print(f"{family}: {time.perf_counter() - t0:.0f} s", file=sys.stderr)
     frame = pd.concat(frames, ignore_index=True)
     print(
-        f"Outlook calibration: {args.days}-day chance of falling below the 25th percentile of "
-        f"recorded stage; {args.members} members; seed {args.seed}"
+        f"Outlook calibration: {args.days}-day chance of falling below "
+        + (f"the {args.level} level" if args.level else "the 25th percentile of recorded stage")
+        + f"; {args.members} members; seed {args.seed}"
     )
     print(report(frame))
     return 0

@@ -303,6 +303,9 @@ class Forecast:
                 text = (
                     f"Replaying the {o.years_total} historical years, the lake {verb} {what} "
                     f"{within} {count_of(o.years_reached, o.years_total)} ({ci}, exact binomial)"
+                    if o.years_reached
+                    else f"Replaying the {o.years_total} historical years, the lake reaches "
+                    f"{what} {within} in none of them ({ci}, exact binomial: not impossible)"
                 )
                 if self.sampled_uncertainty:
                     text += (
