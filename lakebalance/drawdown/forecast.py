@@ -296,7 +296,8 @@ class Forecast:
             if self.basis == "scenario":
                 text = (
                     f"Of {self.members:,} draws of the model uncertainty on the one "
-                    f"{self.scenario} trace, {_share(o.probability)} reach {what} {within}"
+                    f"{self.scenario} trace ({self.labels[0] if self.labels else ''}), "
+                    f"{_share(o.probability)} reach {what} {within}"
                     " (a spread of the model, not of the weather)"
                 )
             elif self.method == "replay" and o.years_reached is not None:
@@ -577,6 +578,8 @@ def _chance_or_count(o: LevelOdds, n: int | None, ci: str) -> str:
     """The rule of :mod:`.support`: a chance from 20 independent years up, else a count."""
     if not n:
         return ""
+    if o.probability <= 0.0 or o.probability >= 1.0:
+        return f" ({ci} on {n} independent years)"
     if can_quote_chance(n):
         return f": a {percent(100.0 * o.probability)} chance ({ci} on {n} independent years)"
     k = successes(o.probability, n)
