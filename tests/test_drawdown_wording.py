@@ -188,3 +188,16 @@ def test_seepage_law_is_drawn_per_variant_from_its_covariance():
     # the constant rate (at the mean stage) is the same on every stage of a row
     assert np.ptp(t.outflow_m3s, axis=1).max() == 0.0 and np.ptp(t.outflow_m3s[:, 0]) > 0
     _ = dataclasses  # used by other tests of this module
+
+
+def test_key_sentences_pick_the_levels_some_runs_reach():
+    flows = [0.2, 0.3, 0.1, 0.4] + [2.0] * 14
+    hist, start = _years_record(flows)
+    f = build_forcing(hist, start, 100, "replay")
+    plan = ForecastPlan(start=start, start_stage_m=10.0, scenario="replay", demand_m3s=1.0)
+    fc = run_forecast(_laws({"low": 5.68, "never": 1.0}), f, plan)
+    key = fc.key_sentences(3)
+    assert len(key) == 1 and "low level" in key[0] and "in 4 of 18 years" in key[0]
+    parts = fc.level_sentences()
+    assert "in none of them" in parts["never"][0]
+    assert fc.sentences()[: len(parts["low"]) + 1] == [*parts["low"], *parts["never"]]

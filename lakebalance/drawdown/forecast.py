@@ -272,16 +272,15 @@ class Forecast:
             return self.independent_years
         return self.members if self.members > 1 else None
 
-    def sentences(self) -> list[str]:
-        """Plain sentences a manager can quote: per level the count or share of the runs that
-        reach it, with its exact 95 % interval and the years behind it, worded by the rule of
-        :mod:`.support`; then the spread across methods, what the outlook carries and does not,
-        the restrictions' effect and the caution."""
-        out: list[str] = []
+    def level_sentences(self) -> dict[str, list[str]]:
+        """The sentences of each level (see :meth:`sentences`), by level name."""
+        parts_of: dict[str, list[str]] = {}
         horizon = (pd.Timestamp(self.start) + pd.Timedelta(days=self.days)).date()
         within = f"within {self.days} days (by {_fmt(horizon)})"
         n = self.support_years
         for o in self.odds:
+            out: list[str] = []
+            parts_of[o.name] = out
             verb = "falls to" if o.direction == "falling" else "rises to"
             what = f"the {o.name} level ({o.stage_m:.2f} m)"
             ci = "" if o.interval is None else f"95 % interval {_ci(o.interval)}"
@@ -337,6 +336,25 @@ class Forecast:
             if parts:
                 text = "; ".join(parts)
                 out.append(text[0].upper() + text[1:] + ".")
+        return parts_of
+
+    def key_sentences(self, k: int = 3) -> list[str]:
+        """Up to ``k`` sentences for a headline: the levels that some but not all runs reach
+        (the informative ones), then the methods' disagreement."""
+        parts = self.level_sentences()
+        keep = [o.name for o in self.odds if 0.0 < o.probability < 1.0] or [
+            o.name for o in self.odds
+        ]
+        out = [parts[name][0] for name in keep if parts[name]]
+        spread = [t for t in self.spread_sentences() if "disagree" in t]
+        return (out[: max(k - len(spread[:1]), 1)] + spread[:1])[:k]
+
+    def sentences(self) -> list[str]:
+        """Plain sentences a manager can quote: per level the count or share of the runs that
+        reach it, with its exact 95 % interval and the years behind it, worded by the rule of
+        :mod:`.support`; then the spread across methods, what the outlook carries and does not,
+        the restrictions' effect and the caution."""
+        out: list[str] = [t for ts in self.level_sentences().values() for t in ts]
         out += self.spread_sentences()
         if self.carried:
             out.append("This outlook carries " + "; ".join(self.carried) + ".")

@@ -913,7 +913,7 @@ def build_sections(run: Lake, year: int) -> tuple[list[Section], dict[str, Any],
         head.update(_dynamics_headline(run))
     summary = _year_in_words(run, head, previous)
     if run.get("forecast") is not None:
-        summary += list(_forecast_sentences(run))[:3]
+        summary += run.get("forecast").key_sentences(3)
     return sections, head, summary
 
 
