@@ -300,11 +300,11 @@ def esp_weights(
         k[ok] = 1.0
     k[~ok] = np.mean(k[ok])
     w = k / k.sum()
-    rank = float(np.mean(a[ok] < a0))
+    drier_than = float(np.mean(a[ok] > a0))  # share of the years wetter than the present
     note = (
         f"ESP: {n} historical years from the present state, weighted by the likeness of their "
         f"inflow over the {antecedent_days} days before the start to the present's (drier than "
-        f"{rank:.0%} of the years; Gaussian kernel, bandwidth {h / s if s > 0 else 0:.2f} sd)"
+        f"{drier_than:.0%} of the years; Gaussian kernel, bandwidth {h / s if s > 0 else 0:.2f} sd)"
     )
     return w, note
 
