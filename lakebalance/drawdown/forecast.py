@@ -957,37 +957,11 @@ def run_forecast(
     def wrap(res: EngineResult, restricted: bool, unrestricted: Forecast | None) -> Forecast:
         dates = pd.DatetimeIndex([start_ts, *forcing.dates], name="date")
         stage = res.stage_m
-        pct = np.percentile(stage, PERCENTILES, axis=1).T
-        # the rule of .support: no percentile beyond what the independent years support
-        unsupported = [
-            i for i, p in enumerate(PERCENTILES) if m > 1 and not percentile_supported(p, n_eff)
-        ]
-        pct[:, unsupported] = np.nan
-        sp = pd.DataFrame(pct, index=dates, columns=[f"p{p}" for p in PERCENTILES])
-        below = pd.DataFrame({k: (stage < v).mean(axis=1) for k, v in levels.items()}, index=dates)
         v_floor = float(np.asarray(volume(np.array([floor])))[0])
         vol = np.maximum(np.asarray(volume(stage)) - v_floor, 0.0)
-        vpct = np.percentile(vol, PERCENTILES, axis=1).T
-        vpct[:, unsupported] = np.nan
-        vp = pd.DataFrame(
-            vpct,
-            index=dates,
-            columns=[f"p{p}" for p in PERCENTILES],
-        )
-        odds = tuple(
-            _odds(
-                k,
-                v,
-                res.crossing_day[k],
-                start_ts,
-                "falling" if start_stage_m > v else "rising",
-                n_eff=n_eff,
-                member_year=forcing.member_year,
-                n_years=len(forcing.years) if forcing.basis == "years" else None,
-                replay=forcing.method == "replay",
-            )
-            for k, v in sorted(levels.items(), key=lambda kv: -kv[1])
-        )
+        sp, vp = (_percentile_table(x, dates, m, n_eff) for x in (stage, vol))
+        below = pd.DataFrame({k: (stage < v).mean(axis=1) for k, v in levels.items()}, index=dates)
+        odds = _level_odds(res.crossing_day, levels, start_ts, float(start_stage_m), n_eff, forcing)
         return Forecast(
             scenario=scenario,
             start=start_ts.date(),
@@ -1030,6 +1004,44 @@ def run_forecast(
         free = wrap(one((), None), False, None)
         return wrap(one(rules, progress), True, free)
     return wrap(one((), progress), False, None)
+
+
+def _level_odds(
+    crossing_day: dict[str, np.ndarray],
+    levels: dict[str, float],
+    start: pd.Timestamp,
+    start_stage_m: float,
+    n_eff: int | None,
+    forcing: Forcing,
+) -> tuple[LevelOdds, ...]:
+    """The odds of every level, highest first, counted on the forcing's years where they are
+    the members."""
+    return tuple(
+        _odds(
+            k,
+            v,
+            crossing_day[k],
+            start,
+            "falling" if start_stage_m > v else "rising",
+            n_eff=n_eff,
+            member_year=forcing.member_year,
+            n_years=len(forcing.years) if forcing.basis == "years" else None,
+            replay=forcing.method == "replay",
+        )
+        for k, v in sorted(levels.items(), key=lambda kv: -kv[1])
+    )
+
+
+def _percentile_table(
+    values: np.ndarray, dates: pd.DatetimeIndex, members: int, n_eff: int | None
+) -> pd.DataFrame:
+    """Percentiles :data:`PERCENTILES` of ``values`` (days + 1, members) per day; by the rule of
+    :mod:`.support`, NaN for a percentile the independent years cannot support."""
+    pct = np.percentile(values, PERCENTILES, axis=1).T
+    for i, p in enumerate(PERCENTILES):
+        if members > 1 and not percentile_supported(p, n_eff):
+            pct[:, i] = np.nan
+    return pd.DataFrame(pct, index=dates, columns=[f"p{p}" for p in PERCENTILES])
 
 
 def _no_outflow(h: np.ndarray) -> np.ndarray:
