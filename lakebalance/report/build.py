@@ -1206,10 +1206,10 @@ def _drawdown_section(run: Lake) -> Section:
     ]
     if fc.method_spread:
         spread = fc.method_spread_frame().reset_index()
-        for k in fc.levels:
+        for k in (o.name for o in fc.odds):  # highest level first, as in the odds table
             if k in spread.columns:
                 spread[f"{k}_pct"] = 100.0 * spread.pop(k).astype(float)
-        spread["independent_years"] = spread["independent_years"].astype(float)
+        spread["independent_years"] = spread["independent_years"].astype("Int64")
         tables.append(
             table(
                 "drawdown-methods",
