@@ -656,6 +656,7 @@ class Lake:
         scenario: str | None = None,
         members: int | None = None,
         start_stage_m: float | None = None,
+        compare_methods: bool | None = None,
     ) -> Forecast:
         """Drought drawdown forecast: an ensemble of the whole balance from a start day.
 
@@ -674,6 +675,9 @@ class Lake:
             sampled (default: the Lake's ``members``, else ``[drawdown] members``).
         start_stage_m : float, optional
             Stage at the start (m; default ``[drawdown] start_stage``, else the record that day).
+        compare_methods : bool, optional
+            Also run every scenario method and show them side by side (default
+            ``[drawdown] compare_methods``).
 
         Notes
         -----
@@ -690,6 +694,7 @@ class Lake:
                 "members": members if members is not None else self.members,
                 "start": start if start is not None else self.forecast_start,
                 "start_stage": start_stage_m,
+                "compare_methods": compare_methods,
             }.items()
             if v is not None
         }

@@ -152,3 +152,14 @@ def test_default_outlook_draws_model_uncertainty_and_shows_every_method(demo):
     doc = fc.to_dict()
     assert len(doc["method_spread"]) == 4 and doc["uncertainty"]["not_carried"]
     assert "side by side" in fc.summary()
+
+
+def test_command_no_compare_runs_one_method(demo_site_path, capsys):
+    code = main(
+        ["drawdown", str(demo_site_path), "--days", "20", "--scenario", "replay", "--no-compare",
+         "--no-progress", "--json"]
+    )  # fmt: skip
+    assert code == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["method_spread"] == [] and doc["method"] == "replay"
+    assert doc["levels"]["sill"]["years_total"] == doc["independent_years"]

@@ -512,7 +512,7 @@ class Forecast:
         n = self.support_years
         basis = {
             "years": f"{len(self.years)} historical years"
-            + (f" ({n} effective)" if self.method == "esp" else ""),
+            + (f", {n} effective" if self.method == "esp" else ""),
             "members": f"made from {n} historical years",
             "scenario": "one constructed trace",
         }[self.basis]
