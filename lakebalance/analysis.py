@@ -721,6 +721,7 @@ class Lake:
         scenario: str | None = None,
         members: int | None = None,
         start_stage_m: float | None = None,
+        compare_methods: bool | None = None,
     ) -> Forecast:
         """Drought drawdown forecast: an ensemble of the whole balance from a start day.
 
@@ -732,13 +733,16 @@ class Lake:
         days : int, optional
             Horizon in days (default ``[drawdown] days``).
         scenario : str, optional
-            ``"replay"``, ``"percentile"``, ``"stochastic"`` or ``"constant"`` (default
+            ``"replay"``, ``"esp"``, ``"percentile"``, ``"stochastic"`` or ``"constant"`` (default
             ``[drawdown] scenario``).
         members : int, optional
             Members of the stochastic scenario, or of any scenario when model uncertainty is
             sampled (default: the Lake's ``members``, else ``[drawdown] members``).
         start_stage_m : float, optional
             Stage at the start (m; default ``[drawdown] start_stage``, else the record that day).
+        compare_methods : bool, optional
+            Also run every scenario method and show them side by side (default
+            ``[drawdown] compare_methods``).
 
         Notes
         -----
@@ -755,17 +759,19 @@ class Lake:
                 "members": members if members is not None else self.members,
                 "start": start if start is not None else self.forecast_start,
                 "start_stage": start_stage_m,
+                "compare_methods": compare_methods,
             }.items()
             if v is not None
         }
         if changes.get("scenario", opts.scenario) not in (
             "replay",
+            "esp",
             "percentile",
             "stochastic",
             "constant",
         ):
             raise ConfigError(
-                f"unknown drawdown scenario {changes['scenario']!r}: replay, percentile, "
+                f"unknown drawdown scenario {changes['scenario']!r}: replay, esp, percentile, "
                 "stochastic or constant",
                 file=self.site.path,
             )
@@ -840,6 +846,7 @@ class Lake:
             inflow_m3s=opts.inflow,
             method=opts.stochastic,
             block_days=opts.block_days,
+            antecedent_days=opts.antecedent_days,
         )
         levels = dict(self.site.levels)
         dead_name = opts.dead_level or ("dead" if "dead" in levels else None)
@@ -854,12 +861,18 @@ class Lake:
         if self.rating is None:
             notes.append("no [outlet]: the lake has no outflow but its withdrawals and releases")
         dead = levels[dead_name] if dead_name is not None else laws.min_stage_m
-        samples = None
-        if opts.sample_uncertainty:
-            samples = sample_model_uncertainty(
-                self.rating, opts.members, self.site.uncertainty.evaporation,
-                opts.rating_variants, rng,
+        seep_fit = self.get("seepage") if laws.seepage is not None else None
+        seep_constant = self.site.seepage.in_forecasts == "constant"
+
+        def draw(members: int, gen: Any) -> Any:
+            if not opts.sample_uncertainty:
+                return None
+            return sample_model_uncertainty(
+                self.rating, members, self.site.uncertainty.evaporation, opts.rating_variants,
+                gen, seepage=seep_fit, seepage_constant=seep_constant,
             )  # fmt: skip
+
+        samples = draw(opts.members, rng)
         plan = ForecastPlan(
             start=start_ts,
             start_stage_m=h0,
@@ -880,13 +893,59 @@ class Lake:
                 bar.update(done - bar.n)
 
         try:
-            return run_forecast(
+            main = run_forecast(
                 laws, forcing, plan, samples=samples, rng=rng, seed=seed, progress=callback,
                 notes=notes,
             )  # fmt: skip
         finally:
             if bar is not None:
                 bar.close()
+        if not opts.compare_methods or opts.scenario == "constant":
+            return main
+        return self._method_spread(main, opts, history, start_ts, laws, plan, draw, seed)
+
+    def _method_spread(
+        self, main: Any, opts: Any, history: Any, start_ts: Any, laws: Any, plan: Any,
+        draw: Callable, seed: int | None,
+    ) -> Forecast:  # fmt: skip
+        """The same outlook by every scenario method, side by side (``Forecast.method_spread``):
+        replay, ESP-weighted replay, the 30-day block bootstrap and the persistent monthly
+        generator (and the daily AR(1) when it is the chosen one), each with
+        ``[drawdown] compare_members`` members (the years themselves for a plain replay) and
+        its own draws of the model uncertainty; the chosen method's own row is its forecast."""
+        import numpy as np
+
+        from .drawdown import MethodOdds, build_forcing, run_forecast
+
+        specs = [("replay", "bootstrap"), ("esp", "bootstrap"), ("stochastic", "bootstrap"),
+                 ("stochastic", "monthly")]  # fmt: skip
+        if opts.scenario == "stochastic" and opts.stochastic == "ar1":
+            specs.append(("stochastic", "ar1"))
+        rows, notes = [], []
+        for k, (scenario, method) in enumerate(specs):
+            name = method if scenario == "stochastic" else scenario
+            if name == main.method:
+                rows.append(MethodOdds.of(main))
+                continue
+            gen = np.random.default_rng([int(seed or 0), 14, k])
+            members = opts.compare_members
+            try:
+                forcing = build_forcing(
+                    history, start_ts, opts.days, scenario, members=members, rng=gen,
+                    method=method, block_days=opts.block_days,
+                    antecedent_days=opts.antecedent_days,
+                )  # fmt: skip
+                fc = run_forecast(
+                    laws, forcing, dataclasses.replace(plan, scenario=scenario),
+                    samples=draw(members, gen), rng=gen, side_by_side=False,
+                )  # fmt: skip
+            except LakebalanceError as exc:
+                notes.append(f"the {name} method left out of the comparison: {exc}")
+                continue
+            rows.append(MethodOdds.of(fc))
+        return dataclasses.replace(
+            main, method_spread=tuple(rows), notes=(*main.notes, *notes)
+        )  # fmt: skip
 
     # ---- yield and hindcast --------------------------------------------------------------
     def _dead_level(self, name: str | None = None) -> tuple[str, float]:

@@ -194,27 +194,6 @@ def test_bootstrap_blocks_come_whole_from_one_year():
             )
 
 
-def test_percentile_scenario_is_the_pooled_day_of_year_quantile():
-    """The percentile scenario's inflow on each forecast day is the 10 % quantile of every
-    historical value within 7 calendar days of that day (docs/drawdown.md), recomputed here
-    directly from the dates with numpy (definition, common practice, no source)."""
-    hist = _history()
-    f = build_forcing(hist, pd.Timestamp("2016-03-31"), 10, "percentile", percentile=10.0)
-    assert f.members == 1
-    s = hist["inflow_m3s"]
-    for k in range(10):
-        day = pd.Timestamp("2016-04-01") + pd.Timedelta(days=k)
-        pool = np.concatenate(
-            [
-                s[day.replace(year=y) - pd.Timedelta(days=7) : day.replace(year=y)
-                  + pd.Timedelta(days=7)].to_numpy()
-                for y in range(2010, 2016)
-            ]
-        )  # fmt: skip
-        assert pool.size == 15 * 6
-        assert f.inflow_m3s[k, 0] == pytest.approx(np.quantile(pool, 0.10), rel=1e-12)
-
-
 def test_ar1_recovers_a_known_autocorrelation():
     """AR(1) (Box & Jenkins, 1976, ch. 3): a log-inflow series made with phi = 0.8 is fitted
     back within 0.05, and the simulated anomalies keep that lag-one correlation."""
@@ -269,5 +248,5 @@ def test_constant_scenario_and_forecast_odds():
     assert fc.probability_below["a"].iloc[-1] == 1.0
     assert fc.volume_percentiles["p50"].iloc[0] == pytest.approx(9.0 * area)
     text = " ".join(fc.sentences())
-    assert "reaches the a level (9.00 m) on 24 April 2016" in text  # 23.15 days after 31 March
+    assert "falls to the a level (9.00 m) on 24 April 2016" in text  # 23.15 days after 31 March
     assert "licensed professionals" in text

@@ -30,7 +30,10 @@ def demo():
 
 def test_replay_member_reproduces_its_year_within_the_balance_residual(demo):
     site, records = demo
-    opts = dataclasses.replace(site.drawdown, demand=None, restriction=(), seepage=False)
+    opts = dataclasses.replace(
+        site.drawdown, demand=None, restriction=(), seepage=False, sample_uncertainty=False,
+        compare_methods=False,
+    )  # fmt: skip
     site = dataclasses.replace(site, drawdown=opts)
     start, days = "2015-06-30", 90
     with warnings.catch_warnings():
@@ -111,7 +114,10 @@ def test_sampled_uncertainty_spreads_a_single_scenario(demo):
     their evaporation factor and rating draw: the fan has a width, the median stays near the
     unsampled run."""
     site, records = demo
-    plain = dataclasses.replace(site.drawdown, restriction=(), seepage=False)
+    plain = dataclasses.replace(
+        site.drawdown, restriction=(), seepage=False, sample_uncertainty=False,
+        compare_methods=False,
+    )  # fmt: skip
     sampled = dataclasses.replace(plain, sample_uncertainty=True, rating_variants=50)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", lb.errors.LakebalanceWarning)
@@ -125,3 +131,35 @@ def test_sampled_uncertainty_spreads_a_single_scenario(demo):
     end = many.stage_percentiles.iloc[-1]
     assert end["p95"] - end["p5"] > 0.01
     assert abs(end["p50"] - one.stage_percentiles.iloc[-1]["p50"]) < end["p95"] - end["p5"]
+
+
+def test_default_outlook_draws_model_uncertainty_and_shows_every_method(demo):
+    """Issue 14: by default the outlook draws the rating, evaporation and seepage errors, says
+    what it carries, and shows each scenario method's probabilities side by side."""
+    site, _ = demo
+    opts = dataclasses.replace(site.drawdown, compare_members=40, rating_variants=20)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", lb.errors.LakebalanceWarning)
+        fc = lb.Lake(dataclasses.replace(site, drawdown=opts)).forecast(
+            "2022-06-30", days=60, scenario="stochastic", members=60
+        )
+    assert fc.sampled_uncertainty
+    assert any("rating" in c for c in fc.carried) and any("evaporation" in c for c in fc.carried)
+    methods = [r.method for r in fc.method_spread]
+    assert methods == ["replay", "esp", "bootstrap", "monthly"]
+    replay = fc.method_spread[0]
+    assert all(v is not None for v in replay.years_reached.values())
+    doc = fc.to_dict()
+    assert len(doc["method_spread"]) == 4 and doc["uncertainty"]["not_carried"]
+    assert "side by side" in fc.summary()
+
+
+def test_command_no_compare_runs_one_method(demo_site_path, capsys):
+    code = main(
+        ["drawdown", str(demo_site_path), "--days", "20", "--scenario", "replay", "--no-compare",
+         "--no-progress", "--json"]
+    )  # fmt: skip
+    assert code == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["method_spread"] == [] and doc["method"] == "replay"
+    assert doc["levels"]["sill"]["years_total"] == doc["independent_years"]

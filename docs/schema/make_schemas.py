@@ -56,6 +56,7 @@ ESTIMATE_KEYS = {"value", "stderr", "ci95", "unit"}
 MAPS = {
     ".levels",
     ".unrestricted.levels",
+    ".method_spread[].levels",
     ".parameters",
     ".derived",
     ".totals_m3",

@@ -37,12 +37,17 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     )
     parser.add_argument(
         "--scenario",
-        choices=("replay", "percentile", "stochastic", "constant"),
+        choices=("replay", "esp", "percentile", "stochastic", "constant"),
         default=None,
         help="how future inflows are made (default: [drawdown] scenario)",
     )
     parser.add_argument(
         "--members", type=int, default=None, metavar="M", help="ensemble members (default: site)"
+    )
+    parser.add_argument(
+        "--no-compare",
+        action="store_true",
+        help="run the chosen scenario only, not every method side by side (faster)",
     )
     parser.add_argument("--no-progress", action="store_true", help="no progress bar on stderr")
     add_seed(parser)
@@ -65,6 +70,7 @@ def run(args: argparse.Namespace) -> int:
             scenario=args.scenario,
             members=args.members,
             start_stage_m=args.start_stage,
+            compare_methods=False if args.no_compare else None,
         )
     written = []
     if out is not None:

@@ -1,7 +1,9 @@
 """Drought drawdown forecasts: a fast ensemble simulation of the whole balance.
 
 * :mod:`.engine` — the vectorised day-by-day integrator (accurate for slow and stiff lakes);
-* :mod:`.scenarios` — the forcing of each scenario (replay, percentile, stochastic, constant);
+* :mod:`.scenarios` — the forcing of each scenario (replay, esp, percentile, stochastic,
+  constant); :mod:`.persistence` — the persistent monthly generator and the ESP weights;
+* :mod:`.support` — exact binomial intervals and the rule of what an ensemble can support;
 * :mod:`.forecast` — the ensemble run and its frozen :class:`Forecast` result.
 
 See ``docs/drawdown.md``.
@@ -16,6 +18,7 @@ from .forecast import (
     Forecast,
     ForecastPlan,
     LevelOdds,
+    MethodOdds,
     ModelSamples,
     check_start_stage,
     forecast_stage_max,
@@ -34,6 +37,7 @@ __all__ = [
     "PERCENTILES",
     "Forecast",
     "LevelOdds",
+    "MethodOdds",
     "run_forecast",
     "ForecastPlan",
     "ModelSamples",

@@ -163,8 +163,8 @@ def build_tables(
     ramp = np.clip((grid - floor) / ramp_m, 0.0, 1.0) if ramp_m > 0 else (grid > floor) * 1.0
     if environmental_release_m3s > 0:
         q = np.maximum(q, environmental_release_m3s * ramp)
-    if seepage is not None:
-        q = q + np.asarray(seepage(grid), dtype=float).reshape(1, n)
+    if seepage is not None:  # a callable may give one law (n,) or sampled variants (variants, n)
+        q = q + np.asarray(seepage(grid), dtype=float).reshape(-1, n)
     inv = 1.0 / a
     inv_slope = np.append(np.diff(inv), 0.0)
     q_slope = np.concatenate([np.diff(q, axis=1), np.zeros((q.shape[0], 1))], axis=1)

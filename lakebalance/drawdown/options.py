@@ -26,7 +26,7 @@ class DemandRule(Options):
 class DrawdownOptions(Options):
     """``[drawdown]``: defaults of the drought forecast."""
 
-    scenario: Literal["replay", "percentile", "stochastic", "constant"] = "replay"
+    scenario: Literal["replay", "esp", "percentile", "stochastic", "constant"] = "replay"
     # ensemble size and horizon; the memory they need is checked when the forecast is made
     members: int = setting(1000, unit="members", low=1, high=MAX_MEMBERS)
     days: int = setting(365, unit="days", low=1, high=MAX_DAYS)
@@ -35,11 +35,19 @@ class DrawdownOptions(Options):
     demand: float | list[float] | None = setting(None, unit="m3/s", low=0.0)  # or 12 monthly
     environmental_release: float = setting(0.0, unit="m3/s", low=0.0)
     restriction: tuple[DemandRule, ...] = ()
-    sample_uncertainty: bool = False  # draw rating and evaporation errors per member
+    # draw the rating, evaporation and seepage errors per member (the outlook says which)
+    sample_uncertainty: bool = True
+    # run every scenario method (replay, esp, bootstrap, monthly) and show them side by side
+    compare_methods: bool = True
+    compare_members: int = setting(500, unit="members", low=20, high=MAX_MEMBERS)
     start: str | None = None  # ISO date of the start (default: last day with a recorded stage)
     start_stage: float | None = setting(None, unit="m")  # default: recorded stage that day
-    stochastic: Literal["bootstrap", "ar1"] = "bootstrap"  # model of the stochastic scenario
+    # model of the stochastic scenario: 30-day block bootstrap, daily seasonal AR(1), or the
+    # persistent periodic monthly AR(1) with fragments
+    stochastic: Literal["bootstrap", "ar1", "monthly"] = "bootstrap"
     block_days: int = setting(30, unit="days", low=1)  # block length of the bootstrap
+    # window before the start whose inflow conditions the esp weights
+    antecedent_days: int = setting(90, unit="days", low=7, high=3660)
     dead_level: str | None = None  # [levels] name below which draws stop (default "dead")
     rating_variants: int = setting(200, unit="ratings", low=1, high=MAX_RATING_VARIANTS)  # shared
     seepage: bool = True  # include the seepage law estimated from the balance residual

@@ -6,12 +6,18 @@ release, all in SI) into arrays ``(days, members)`` starting on the day after th
 * ``replay``: each historical year of the record is a member, its days taken from the same day of
   the year as the forecast days (a year is used when at least 80 % of its inflow days are known;
   the gaps are filled with the day-of-year climatology);
-* ``percentile``: inflow at a given non-exceedance for each day of the year (all years pooled in a
-  window of +-7 days), rain and evaporation at their day-of-year means;
+* ``percentile``: the trace whose accumulated inflow volume over the horizon has the stated
+  non-exceedance among the historical years (Weibull plotting position), a historical year's
+  daily pattern scaled to that volume, with that year's rain and evaporation;
+* ``esp``: the historical years as in ``replay``, weighted by the likeness of their inflow over
+  the days before the start to the present's (ensemble streamflow prediction, Day 1985; see
+  :mod:`.persistence`), the members shared out among the years by weight;
 * ``stochastic``: either a block bootstrap of the historical years (blocks of ``block_days``, each
   member drawing a year per block, all terms of a block from the same year so that dry inflow
   and high evaporation stay together), or a seasonal AR(1) model of the log inflow anomalies
-  fitted with statsmodels (rain and evaporation at their day-of-year means);
+  fitted with statsmodels (rain and evaporation at their day-of-year means), or the persistent
+  periodic monthly AR(1) of log inflow with days by fragments (:mod:`.persistence`, method
+  ``monthly``), which keeps the month-to-month memory that makes droughts long;
 * ``constant``: a given inflow (zero for the worst case), rain and evaporation at their
   day-of-year means.
 
@@ -35,13 +41,13 @@ import pandas as pd
 from ..errors import ConfigError
 from ..resources import check_memory
 
-__all__ = ["Forcing", "TERMS", "climatology", "build_forcing"]
+__all__ = ["Forcing", "TERMS", "climatology", "build_forcing", "horizon_volumes"]
 
 #: Columns of the history frame (SI): flows m³/s, depths m per day.
 TERMS = ("inflow_m3s", "rain_m", "evaporation_m", "withdrawal_m3s", "release_m3s")
 
-Scenario = Literal["replay", "percentile", "stochastic", "constant"]
-StochasticMethod = Literal["bootstrap", "ar1"]
+Scenario = Literal["replay", "esp", "percentile", "stochastic", "constant"]
+StochasticMethod = Literal["bootstrap", "ar1", "monthly"]
 
 _WINDOW_DAYS = 7  # half-width of the day-of-year window, days
 _MIN_COVERAGE = 0.8  # share of known inflow days that makes a year usable in replay/bootstrap
@@ -63,6 +69,23 @@ class Forcing:
     release_m3s: np.ndarray
     labels: tuple[str, ...]
     notes: tuple[str, ...] = field(default=())
+    #: what the members are: ``"years"`` (each member replays one historical year, listed in
+    #: :attr:`years` and indexed by :attr:`member_year`), ``"members"`` (generated from the
+    #: years: a bootstrap, a fitted model) or ``"scenario"`` (one constructed trace)
+    basis: str = "scenario"
+    #: the scenario method: replay, esp, bootstrap, ar1, monthly, percentile, constant
+    method: str = ""
+    #: the historical years behind the members
+    years: tuple[int, ...] = ()
+    #: independent historical years the ensemble stands on (None: none, a constructed trace);
+    #: for weighted years the effective number 1 / sum(w²) (Kish, 1965), rounded down
+    independent_years: int | None = None
+    #: (members,) index into :attr:`years` of each member's year (``basis == "years"``)
+    member_year: np.ndarray | None = field(default=None, repr=False)
+    #: (years,) weight of each year (``esp``; None: equal)
+    year_weights: np.ndarray | None = field(default=None, repr=False)
+    #: window (days) of the ESP conditioning
+    antecedent_days: int | None = None
 
     @property
     def members(self) -> int:
@@ -193,6 +216,7 @@ def build_forcing(
     inflow_m3s: float = 0.0,
     method: StochasticMethod = "bootstrap",
     block_days: int = 30,
+    antecedent_days: int = 90,
 ) -> Forcing:
     """The forcing arrays of a scenario.
 
@@ -205,7 +229,7 @@ def build_forcing(
         Forecast start day; the forcing covers the ``days`` days after it.
     days : int
         Horizon (days).
-    scenario : {"replay", "percentile", "stochastic", "constant"}
+    scenario : {"replay", "esp", "percentile", "stochastic", "constant"}
         See the module docstring.
     members : int
         Members of the stochastic scenario (others have one member per year, or one).
@@ -215,10 +239,12 @@ def build_forcing(
         Non-exceedance (%) of the inflow for ``percentile``.
     inflow_m3s : float
         The inflow of ``constant`` (m³/s).
-    method : {"bootstrap", "ar1"}
+    method : {"bootstrap", "ar1", "monthly"}
         The stochastic model.
     block_days : int
         Block length of the bootstrap (days).
+    antecedent_days : int
+        Window before the start whose inflow anomaly conditions the ``esp`` weights (days).
 
     Returns
     -------
@@ -232,7 +258,7 @@ def build_forcing(
             f"a horizon of {days:,} days from {pd.Timestamp(start).date()} ends after "
             f"{last.date()}, the last date the forecast can hold"
         )
-    if scenario == "stochastic":  # the five daily terms of every member
+    if scenario in ("stochastic", "esp"):  # the five daily terms of every member
         check_memory(
             5 * 8.0 * days * members,
             option="members",
@@ -247,7 +273,8 @@ def build_forcing(
     def flat(term: str, m: int) -> np.ndarray:
         return np.repeat(clim[term][doy][:, None], m, axis=1)
 
-    if scenario in ("replay", "stochastic") and not (scenario == "stochastic" and method == "ar1"):
+    extra: dict = {}
+    if scenario in ("replay", "esp") or (scenario == "stochastic" and method == "bootstrap"):
         years, mat, skipped = _year_matrix(history, dates)
         if not years:
             raise ConfigError(
@@ -262,6 +289,33 @@ def build_forcing(
             arrays = {t: mat[t].T.copy() for t in TERMS}
             labels = tuple(str(y) for y in years)
             notes.append(f"replay of {len(years)} historical years ({years[0]}-{years[-1]})")
+            extra = dict(
+                basis="years",
+                method="replay",
+                years=tuple(years),
+                independent_years=len(years),
+                member_year=np.arange(len(years)),
+            )
+        elif scenario == "esp":
+            from .persistence import allocate_members, esp_weights
+
+            w, note = esp_weights(history, years, dates[0] - pd.Timedelta(days=1), antecedent_days)
+            alloc = allocate_members(w, members)
+            arrays = {t: mat[t].T[:, alloc].copy() for t in TERMS}
+            labels = tuple(str(years[i]) for i in alloc)
+            n_eff = 1.0 / float(np.sum(w**2))
+            notes.append(
+                note + f"; {members} members shared out by weight, {n_eff:.1f} effective years"
+            )
+            extra = dict(
+                basis="years",
+                method="esp",
+                years=tuple(years),
+                independent_years=max(1, int(np.floor(n_eff + 1e-9))),
+                member_year=alloc,
+                year_weights=w,
+                antecedent_days=antecedent_days,
+            )
         else:
             if rng is None:
                 raise ValueError("the stochastic scenario needs a random generator")
@@ -274,29 +328,47 @@ def build_forcing(
             notes.append(
                 f"block bootstrap of {len(years)} historical years, blocks of {block_days} days"
             )
-    elif scenario == "stochastic":  # seasonal AR(1) of log inflow
+            extra = dict(
+                basis="members", method="bootstrap", years=tuple(years),
+                independent_years=len(years),
+            )  # fmt: skip
+    elif scenario == "stochastic" and method == "ar1":  # seasonal AR(1) of log inflow
         if rng is None:
             raise ValueError("the stochastic scenario needs a random generator")
-        arrays, note = _ar1(history, dates, members, rng)
+        arrays, note, n_years = _ar1(history, dates, members, rng)
         arrays.update({t: flat(t, members) for t in TERMS if t != "inflow_m3s"})
         labels = tuple(f"member {i + 1}" for i in range(members))
         notes.append(note)
+        extra = dict(basis="members", method="ar1", independent_years=n_years)
+    elif scenario == "stochastic" and method == "monthly":
+        if rng is None:
+            raise ValueError("the stochastic scenario needs a random generator")
+        from .persistence import monthly_generator
+
+        gen = monthly_generator(history, dates, members, rng)
+        arrays = gen.arrays
+        labels = tuple(f"member {i + 1}" for i in range(members))
+        notes.append(gen.note)
+        extra = dict(
+            basis="members", method="monthly", years=gen.years,
+            independent_years=len(gen.years),
+        )  # fmt: skip
+    elif scenario == "stochastic":
+        raise ConfigError(f"unknown stochastic model {method!r}: bootstrap, ar1 or monthly")
     elif scenario == "percentile":
         inflow = history["inflow_m3s"] if "inflow_m3s" in history.columns else None
         if inflow is None or not inflow.notna().any():
             raise ConfigError("the 'percentile' scenario needs an inflow record")
-        q = climatology(inflow, statistic="quantile", q=percentile / 100.0)
-        arrays = {t: flat(t, 1) for t in TERMS}
-        arrays["inflow_m3s"] = np.nan_to_num(q, nan=0.0)[doy][:, None]
-        labels = (f"p{percentile:g}",)
-        notes.append(
-            f"inflow at {percentile:g}% non-exceedance by day of year; other terms at their means"
-        )
+        arrays, label, note, n_years = _volume_percentile(history, dates, percentile)
+        labels = (label,)
+        notes.append(note)
+        extra = dict(method="percentile", independent_years=None)
     elif scenario == "constant":
         arrays = {t: flat(t, 1) for t in TERMS}
         arrays["inflow_m3s"] = np.full((days, 1), float(inflow_m3s))
         labels = (f"inflow {inflow_m3s:g} m3/s",)
         notes.append(f"constant inflow {inflow_m3s:g} m3/s; other terms at their day-of-year means")
+        extra = dict(method="constant")
     else:
         raise ConfigError(f"unknown scenario {scenario!r}")
     return Forcing(
@@ -308,14 +380,75 @@ def build_forcing(
         release_m3s=np.maximum(arrays["release_m3s"], 0.0),
         labels=labels,
         notes=tuple(notes),
+        **extra,
     )
+
+
+def horizon_volumes(inflow_m3s: np.ndarray) -> np.ndarray:
+    """Accumulated inflow volume of each member over the horizon (m³): the sum of the daily mean
+    flows (m³/s, array ``(days, members)``) times 86,400 s."""
+    return np.asarray(inflow_m3s, dtype=float).sum(axis=0) * 86_400.0
+
+
+def _volume_percentile(
+    history: pd.DataFrame, dates: pd.DatetimeIndex, percentile: float
+) -> tuple[dict[str, np.ndarray], str, str, int]:
+    """The trace whose inflow volume over the horizon has the stated non-exceedance.
+
+    The historical years aligned on the forecast's days (as in ``replay``) give n horizon
+    volumes; the target is their ``percentile`` quantile by the Weibull plotting position
+    i/(n+1) (``numpy.quantile(method="weibull")``; Weibull 1939, the usual plotting position of
+    hydrology), which stays at the driest or wettest year outside 1/(n+1)..n/(n+1). The year
+    whose volume is nearest the target gives the pattern; its daily inflow is scaled so that the
+    horizon volume equals the target exactly, and its rain, evaporation, withdrawals and
+    releases are kept as they were (one trace).
+    """
+    years, mat, _ = _year_matrix(history, dates)
+    if not years:
+        raise ConfigError(
+            f"the 'percentile' scenario needs at least one historical year with {_MIN_COVERAGE:.0%}"
+            f" of its inflow days recorded over the {len(dates)} forecast days of the year"
+        )
+    vol = horizon_volumes(mat["inflow_m3s"].T)
+    n = len(years)
+    target = float(np.quantile(vol, percentile / 100.0, method="weibull"))
+    k = int(np.argmin(np.abs(vol - target)))
+    scale = target / vol[k] if vol[k] > 0 else 1.0
+    arrays = {t: mat[t][k][:, None].copy() for t in TERMS}
+    arrays["inflow_m3s"] = arrays["inflow_m3s"] * scale
+    label = f"p{percentile:g} of horizon inflow volume ({years[k]} scaled x{scale:.3f})"
+    note = (
+        f"percentile scenario: the inflow volume over the {len(dates)} days at "
+        f"{percentile:g}% non-exceedance among {n} historical years (Weibull plotting position "
+        f"i/(n+1)), {target:.4g} m3; daily pattern, rain and evaporation of {years[k]}, its inflow "
+        f"scaled by {scale:.3f}"
+    )
+    lo, hi = 100.0 / (n + 1), 100.0 * n / (n + 1)
+    if not lo <= percentile <= hi:
+        note += (
+            f"; {n} years resolve non-exceedances from {lo:.0f} to {hi:.0f}% only, so this is the "
+            f"{'driest' if percentile < lo else 'wettest'} year of the record, not a "
+            f"{percentile:g}% volume"
+        )
+    return arrays, label, note, n
+
+
+def _anomaly_at(z: pd.Series, start: pd.Timestamp) -> tuple[float, pd.Timestamp | None]:
+    """The anomaly on ``start``, or the last one recorded up to 3 days before it; (0, None) when
+    there is none. The record may go on after ``start`` (a forecast started inside the record):
+    those later values are never used."""
+    known = z.loc[: pd.Timestamp(start)]
+    if known.empty or known.index[-1] < pd.Timestamp(start) - pd.Timedelta(days=3):
+        return 0.0, None
+    return float(known.iloc[-1]), pd.Timestamp(known.index[-1])
 
 
 def _ar1(
     history: pd.DataFrame, dates: pd.DatetimeIndex, members: int, rng: np.random.Generator
-) -> tuple[dict[str, np.ndarray], str]:
+) -> tuple[dict[str, np.ndarray], str, int]:
     """Seasonal AR(1) of log inflow: z = (log(Q + eps) - mu(doy)) / sd(doy), z_t = phi z_{t-1}
-    + e_t with e ~ N(0, sigma^2) of the fit, started from the last observed anomaly."""
+    + e_t with e ~ N(0, sigma^2) of the fit, started from the anomaly on the forecast's start day
+    (the last one recorded up to 3 days before it; the mean when there is none)."""
     from statsmodels.tsa.ar_model import AutoReg
 
     q = history["inflow_m3s"] if "inflow_m3s" in history.columns else None
@@ -338,7 +471,7 @@ def _ar1(
     phi = float(np.clip(fit.params[0], -0.999, 0.999))
     innov = float(np.sqrt(max(fit.sigma2, 1e-12)))
     days = len(dates)
-    z0 = float(z.iloc[-1]) if z.index[-1] >= dates[0] - pd.Timedelta(days=3) else 0.0
+    z0, z0_date = _anomaly_at(z, dates[0] - pd.Timedelta(days=1))
     e = rng.standard_normal((days, members)) * innov
     sim = np.empty((days, members))
     prev = np.full(members, z0)
@@ -347,5 +480,10 @@ def _ar1(
         sim[d] = prev
     doy = _doy(dates)
     inflow = np.exp(mu[doy][:, None] + sd[doy][:, None] * sim) - eps
-    note = f"seasonal AR(1) of log inflow: phi = {phi:.3f}, innovation sd = {innov:.3f}"
-    return {"inflow_m3s": np.maximum(inflow, 0.0)}, note
+    n_years = max(1, int(run.size // 365))
+    note = f"seasonal AR(1) of log inflow: phi = {phi:.3f}, innovation sd = {innov:.3f}, " + (
+        f"started from the anomaly of {z0_date.date()} ({z0:+.2f} sd)"
+        if z0_date is not None
+        else "started from the mean (no inflow recorded within 3 days before the start)"
+    )
+    return {"inflow_m3s": np.maximum(inflow, 0.0)}, note, n_years

@@ -915,7 +915,7 @@ def build_sections(run: Lake, year: int) -> tuple[list[Section], dict[str, Any],
         head.update(_dynamics_headline(run))
     summary = _year_in_words(run, head, previous)
     if run.get("forecast") is not None:
-        summary += list(_forecast_sentences(run))[:3]
+        summary += run.get("forecast").key_sentences(3)
     return sections, head, summary
 
 
@@ -1155,6 +1155,8 @@ def _dynamics_section(run: Lake) -> Section:
 def _drawdown_section(run: Lake) -> Section:
     if run.get("forecast") is None:
         return Section("drawdown", "Drought drawdown outlook", missing=_missing(run, "forecast"))
+    from ..drawdown.forecast import METHOD_WORDS
+    from ..drawdown.support import MIN_YEARS_FOR_CHANCE
     from .figures_drawdown import fan_chart
 
     fc = run.get("forecast")
@@ -1163,36 +1165,63 @@ def _drawdown_section(run: Lake) -> Section:
             "level": o.name,
             "stage_m": o.stage_m,
             "direction": o.direction,
+            "years_reached": (
+                f"{o.years_reached} of {o.years_total}" if o.years_reached is not None else ""
+            ),
             "probability_pct": 100.0 * o.probability,
+            "interval_low_pct": np.nan if o.interval is None else 100.0 * o.interval[0],
+            "interval_high_pct": np.nan if o.interval is None else 100.0 * o.interval[1],
             "days_10pct": o.days_10,
             "days_50pct": o.days_50,
             "days_90pct": o.days_90,
         }
         for o in fc.odds
     ]
-    odds = pd.DataFrame(
-        rows,
-        columns=[
-            "level",
-            "stage_m",
-            "direction",
-            "probability_pct",
-            "days_10pct",
-            "days_50pct",
-            "days_90pct",
-        ],
-    )
+    odds = pd.DataFrame(rows)
+    if not any(r["years_reached"] for r in rows):
+        odds = odds.drop(columns="years_reached")
     for c in ("days_10pct", "days_50pct", "days_90pct"):
         odds[c] = odds[c].astype(float)
+    basis = (
+        f"{fc.independent_years} independent historical years"
+        if fc.independent_years
+        else "one constructed trace"
+    )
     tables = [
         table(
             "drawdown-odds",
-            f"Chance of reaching each named level within {fc.days} days of {fc.start}, and the "
-            "days by which 10, 50 and 90 % of the members have reached it",
+            f"Share of the {fc.members:,} runs reaching each named level within {fc.days} days of "
+            f"{fc.start} ({basis}), its exact binomial 95 % interval on those years, and the days "
+            "by which 10, 50 and 90 % of the runs have reached it (blank where the years cannot "
+            "support that share)",
             odds,
-            {"stage_m": 2, "probability_pct": 0, "days_10pct": 0, "days_50pct": 0, "days_90pct": 0},
-        ),
+            {
+                "stage_m": 2,
+                "probability_pct": 0,
+                "interval_low_pct": 0,
+                "interval_high_pct": 0,
+                "days_10pct": 0,
+                "days_50pct": 0,
+                "days_90pct": 0,
+            },
+        ),  # fmt: skip
     ]
+    if fc.method_spread:
+        spread = fc.method_spread_frame().reset_index()
+        for k in (o.name for o in fc.odds):  # highest level first, as in the odds table
+            if k in spread.columns:
+                spread[f"{k}_pct"] = 100.0 * spread.pop(k).astype(float)
+        spread["independent_years"] = spread["independent_years"].astype("Int64")
+        tables.append(
+            table(
+                "drawdown-methods",
+                f"The scenario methods side by side: share of runs (%) reaching each level within "
+                f"{fc.days} days, with the members and the independent historical years behind "
+                "each; their spread is part of the uncertainty",
+                spread,
+                1,
+            )
+        )
     if fc.unrestricted is not None:
         eff = fc.restriction_effect().reset_index()
         for c in eff.columns[1:]:
@@ -1218,8 +1247,10 @@ def _drawdown_section(run: Lake) -> Section:
     if skill_table is not None:
         tables.append(skill_table)
     paragraphs = [
-        f"Scenario {fc.scenario}, {fc.members} members from {fc.start} at stage "
-        f"{fc.start_stage_m:.2f} m, seed {fc.seed}.",
+        f"Scenario {fc.scenario} ({METHOD_WORDS.get(fc.method, fc.method)}), {fc.members:,} "
+        f"runs on {basis}, from {fc.start} at stage {fc.start_stage_m:.2f} m, seed {fc.seed}. "
+        f"A share is called a chance only from {MIN_YEARS_FOR_CHANCE} independent years; a "
+        "percentile or band is shown only where at least one independent year lies beyond it.",
         *_forecast_sentences(run),
         *skill_text,
         *fc.notes,
@@ -1232,8 +1263,8 @@ def _drawdown_section(run: Lake) -> Section:
         figures=(
             Figure(
                 "fan",
-                "Forecast stage: median and 50, 80 and 90 % bands of the ensemble, "
-                "with the named levels.",
+                "Forecast stage: median and the 50, 80 and 90 % bands of the runs where the "
+                "independent years support them, with the named levels.",
                 _png(fig),
                 "Fan chart of forecast stage",
             ),
