@@ -14,6 +14,28 @@ __all__ = ["OutletComponent", "OutletOptions"]
 MAX_BOOTSTRAP = 100_000  # refits; percentile intervals settle within a few thousand
 
 
+def _prior_rule(value) -> str | None:
+    """A prior table: parameter -> [value, standard error], the error positive and finite."""
+    import math
+
+    if not isinstance(value, dict):
+        return "be a table of parameter = [value, standard error]"
+    for key, pair in value.items():
+        if (
+            not isinstance(pair, list | tuple)
+            or len(pair) != 2
+            or not all(isinstance(x, int | float) and not isinstance(x, bool) for x in pair)
+        ):
+            return f"give '{key}' as [value, standard error]"
+        if not (math.isfinite(pair[0]) and math.isfinite(pair[1]) and pair[1] > 0):
+            return f"give '{key}' a finite value and a positive standard error"
+    return None
+
+
+def _priors() -> dict:
+    return setting(default_factory=dict, unit="SI units of each parameter", rule=_prior_rule)
+
+
 @dataclass(frozen=True)
 class OutletComponent(Options):
     """``[[outlet.component]]``: one control of a compound outlet (acting in parallel)."""
@@ -28,6 +50,8 @@ class OutletComponent(Options):
         None, unit="degrees", low=0.0, high=180.0, low_open=True, high_open=True
     )  # V-notch angle
     upper: float | None = setting(None, unit="m")  # segmented rating: applies up to this stage
+    # parameter -> [value, standard error] (SI), from a handbook or the drawings
+    priors: dict[str, list[float]] = _priors()
 
 
 @dataclass(frozen=True)
@@ -56,6 +80,8 @@ class OutletOptions(Options):
         None, unit="degrees", low=0.0, high=180.0, low_open=True, high_open=True
     )  # V-notch angle
     component: tuple[OutletComponent, ...] = ()  # compound/segmented controls
+    # parameter -> [value, standard error] (SI), from a handbook or the drawings
+    priors: dict[str, list[float]] = _priors()
     shift_date: str | None = None  # ISO date for a before/after rating-shift test
     bootstrap: int = setting(0, unit="refits", low=0, high=MAX_BOOTSTRAP)  # 0 = delta method only
 
@@ -66,12 +92,14 @@ class OutletOptions(Options):
         from .fit import FitOptions
 
         fixed, initial, bounds = dict(self.fixed), dict(self.initial), {}
+        priors = {k: tuple(v) for k, v in self.priors.items()}
         for key, pair in self.bounds.items():
             bounds[key] = tuple(pair)
         for comp in self.component:
             fixed.update({f"{comp.name}.{k}": v for k, v in comp.fixed.items()})
             initial.update({f"{comp.name}.{k}": v for k, v in comp.initial.items()})
             bounds.update({f"{comp.name}.{k}": tuple(v) for k, v in comp.bounds.items()})
+            priors.update({f"{comp.name}.{k}": tuple(v) for k, v in comp.priors.items()})
         for key, pair in bounds.items():
             if len(pair) != 2:
                 raise ConfigError(
@@ -83,4 +111,5 @@ class OutletOptions(Options):
             initial=initial,
             bounds=bounds,
             bootstrap=self.bootstrap,
+            priors=priors,
         )
