@@ -8,6 +8,7 @@ the profile t interval (Bates & Watts 1988), or simulated gaugings from known pa
 
 from __future__ import annotations
 
+import sys
 import warnings
 
 import numpy as np
@@ -299,3 +300,32 @@ def test_several_shift_dates_give_periods_between_them_with_holm():
     ]
     assert test.periods["shifted"].iloc[-1]
     assert (test.periods["p_holm"] >= test.periods["p_value"]).all()
+
+
+# ---- coverage on simulated gaugings (small and seeded; the full study is in validation/) ----------
+def _coverage_module():
+    import importlib.util
+    from pathlib import Path
+
+    path = Path(__file__).resolve().parents[1] / "validation" / "rating_coverage.py"
+    spec = importlib.util.spec_from_file_location("rating_coverage", path)
+    module = importlib.util.module_from_spec(spec)
+    sys.modules[spec.name] = module  # dataclasses look their module up there
+    spec.loader.exec_module(module)
+    return module
+
+
+@pytest.mark.parametrize(("case", "replicates"), [("weir", 80), ("sparse-spillway", 50)])
+def test_seeded_interval_coverage_on_known_laws(case, replicates):
+    """Gaugings simulated from known laws (validation/rating_coverage.py): every free parameter's
+    95 % interval (Wald, or profile likelihood for the weakly constrained spillway coefficient)
+    holds the truth in at least 86 % of the replicates (nominal 95 %; with 50-80 replicates the binomial sd is 2.4-3.1 points, so 86 % is about
+    three sd below). The 400-replicate study gives 93-96 % on every case."""
+    mod = _coverage_module()
+    chosen = [c for c in mod.CASES if c.name == case]
+    rows = mod.coverage_table(replicates, seed=7, cases=chosen)
+    for _, name, done, cov, _, _ in rows:
+        assert done == replicates
+        assert cov >= 0.86, (name, cov)
+    if case == "sparse-spillway":
+        assert any(prof > 0.5 for *_, prof in rows)  # the profile intervals were exercised

@@ -724,7 +724,8 @@ class _Problem:
         p = self.full_params(theta)
         g = np.stack(np.broadcast_arrays(*self.law.gradient(p, self.h)), axis=-1)[:, self.free]
         if self.log:
-            g = g / self.law.discharge(p, self.h)[:, None]
+            with np.errstate(divide="ignore", invalid="ignore"):
+                g = g / self.law.discharge(p, self.h)[:, None]
         jac = -self.sw[:, None] * g
         if self.prior_at.size == 0:
             return jac
