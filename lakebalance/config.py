@@ -97,7 +97,8 @@ class SeriesSpec(Options):
     time: str | None = None  # optional separate time-of-day column
     name: str | None = None  # label when a role has several series (default: file stem)
     format: str | None = None  # strftime format of the dates, e.g. "%d/%m/%Y %H:%M"
-    dayfirst: bool = False  # 03/04/2020 is 3 April when true
+    # 03/04/2020 is 3 April when true; inferred from the dates when absent (a field above 12)
+    dayfirst: bool | None = None
     delimiter: str | None = None  # CSV field delimiter (sniffed when absent)
     decimal: str = "."  # decimal mark ("," for decimal comma)
     # thousands separator of the numbers ("," "." " " or "'"); none when absent

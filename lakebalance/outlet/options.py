@@ -68,7 +68,7 @@ class OutletOptions(Options):
     delimiter: str | None = None
     decimal: str = "."
     encoding: str | None = None  # text encoding of a CSV table (UTF-8 when absent)
-    dayfirst: bool = False
+    dayfirst: bool | None = None  # day/month order of the dates; inferred when absent
     form: Literal["power", "weir", "vnotch", "orifice", "compound", "segmented"] = "power"
     residuals: Literal["log", "linear"] = "log"
     weights: str | None = None  # optional gaugings column of weights
