@@ -76,7 +76,8 @@ class SiteInfo(Options):
     # first month of the reporting year (1 = calendar year)
     water_year_start: int = setting(1, unit="month", low=1, high=12)
     timezone: str = "UTC"  # IANA zone whose midnight bounds a day
-    seed: int = 12345  # seed for every random draw unless the command line gives one
+    # seed for every random draw unless the command line gives one (numpy takes 0 to 2**128-1)
+    seed: int = setting(12345, unit="-", low=0)
 
 
 def _thousands_rule(value: str) -> str | None:
@@ -320,10 +321,15 @@ def _build(cls: type, table: Any, ctx: _Ctx, where: str) -> Any:
             raise ctx.error(f"missing required key '{name}' in [{where}]", where)
     try:
         return cls(**kwargs)
-    except OptionError as exc:  # a declared range: the key's own line
+    except OptionError as exc:  # a declared range: an OptionError on the key's own line
         name = exc.option
         full = f"{where}.{name}" if where else name
-        raise ctx.error(exc.message.replace(f"'{name}'", f"'{full}'", 1), where, name) from None
+        raise OptionError(
+            name,
+            exc.message.replace(f"'{name}'", f"'{full}'", 1),
+            file=ctx.path,
+            line=ctx.line_of(where, name),
+        ) from None
 
 
 def quantity(value: float | str, unit: str, kind: str, what: str) -> float:

@@ -43,10 +43,12 @@ from typing import TYPE_CHECKING, Any, Literal
 import numpy as np
 
 from ..errors import ConfigError, DataQualityWarning, FitError, suggest
+from ..options import Options, setting
 from ..resources import check_memory
 from ..results import Summary, estimate
 from .laws import GaugedStages, Law, Rating, discharge_with
 from .nls import covariance_from_jacobian, solve_least_squares
+from .options import MAX_BOOTSTRAP
 
 if TYPE_CHECKING:  # pragma: no cover
     import pandas as pd
@@ -71,7 +73,7 @@ Residuals = Literal["log", "linear"]
 
 
 @dataclass(frozen=True)
-class FitOptions:
+class FitOptions(Options):
     """How a rating is fitted.
 
     Parameters
@@ -95,7 +97,7 @@ class FitOptions:
     fixed: Mapping[str, float] = field(default_factory=dict)
     initial: Mapping[str, float] = field(default_factory=dict)
     bounds: Mapping[str, tuple[float | None, float | None]] = field(default_factory=dict)
-    bootstrap: int = 0
+    bootstrap: int = setting(0, unit="refits", low=0, high=MAX_BOOTSTRAP)
     priors: Mapping[str, tuple[float, float]] = field(default_factory=dict)
 
 
