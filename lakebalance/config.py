@@ -196,10 +196,22 @@ class _Ctx:
             for i, ln in enumerate(self.lines):
                 if re.match(rf"^\s*(\w+\.)*{re.escape(key)}\s*=", ln):
                     return i + 1
+        if header is None and len(parts) > 1:  # a key of an inline table: the table's line
+            return self.line_of(".".join(parts[:-1]), parts[-1])
         return None if header is None else header + 1
 
     def error(self, msg: str, where: str, key: str | None = None) -> ConfigError:
         return ConfigError(msg, file=self.path, line=self.line_of(where, key))
+
+
+def site_key_line(site: Site, where: str, key: str | None = None) -> int | None:
+    """Best-effort line of ``key`` in table ``where`` (dotted, e.g. ``"outlet"``) of the site
+    file, for an error found after loading (None when the file cannot be read again)."""
+    try:
+        text = site.path.read_text(encoding="utf-8-sig")
+    except OSError:
+        return None
+    return _Ctx(site.path, text).line_of(where, key)
 
 
 def _type_name(tp: Any) -> str:

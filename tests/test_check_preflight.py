@@ -133,11 +133,24 @@ def test_check_rejects_an_outlet_definition_the_rating_rejects(tmp_path, capsys)
         for m, h in zip(range(1, 13), np.linspace(0.5, 2.0, 12))
     )
     path = site(tmp_path, gaugings=body, extra='form = "power"\nfixed = { q = 1.0 }\n')
+    key_line = path.read_text().splitlines().index("fixed = { q = 1.0 }") + 1
     code, _, err = run(capsys, "check", path)
     line = one_error(err)
     assert code == 2 and "unknown parameter 'q'" in line
+    assert f"site.toml:{key_line}:" in line  # the key's own line
     code2, _, err2 = run(capsys, "rating", path)
     assert one_error(err2) == line
+
+
+def test_check_reads_the_comparison_survey_as_storage_does(tmp_path, capsys):
+    path = site(tmp_path, storage=STORAGE)
+    (tmp_path / "old.csv").write_text("level,surface\n9,0\n10,500\n10,900\n", encoding="utf-8")
+    path.write_text(
+        path.read_text().replace('area = "surface"\n', 'area = "surface"\ncompare = "old.csv"\n')
+    )
+    code, _, err = run(capsys, "check", path)
+    line = one_error(err)
+    assert code == 2 and "old.csv:4:level" in line and "repeated stage" in line
 
 
 def test_check_fits_good_gaugings_and_says_so(tmp_path, capsys):

@@ -15,7 +15,7 @@ import typing
 import pytest
 
 from lakebalance import config
-from lakebalance.errors import OptionError
+from lakebalance.errors import ConfigError, OptionError
 from lakebalance.outlet.options import OutletComponent
 
 REQUIRED = {  # the keys a section cannot be built without (values need not exist on disk)
@@ -130,3 +130,35 @@ def test_fit_options_check_their_bootstrap_range():
 
     with pytest.raises(OptionError, match="bootstrap"):
         FitOptions(bootstrap=-1)
+
+
+@pytest.mark.parametrize(
+    ("entry", "words"),
+    [
+        ("bounds = { b = [2.0, 1.0] }", "lower bound not above"),
+        ("bounds = { b = [1.0] }", "[lower, upper]"),
+        ("priors = { b = [1.6, 0.0] }", "positive standard error"),
+        ("priors = { b = 1.6 }", "must be a list"),  # a type error: ConfigError, same line
+    ],
+)
+def test_outlet_tables_of_parameters_are_checked_on_their_line(tmp_path, entry, words):
+    text = f'[site]\nname = "Invented Mere"\n\n[outlet]\ngaugings = "g.csv"\n{entry}\n'
+    path = tmp_path / "site.toml"
+    path.write_text(text, encoding="utf-8")
+    with pytest.raises(ConfigError, match=words.replace("[", r"\[")) as exc:
+        config.load_site(path)
+    assert exc.value.line == 6
+    assert isinstance(exc.value, OptionError) == ("must be a list" not in words)
+
+
+def test_component_priors_are_checked_on_their_line(tmp_path):
+    text = (
+        '[site]\nname = "Invented Mere"\n[outlet]\nform = "compound"\n'
+        '[[outlet.component]]\nname = "spillway"\nform = "weir"\nlength = 12.0\n'
+        "priors = { Cw = [1.7, -0.1] }\n"
+    )
+    path = tmp_path / "site.toml"
+    path.write_text(text, encoding="utf-8")
+    with pytest.raises(OptionError) as exc:
+        config.load_site(path)
+    assert exc.value.line == 9 and "priors" in exc.value.message

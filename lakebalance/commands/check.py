@@ -70,6 +70,13 @@ def _preflight(lake) -> dict:
             "max_stage_m": curve.max_stage_m,
             "max_volume_m3": curve.max_volume_m3,
         }
+    if curve is not None and site.storage.compare is not None:
+        other = lake.survey(site.storage.compare)  # `storage` compares with it: read it now
+        out["storage"]["compare"] = {
+            "source": other.source,
+            "min_stage_m": other.min_stage_m,
+            "max_stage_m": other.max_stage_m,
+        }
     if site.outlet is not None:
         fit = lake.rating  # reads the gaugings, builds the law and fits it: raises as `rating`
         out["rating"] = {

@@ -42,7 +42,7 @@ from typing import TYPE_CHECKING, Any, Literal
 
 import numpy as np
 
-from ..errors import ConfigError, DataQualityWarning, FitError, suggest
+from ..errors import ConfigError, DataQualityWarning, FitError, OptionError, suggest
 from ..options import Options, setting
 from ..resources import check_memory
 from ..results import Summary, estimate
@@ -554,9 +554,10 @@ class RatingFit:
 def _check_names(names: tuple[str, ...], given: Mapping[str, Any], what: str) -> None:
     for key in given:
         if key not in names:
-            raise ConfigError(
+            raise OptionError(
+                what,
                 f"rating: unknown parameter '{key}' in '{what}'{suggest(key, names)}; "
-                f"parameters are {', '.join(names)}"
+                f"parameters are {', '.join(names)}",
             )
 
 
@@ -654,7 +655,9 @@ def _bounds(law: Law, stages: GaugedStages, options: FitOptions) -> tuple[Array,
         if bhi is not None:
             hi[idx] = min(hi[idx], float(bhi))
         if lo[idx] > hi[idx]:
-            raise ConfigError(f"rating: bounds of '{key}' leave no room ([{lo[idx]}, {hi[idx]}])")
+            raise OptionError(
+                "bounds", f"rating: bounds of '{key}' leave no room ([{lo[idx]}, {hi[idx]}])"
+            )
     return lo, hi
 
 
@@ -1068,7 +1071,7 @@ def _check_priors(options: FitOptions) -> dict[str, tuple[float, float]]:
                 f"rating: the prior of '{name}' must be [value, standard error], got {pair!r}"
             ) from None
         if name in options.fixed:
-            raise ConfigError(f"rating: '{name}' is fixed; it cannot also have a prior")
+            raise OptionError("priors", f"rating: '{name}' is fixed; it cannot also have a prior")
         if not (np.isfinite(mean) and np.isfinite(sd) and sd > 0):
             raise ConfigError(
                 f"rating: the prior of '{name}' needs a finite value and a positive standard "

@@ -32,6 +32,26 @@ def _prior_rule(value) -> str | None:
     return None
 
 
+def _bounds_rule(value) -> str | None:
+    """A bounds table: parameter -> [lower, upper], lower not above upper."""
+    if not isinstance(value, dict):
+        return "be a table of parameter = [lower, upper]"
+    for key, pair in value.items():
+        if (
+            not isinstance(pair, list | tuple)
+            or len(pair) != 2
+            or not all(isinstance(x, int | float) and not isinstance(x, bool) for x in pair)
+        ):
+            return f"give '{key}' as [lower, upper]"
+        if pair[0] > pair[1]:
+            return f"give '{key}' a lower bound not above its upper bound"
+    return None
+
+
+def _bounds() -> dict:
+    return setting(default_factory=dict, unit="SI units of each parameter", rule=_bounds_rule)
+
+
 def _priors() -> dict:
     return setting(default_factory=dict, unit="SI units of each parameter", rule=_prior_rule)
 
@@ -44,7 +64,7 @@ class OutletComponent(Options):
     form: Literal["power", "weir", "vnotch", "orifice"] = "power"
     fixed: dict[str, float] = field(default_factory=dict)  # parameter -> value (SI)
     initial: dict[str, float] = field(default_factory=dict)  # parameter -> starting value (SI)
-    bounds: dict[str, list[float]] = field(default_factory=dict)  # parameter -> [lo, hi] (SI)
+    bounds: dict[str, list[float]] = _bounds()  # parameter -> [lo, hi] (SI)
     length: float | None = setting(None, unit="m", low=0.0, low_open=True)  # weir crest length
     angle: float | None = setting(
         None, unit="degrees", low=0.0, high=180.0, low_open=True, high_open=True
@@ -74,7 +94,7 @@ class OutletOptions(Options):
     weights: str | None = None  # optional gaugings column of weights
     fixed: dict[str, float] = field(default_factory=dict)  # single-law form: parameter -> SI value
     initial: dict[str, float] = field(default_factory=dict)
-    bounds: dict[str, list[float]] = field(default_factory=dict)
+    bounds: dict[str, list[float]] = _bounds()
     length: float | None = setting(None, unit="m", low=0.0, low_open=True)  # weir crest length
     angle: float | None = setting(
         None, unit="degrees", low=0.0, high=180.0, low_open=True, high_open=True
