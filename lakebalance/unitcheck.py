@@ -61,7 +61,9 @@ def _centre(lo: float, hi: float, kind: str) -> float:
     return math.sqrt(lo * hi)
 
 
-def intended_unit(role: str, daily_si: np.ndarray, declared: str) -> str | None:
+def intended_unit(
+    role: str, daily_si: np.ndarray, declared: str, *, label: str | None = None
+) -> str | None:
     """A warning when the series looks read in the wrong unit, naming the likely intended one.
 
     Parameters
@@ -72,6 +74,8 @@ def intended_unit(role: str, daily_si: np.ndarray, declared: str) -> str | None:
         Daily values in the internal unit of the role's kind.
     declared : str
         The unit the series was declared (and read) in.
+    label : str, optional
+        Words for the values in the message (default: the role's label).
 
     Returns
     -------
@@ -109,7 +113,7 @@ def intended_unit(role: str, daily_si: np.ndarray, declared: str) -> str | None:
     unit = INTERNAL_UNITS[r.kind]
     median = float(np.median(x))
     text = (
-        f"{r.label} read in {declared!r} has typical daily values of {median:.3g} {unit}, "
+        f"{label or r.label} read in {declared!r} has typical daily values of {median:.3g} {unit}, "
         f"wholly outside the plausible {lo:g} to {hi:g} {unit}"
     )
     if not fits:
@@ -120,7 +124,7 @@ def intended_unit(role: str, daily_si: np.ndarray, declared: str) -> str | None:
 
 
 def stage_unit_against_storage(
-    stage_m: np.ndarray, declared: str, low_m: float, high_m: float
+    stage_m: np.ndarray, declared: str, low_m: float, high_m: float, *, what: str = "stage"
 ) -> str | None:
     """A warning when a stage series lies wholly outside the storage relation but would lie
     inside it read in another length unit (e.g. feet declared as metres).
@@ -133,6 +137,8 @@ def stage_unit_against_storage(
         The unit the stage was declared in.
     low_m, high_m : float
         Stage range of the storage relation, m.
+    what : str
+        Words for the stages in the message (``"stage"``, ``"gauging stages"``).
     """
     x = np.asarray(stage_m, dtype=float)
     x = x[np.isfinite(x)]
@@ -145,7 +151,7 @@ def stage_unit_against_storage(
         return None
     raw = (x - own[1]) / own[0]
     text = (
-        f"stage read in {declared!r} ({np.percentile(x, 5):.4g} to {np.percentile(x, 95):.4g} m) "
+        f"{what} read in {declared!r} ({np.percentile(x, 5):.4g} to {np.percentile(x, 95):.4g} m) "
         f"lies wholly outside the storage relation ({low_m:.4g} to {high_m:.4g} m)"
     )
     for cand in CANDIDATES["length"]:

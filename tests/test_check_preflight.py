@@ -253,3 +253,26 @@ def test_unit_check_is_quiet_on_plausible_series_and_names_rain_in_metres():
     # the same numbers typed as mm while they were m: a thousand times too small
     note = intended_unit("rain", rain_m * 1e-3, "mm")
     assert note is not None and "'m' intended?" in note
+
+
+def _gaugings_text(h, q):
+    dates = pd.date_range("2020-01-01", periods=len(h), freq="MS")
+    return "date,stage,discharge\n" + "".join(
+        f"{d:%Y-%m-%d},{a:.3f},{b:.6g}\n" for d, a, b in zip(dates, h, q)
+    )
+
+
+def test_gaugings_in_millilitres_per_day_and_stages_in_feet_warn(tmp_path, capsys):
+    """The gaugings get the same unit checks as the series: a discharge typed 'ml/d' for
+    'ML/d', and gauging stages in feet declared as metres against the storage relation."""
+    h = np.linspace(10.2, 11.8, 14)
+    q_mld = 86.4 * 4 * (h - 10.0) ** 1.6  # ML/d (1 m³/s = 86.4 ML/d)
+    path = site(tmp_path, gaugings=_gaugings_text(h, q_mld), storage=STORAGE)
+    path.write_text(path.read_text() + 'discharge_units = "ml/d"\n')
+    code, _, err = run(capsys, "check", path)
+    assert code == 0 and "gauged discharge read in 'ml/d'" in err and "'ML/d' intended?" in err
+    path2 = site(
+        tmp_path, gaugings=_gaugings_text(h / 0.3048, 4 * (h - 10.0) ** 1.6), storage=STORAGE
+    )
+    code, _, err = run(capsys, "check", path2)
+    assert code == 0 and "gauging stages read in 'm'" in err and "'ft' it would lie inside" in err

@@ -79,6 +79,18 @@ def _preflight(lake) -> dict:
         }
     if site.outlet is not None:
         fit = lake.rating  # reads the gaugings, builds the law and fits it: raises as `rating`
+        if curve is not None:
+            from ..unitcheck import stage_unit_against_storage
+
+            note = stage_unit_against_storage(
+                fit.table["stage_m"].to_numpy(),
+                site.outlet.stage_units,
+                curve.min_stage_m,
+                curve.max_stage_m,
+                what="gauging stages",
+            )
+            if note:
+                warnings.warn(f"gaugings: {note}", DataQualityWarning, stacklevel=2)
         out["rating"] = {
             "form": fit.form,
             "gaugings": fit.n,

@@ -169,6 +169,15 @@ def read_gaugings(options: OutletOptions) -> Gaugings:
         stage, flow, table["_line"].to_numpy(), Path(options.gaugings), options.stage,
         options.discharge,
     )  # fmt: skip
+    from ..unitcheck import intended_unit
+
+    note = intended_unit("inflow", flow, options.discharge_units, label="gauged discharge")
+    if note:
+        import warnings
+
+        from ..errors import DataQualityWarning
+
+        warnings.warn(f"gaugings {options.gaugings}: {note}", DataQualityWarning, stacklevel=2)
     return Gaugings(
         file=Path(options.gaugings),
         date=(
