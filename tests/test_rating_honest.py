@@ -329,3 +329,28 @@ def test_seeded_interval_coverage_on_known_laws(case, replicates):
         assert cov >= 0.86, (name, cov)
     if case == "sparse-spillway":
         assert any(prof > 0.5 for *_, prof in rows)  # the profile intervals were exercised
+
+
+def test_segments_count_gaugings_above_their_break_and_open_ends_print_as_infinite():
+    """A segmented rating: the upper segment acts above its break, so its gaugings are those
+    above the break; the HTML and text summaries of an open profile end print 'inf', no NaN
+    interval."""
+    from lakebalance.outlet import segmented_law
+
+    rng = np.random.default_rng(8)
+    law = segmented_law([("low", power_law()), ("high", power_law())], [1.2])
+    truth = [3.0, 0.2, 1.6, 0.6, 2.2]
+    h = np.sort(rng.uniform(0.3, 2.6, 80))
+    q = law.discharge(truth, h) * np.exp(rng.normal(0, 0.03, h.size))
+    fit = _quiet_fit(law, h, q)
+    high = [c for c in fit.support if c.control == "high"][0]
+    assert high.threshold_m == 1.2 and high.gaugings == int(np.sum(h > 1.2))
+    law2, h2, q2 = _spillway_case()
+    weak = _quiet_fit(law2, h2, q2)
+    lo, hi = weak.conf_int()["spillway.Cw"]
+    text, html = str(weak.summary()), weak.summary()._repr_html_()
+    if not np.isfinite(hi):
+        assert "inf" in text and "inf" in html
+    assert "nan" not in text.lower() and "nan" not in html.lower()
+    doc = weak.to_dict()["parameters"]["spillway.Cw"]
+    assert doc["interval"] == "profile likelihood"

@@ -169,7 +169,9 @@ class RatingSummary(Summary):
             + (
                 "<td colspan=2>(fixed)</td>"
                 if fx
-                else f"<td>{se:.4g}</td><td>[{lo:.6g}, {hi:.6g}]</td>"
+                else f"<td>{se:.4g}</td><td>[{lo:.6g}, {hi:.6g}]</td>".replace(
+                    "<td>nan</td>", "<td>undefined</td>"
+                )
             )
             + "</tr>"
             for n, v, se, lo, hi, fx in self.rows
@@ -192,7 +194,8 @@ def _rating_text(title: str, rows, facts, notes) -> str:
         if fixed:
             lines.append(f"{name:<18s}{v:>14.6g}{'(fixed)':>14s}")
         else:
-            lines.append(f"{name:<18s}{v:>14.6g}{se:>14.4g}{f'[{lo:.6g}, {hi:.6g}]':>30s}")
+            se_text = f"{se:.4g}" if np.isfinite(se) else "undefined"
+            lines.append(f"{name:<18s}{v:>14.6g}{se_text:>14s}{f'[{lo:.6g}, {hi:.6g}]':>30s}")
     if notes:
         lines.append("")
         lines += [f"note: {n}" for n in notes]
