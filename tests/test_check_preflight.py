@@ -207,7 +207,9 @@ def test_resolve_day_order_rules():
     from lakebalance.io.dates import resolve_day_order
 
     assert resolve_day_order(["2021-01-13", "2021-02-01"], None, key="k") == (False, None)
-    assert resolve_day_order(["01/02/2021", "03/04/2021"], None, key="k") == (False, None)
+    order, note = resolve_day_order(["01/02/2021", "03/04/2021"], None, key="k")
+    assert order is False and "not told by the dates" in note and "set k" in note
+    assert resolve_day_order(["01/02/2021", "03/04/2021"], True, key="k") == (True, None)
     order, note = resolve_day_order(["01/02/2021", "03/14/2021"], None, key="k")
     assert order is False and "month first" in note
     with pytest.raises(InputError, match="both day/month orders"):
@@ -276,3 +278,11 @@ def test_gaugings_in_millilitres_per_day_and_stages_in_feet_warn(tmp_path, capsy
     )
     code, _, err = run(capsys, "check", path2)
     assert code == 0 and "gauging stages read in 'm'" in err and "'ft' it would lie inside" in err
+
+
+def test_a_damaged_date_cell_parsed_as_year_minus_5_is_a_rejected_row(tmp_path, capsys):
+    """A cell cut to '-05' parses as the year -5, outside what pandas holds in nanoseconds
+    (1677-2262); it must be a rejected row, not a crash (found by tests/test_io_properties.py)."""
+    body = STAGE.replace("2021-01-03,10.02\n", "2021-0\n-05,10.02\n")
+    code, out, _ = run(capsys, "check", site(tmp_path, stage=body))
+    assert code == 0 and "rejected: 2 rows" in out

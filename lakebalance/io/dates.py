@@ -55,7 +55,8 @@ def resolve_day_order(
     dayfirst : bool
         The order to read with.
     note : str or None
-        What was inferred, in words (None when the order was declared or cannot be told).
+        What was inferred, or that the order could not be told and was taken month first, in
+        words (None when the order was declared, or no cell is a numeric day/month date).
 
     Raises
     ------
@@ -105,7 +106,11 @@ def resolve_day_order(
                 f"day/month order not declared; read month first, as {text[i].strip()!r} shows "
                 f"(set {key} = false to state it)"
             )
-        return False, None
+        i = int(first.index[0])
+        return False, (
+            f"day/month order not declared and not told by the dates (no field above 12, e.g. "
+            f"{text[i].strip()!r}); read month first: set {key} to state it"
+        )
     if declared is False and len(day_first_rows):
         i = int(day_first_rows[0])
         raise InputError(
@@ -234,11 +239,27 @@ def parse_timestamps(
                         parsed = pd.DatetimeIndex(
                             pd.to_datetime(s, dayfirst=dayfirst, errors="coerce", utc=aware)
                         )
+    parsed = _within_nanosecond_range(parsed)
     bad = np.asarray(parsed.isna()) & ~empty
     local = to_site_time(parsed, timezone, source_timezone).as_unit("ns")
     if not absolute:
         return local, bad
     return local, bad, _ordering_clock(parsed, local, timezone, source_timezone)
+
+
+def _within_nanosecond_range(parsed: pd.DatetimeIndex) -> pd.DatetimeIndex:
+    """``parsed`` with dates outside the nanosecond range of pandas (1677-2262) as NaT: a
+    damaged cell such as ``-05`` parses as the year -5, which no later step can hold."""
+    import pandas as pd
+
+    try:
+        parsed.as_unit("ns")
+        return parsed
+    except (pd.errors.OutOfBoundsDatetime, OverflowError):
+        lo = pd.Timestamp("1677-09-22", tz=parsed.tz)
+        hi = pd.Timestamp("2262-04-11", tz=parsed.tz)
+        keep = np.asarray((parsed >= lo) & (parsed <= hi))
+        return pd.DatetimeIndex(parsed.where(keep)).as_unit("ns")
 
 
 def _ordering_clock(
