@@ -288,7 +288,7 @@ class Lake:
         def compute() -> RatingFit | None:
             import numpy as np
 
-            from .errors import FitError
+            from .errors import FitError, OptionError
             from .io.gaugings import read_gaugings
             from .outlet.fit import fit_rating_curve
             from .outlet.laws import law_from_options
@@ -312,6 +312,13 @@ class Lake:
                 )
             except FitError as exc:
                 raise _with_file(exc, gaugings.file) from None
+            except OptionError as exc:  # a key of [outlet] the law does not accept: its line
+                from .config import site_key_line
+
+                if exc.file is None:
+                    exc.file = str(self.site.path)
+                    exc.line = site_key_line(self.site, "outlet", exc.option)
+                raise
 
         return self._step("rating", compute)
 

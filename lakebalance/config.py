@@ -76,7 +76,8 @@ class SiteInfo(Options):
     # first month of the reporting year (1 = calendar year)
     water_year_start: int = setting(1, unit="month", low=1, high=12)
     timezone: str = "UTC"  # IANA zone whose midnight bounds a day
-    seed: int = 12345  # seed for every random draw unless the command line gives one
+    # seed for every random draw unless the command line gives one (numpy takes 0 to 2**128-1)
+    seed: int = setting(12345, unit="-", low=0)
 
 
 def _thousands_rule(value: str) -> str | None:
@@ -97,7 +98,8 @@ class SeriesSpec(Options):
     time: str | None = None  # optional separate time-of-day column
     name: str | None = None  # label when a role has several series (default: file stem)
     format: str | None = None  # strftime format of the dates, e.g. "%d/%m/%Y %H:%M"
-    dayfirst: bool = False  # 03/04/2020 is 3 April when true
+    # 03/04/2020 is 3 April when true; inferred from the dates when absent (a field above 12)
+    dayfirst: bool | None = None
     delimiter: str | None = None  # CSV field delimiter (sniffed when absent)
     decimal: str = "."  # decimal mark ("," for decimal comma)
     # thousands separator of the numbers ("," "." " " or "'"); none when absent
@@ -194,10 +196,22 @@ class _Ctx:
             for i, ln in enumerate(self.lines):
                 if re.match(rf"^\s*(\w+\.)*{re.escape(key)}\s*=", ln):
                     return i + 1
+        if header is None and len(parts) > 1:  # a key of an inline table: the table's line
+            return self.line_of(".".join(parts[:-1]), parts[-1])
         return None if header is None else header + 1
 
     def error(self, msg: str, where: str, key: str | None = None) -> ConfigError:
         return ConfigError(msg, file=self.path, line=self.line_of(where, key))
+
+
+def site_key_line(site: Site, where: str, key: str | None = None) -> int | None:
+    """Best-effort line of ``key`` in table ``where`` (dotted, e.g. ``"outlet"``) of the site
+    file, for an error found after loading (None when the file cannot be read again)."""
+    try:
+        text = site.path.read_text(encoding="utf-8-sig")
+    except OSError:
+        return None
+    return _Ctx(site.path, text).line_of(where, key)
 
 
 def _type_name(tp: Any) -> str:
@@ -319,10 +333,15 @@ def _build(cls: type, table: Any, ctx: _Ctx, where: str) -> Any:
             raise ctx.error(f"missing required key '{name}' in [{where}]", where)
     try:
         return cls(**kwargs)
-    except OptionError as exc:  # a declared range: the key's own line
+    except OptionError as exc:  # a declared range: an OptionError on the key's own line
         name = exc.option
         full = f"{where}.{name}" if where else name
-        raise ctx.error(exc.message.replace(f"'{name}'", f"'{full}'", 1), where, name) from None
+        raise OptionError(
+            name,
+            exc.message.replace(f"'{name}'", f"'{full}'", 1),
+            file=ctx.path,
+            line=ctx.line_of(where, name),
+        ) from None
 
 
 def quantity(value: float | str, unit: str, kind: str, what: str) -> float:

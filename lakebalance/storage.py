@@ -103,6 +103,9 @@ class StorageOptions(Options):
     bottom: float | None = setting(None, unit="m")  # stage of the deepest point (area 0)
     # table volume vs integrated area: allowed share of the range
     volume_tolerance: float = setting(0.01, unit="-", low=0.0)
+    # a volume column beyond the tolerance is an error; true accepts it with a warning (the
+    # relation always integrates the areas)
+    accept_volume_mismatch: bool = False
     compare: Path | None = None  # a second survey (table or contour layer) to compare against
     delimiter: str | None = None  # CSV field delimiter of a table (sniffed when absent)
     decimal: str = "."  # decimal mark of a CSV table
@@ -981,6 +984,8 @@ def storage_from_table(
     bottom_stage_m: float | None = None,
     source: str | None = None,
     row_label: str = "line",
+    volume_mismatch: Literal["error", "warn"] = "error",
+    accept_hint: str = "pass volume_mismatch='warn' to accept it",
 ) -> StorageCurve:
     """A relation from a stage-area(-volume) survey table (SI values).
 
@@ -993,8 +998,10 @@ def storage_from_table(
     volume_m3 : array_like, shape (n,), optional
         Volumes, m³. When given, the first sets the storage of the lowest level and every one is
         compared with the integral of the areas (:func:`check_volumes`); a mismatch beyond
-        ``tolerance`` warns :class:`~lakebalance.errors.DataQualityWarning`. The relation
-        itself always integrates the areas, so that dV/dh equals the area.
+        ``tolerance`` is an :class:`~lakebalance.errors.InputError` naming the worst line (a
+        volume column in the wrong unit, or areas that do not belong to it), or with
+        ``volume_mismatch="warn"`` a :class:`~lakebalance.errors.DataQualityWarning`. The
+        relation itself always integrates the areas, so that dV/dh equals the area.
     integration : {"frustum", "average_end_area"}
         Integration rule and matching area interpolation.
     below, above : {"error", "clamp", "extend"}
@@ -1011,6 +1018,10 @@ def storage_from_table(
         Description for reports (default: the file name).
     row_label : str
         What ``rows`` number (``"line"`` of a table, ``"feature"`` of a layer).
+    volume_mismatch : {"error", "warn"}
+        What a volume column beyond ``tolerance`` does.
+    accept_hint : str
+        How the caller accepts a mismatch, ending the error (the site file names its key).
 
     Returns
     -------
@@ -1019,7 +1030,8 @@ def storage_from_table(
     Raises
     ------
     InputError
-        See :func:`validate_relation`; also a ``bottom_stage_m`` not below the lowest row.
+        See :func:`validate_relation`; also a ``bottom_stage_m`` not below the lowest row, and
+        volumes inconsistent with the areas beyond ``tolerance`` (``volume_mismatch="error"``).
     """
     h, a, v = validate_relation(
         stage_m, area_m2, volume_m3, rows=rows, file=file, row_label=row_label
@@ -1032,6 +1044,15 @@ def storage_from_table(
     if v is not None:
         check = check_volumes(h, a, v, integration=integration, tolerance=tolerance, rows=row_list)
         base = float(v[0])
+        if not check.ok and volume_mismatch == "error":
+            worst = check.worst_index
+            raise InputError(
+                f"{check.summary()}; a volume column in another unit than declared, or areas "
+                f"and volumes of different surveys? {accept_hint}",
+                file=file,
+                line=None if row_list is None or row_label != "line" else row_list[worst],
+                column="volume",
+            )
         if not check.ok:
             where = f"{file}: " if file is not None else ""
             warnings.warn(where + check.summary(), DataQualityWarning, stacklevel=2)

@@ -57,6 +57,11 @@ class Role:
     smooth : bool
         Smooth enough for the spike check (event-driven or gusty series are not: a robust z-score
         would flag every storm or cloudy day).
+    typical : (float, float)
+        Range of the typical daily value, internal units: of the positive days for a
+        non-negative role (a dry creek or a rainless day says nothing of the unit), of every day
+        otherwise. A series wholly beyond it was probably read in the wrong unit
+        (:mod:`lakebalance.unitcheck` names the likely intended one).
     """
 
     name: str
@@ -67,20 +72,35 @@ class Role:
     plausible: tuple[float, float] = (-INF, INF)
     state: bool = False
     smooth: bool = False
+    typical: tuple[float, float] = (-INF, INF)
 
+
+# Typical daily values (common practice, no source; the limits are generous on purpose): a flow
+# that is metered or gauged at all is above 1e-6 m³/s (86 L/d) on its flowing days and below the
+# largest rivers' mean flow; lake or pan evaporation on its positive days between 0.2 and 50 mm;
+# rain on rainy days between a gauge's 0.1 mm resolution and 0.5 m; a daily mean wind between
+# 0.1 and 20 m/s; daily solar radiation between 0.5 and 45 MJ m⁻² d⁻¹; air temperatures with
+# typical values between -60 and 45 °C.
+FLOW = (1.0e-6, 3.0e5)  # m³/s
+EVAP = (2.0e-4, 0.05)  # m/d
+TEMPERATURE = (-60.0, 45.0)  # °C
 
 #: Every series role, in the order the documentation lists them.
 ROLES: dict[str, Role] = {
     r.name: r
     for r in (
-        Role("stage", "length", "lake stage", state=True, smooth=True),
+        Role("stage", "length", "lake stage", state=True, smooth=True),  # any datum: no range
         # 3e5 m³/s: above the largest rivers' mean daily flow (from memory)
-        Role("inflow", "flow", "gauged inflow", True, plausible=(0.0, 3.0e5)),
-        Role("rain", "depth", "rain", True, plausible=(0.0, 2.0)),  # 2 m/d: above the record
-        Role("evaporation", "depth", "lake evaporation", True, plausible=(0.0, 0.1)),
-        Role("pan", "depth", "pan evaporation", True, plausible=(0.0, 0.1)),
-        Role("withdrawal", "flow", "metered withdrawal", True, plausible=(0.0, 3.0e5)),
-        Role("release", "flow", "metered release", True, plausible=(0.0, 3.0e5)),
+        Role("inflow", "flow", "gauged inflow", True, plausible=(0.0, 3.0e5), typical=FLOW),
+        Role(
+            "rain", "depth", "rain", True, plausible=(0.0, 2.0), typical=(1e-4, 0.5)
+        ),  # 2 m/d: record
+        Role("evaporation", "depth", "lake evaporation", True, plausible=(0.0, 0.1), typical=EVAP),
+        Role("pan", "depth", "pan evaporation", True, plausible=(0.0, 0.1), typical=EVAP),
+        Role(
+            "withdrawal", "flow", "metered withdrawal", True, plausible=(0.0, 3.0e5), typical=FLOW
+        ),
+        Role("release", "flow", "metered release", True, plausible=(0.0, 3.0e5), typical=FLOW),
         # air temperature beyond the recorded extremes (from memory)
         Role(
             "tmax",
@@ -89,6 +109,7 @@ ROLES: dict[str, Role] = {
             bounds=(-90.0, 60.0),
             state=True,
             smooth=True,
+            typical=TEMPERATURE,
         ),  # fmt: skip
         Role(
             "tmin",
@@ -97,6 +118,7 @@ ROLES: dict[str, Role] = {
             bounds=(-90.0, 60.0),
             state=True,
             smooth=True,
+            typical=TEMPERATURE,
         ),  # fmt: skip
         Role(
             "tmean",
@@ -105,14 +127,39 @@ ROLES: dict[str, Role] = {
             bounds=(-90.0, 60.0),
             state=True,
             smooth=True,
+            typical=TEMPERATURE,
         ),  # fmt: skip
         Role("rh", "humidity", "relative humidity", True, (0.0, 100.0), state=True),
         Role("rh_max", "humidity", "maximum relative humidity", True, (0.0, 100.0), state=True),
         Role("rh_min", "humidity", "minimum relative humidity", True, (0.0, 100.0), state=True),
-        Role("dewpoint", "temperature", "dew point", bounds=(-90.0, 40.0), state=True, smooth=True),
-        Role("wind", "speed", "wind speed", True, plausible=(0.0, 20.0), state=True),
+        Role(
+            "dewpoint",
+            "temperature",
+            "dew point",
+            bounds=(-90.0, 40.0),
+            state=True,
+            smooth=True,
+            typical=TEMPERATURE,
+        ),  # fmt: skip
+        Role(
+            "wind",
+            "speed",
+            "wind speed",
+            True,
+            plausible=(0.0, 20.0),
+            state=True,
+            typical=(0.1, 20.0),
+        ),
         # 50 MJ m⁻² d⁻¹: above the radiation at the top of the atmosphere (FAO-56 Annex 2)
-        Role("solar", "radiation", "solar radiation", True, plausible=(0.0, 50.0), state=True),
+        Role(
+            "solar",
+            "radiation",
+            "solar radiation",
+            True,
+            plausible=(0.0, 50.0),
+            state=True,
+            typical=(0.5, 45.0),
+        ),
         Role("sunshine", "duration", "bright sunshine", True, (0.0, 24.0)),  # h/d by definition
     )
 }

@@ -194,9 +194,19 @@ def test_table_units_are_converted_and_volumes_checked(write):
     assert curve.check.max_relative < 1e-12
 
 
+def test_volume_mismatch_is_an_error_naming_line_column_and_the_key(write):
+    """Volumes beyond the tolerance of the areas' integral stop the reading (issue 13): the
+    error names the worst line, the file's volume column and the key that accepts it."""
+    body = "stage,area,vol\n0,100,0\n1,100,100\n2,100,260\n3,100,300\n"
+    opts = _table(write, body, volume="vol")
+    with pytest.raises(InputError, match="accept_volume_mismatch") as exc:
+        read_storage(opts)
+    assert exc.value.line == 4 and exc.value.column == "vol"
+
+
 def test_volume_mismatch_is_reported_with_the_row(write):
     body = "stage,area,volume\n0,100,0\n1,100,100\n2,100,260\n3,100,300\n"
-    opts = _table(write, body, volume="volume")
+    opts = _table(write, body, volume="volume", accept_volume_mismatch=True)
     with pytest.warns(DataQualityWarning, match=r"line 4 .*OUTSIDE the tolerance"):
         curve = read_storage(opts)
     assert curve.check.worst_index == 2

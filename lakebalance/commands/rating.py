@@ -69,6 +69,8 @@ def run(args: argparse.Namespace) -> int:
                 "by": shift.by,
                 "p_value": shift.p_value,
                 "first_shift": shift.first_shift,
+                "min_gaugings": shift.min_gaugings,
+                "change_points": list(shift.change_points),
                 "periods": shift.periods,
             },
             "extrapolation": extra,
@@ -80,13 +82,12 @@ def run(args: argparse.Namespace) -> int:
     print(fit.summary())
     if shift is not None:
         print()
-        print(f"rating-shift test ({shift.by}):")
-        for row in shift.periods.itertuples():
-            mark = "  <- departs" if row.shifted else ""
-            print(
-                f"  {row.period:<18s} n={row.n:<4d} mean residual {row.mean_residual:+.4f} "
-                f"[{row.lower:+.4f}, {row.upper:+.4f}]{mark}"
-            )
+        print(
+            f"rating-shift test ({shift.by}; periods of at least {shift.min_gaugings} gaugings "
+            "where the data allow; Holm-corrected):"
+        )
+        for line in shift.lines():
+            print(line)
     for m in messages:
         if m not in fit.warnings:  # those are in the summary's notes
             print(f"warning: {m}")

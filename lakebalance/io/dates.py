@@ -18,7 +18,115 @@ from ..errors import ConfigError
 if TYPE_CHECKING:  # pragma: no cover
     import pandas as pd
 
-__all__ = ["parse_timestamps", "to_site_time"]
+__all__ = ["parse_timestamps", "to_site_time", "resolve_day_order"]
+
+_DMY = re.compile(r"^\s*(\d{1,2})[./\-](\d{1,2})[./\-](\d{2,4})(?!\d)")
+
+
+def resolve_day_order(
+    cells: object,
+    declared: bool | None,
+    *,
+    key: str,
+    file: object = None,
+    lines: object = None,
+    column: object = None,
+) -> tuple[bool, str | None]:
+    """The day/month order of numeric dates such as ``03/04/2021``, declared or inferred.
+
+    A first field above 12 can only be a day, a second field above 12 only a day too. When the
+    order is not declared it is inferred from the cells; when it is declared and a cell
+    contradicts it, reading stops (a third of the rows rejected and the rest silently misread is
+    what a wrong order does otherwise).
+
+    Parameters
+    ----------
+    cells : array-like
+        The date cells (strings; other cells are ignored).
+    declared : bool or None
+        ``dayfirst`` from the site file, or None when not given.
+    key : str
+        The site-file key that sets the order, for messages (e.g. ``"[series.stage] dayfirst"``).
+    file, lines, column
+        Where the cells come from (``lines``: 1-based line of each cell), for the error.
+
+    Returns
+    -------
+    dayfirst : bool
+        The order to read with.
+    note : str or None
+        What was inferred, or that the order could not be told and was taken month first, in
+        words (None when the order was declared, or no cell is a numeric day/month date).
+
+    Raises
+    ------
+    InputError
+        A declared order that a cell contradicts, or cells of both orders.
+    """
+    import pandas as pd
+
+    from ..errors import InputError
+
+    s = pd.Series(cells).reset_index(drop=True)
+    text = s[s.map(lambda v: isinstance(v, str))].astype(str)
+    if text.empty:
+        return bool(declared), None
+    parts = text.str.extract(_DMY)
+    ok = parts[0].notna()
+    if not ok.any():
+        return bool(declared), None
+    first = parts.loc[ok, 0].astype(int)
+    second = parts.loc[ok, 1].astype(int)
+    day_first_rows = first.index[first > 12]
+    month_first_rows = second.index[second > 12]
+
+    def where(i: int) -> dict:
+        line = None
+        if lines is not None:
+            line = int(np.asarray(lines)[i])
+        return {"file": file, "line": line, "column": column}
+
+    if len(day_first_rows) and len(month_first_rows):
+        i, j = int(day_first_rows[0]), int(month_first_rows[0])
+        raise InputError(
+            f"dates of both day/month orders: {text[i]!r} is day first, {text[j]!r} month "
+            f"first; make the file consistent, or give 'format'",
+            **where(max(i, j)),
+        )
+    if declared is None:
+        if len(day_first_rows):
+            i = int(day_first_rows[0])
+            return True, (
+                f"day/month order not declared; read day first, as {text[i].strip()!r} shows "
+                f"(set {key} = true to state it)"
+            )
+        if len(month_first_rows):
+            i = int(month_first_rows[0])
+            return False, (
+                f"day/month order not declared; read month first, as {text[i].strip()!r} shows "
+                f"(set {key} = false to state it)"
+            )
+        i = int(first.index[0])
+        return False, (
+            f"day/month order not declared and not told by the dates (no field above 12, e.g. "
+            f"{text[i].strip()!r}); read month first: set {key} to state it"
+        )
+    if declared is False and len(day_first_rows):
+        i = int(day_first_rows[0])
+        raise InputError(
+            f"{text[i].strip()!r} cannot be month first ({int(first[i])} is not a month) but the "
+            f"dates are declared month first; set {key} = true",
+            **where(i),
+        )
+    if declared is True and len(month_first_rows):
+        i = int(month_first_rows[0])
+        raise InputError(
+            f"{text[i].strip()!r} cannot be day first ({int(second[i])} is not a month) but the "
+            f"dates are declared day first; set {key} = false",
+            **where(i),
+        )
+    return bool(declared), None
+
 
 _AWARE = re.compile(r"(?:[zZ]|[+-]\d\d:?\d\d)\s*$")
 _ISO_START = re.compile(r"^\s*\d{4}-\d{1,2}-\d{1,2}")

@@ -14,7 +14,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from ..errors import ConfigError
+from ..errors import ConfigError, InputError
 from ..units import to_si
 from .tables import read_table
 
@@ -23,7 +23,12 @@ if TYPE_CHECKING:  # pragma: no cover
 
     from ..config import OutletOptions
 
-__all__ = ["Gaugings", "read_gaugings"]
+__all__ = ["MIN_GAUGINGS", "Gaugings", "check_gaugings", "read_gaugings"]
+
+#: Usable gaugings below which no rating can be fitted with an uncertainty: a law has at least
+#: two free parameters (coefficient and datum) and needs one more gauging (common practice, no
+#: source).
+MIN_GAUGINGS = 3
 
 
 @dataclass(frozen=True)
@@ -71,6 +76,55 @@ class Gaugings:
         return pd.DataFrame(data)
 
 
+def check_gaugings(
+    stage_m: np.ndarray,
+    discharge_m3s: np.ndarray,
+    lines: np.ndarray,
+    file: Path,
+    stage_column: str = "stage",
+    discharge_column: str = "discharge",
+) -> None:
+    """Stop a gaugings table that no rating can be fitted to, naming file, line and column.
+
+    Usable rows have a stage and a non-negative discharge (the others are kept and reported by
+    the fit). The table needs :data:`MIN_GAUGINGS` usable rows, at least two distinct stages and
+    one gauging with flow.
+
+    Raises
+    ------
+    InputError
+        Too few usable rows, a single stage, or only zero flows.
+    """
+    h = np.asarray(stage_m, dtype=float)
+    q = np.asarray(discharge_m3s, dtype=float)
+    usable = np.isfinite(h) & np.isfinite(q) & (q >= 0)
+    idx = np.flatnonzero(usable)
+    if idx.size < MIN_GAUGINGS:
+        at = int(lines[idx[-1]]) if idx.size else (int(lines[-1]) if len(lines) else None)
+        raise InputError(
+            f"gaugings: {idx.size} usable row(s) (a stage and a discharge of zero or more); a "
+            f"rating needs at least {MIN_GAUGINGS}, more than its free parameters",
+            file=file,
+            line=at,
+        )
+    if np.unique(h[idx]).size < 2:
+        raise InputError(
+            f"gaugings: every usable gauging is at one stage ({h[idx[0]]:g} m); a rating needs "
+            "gaugings over a range of stages",
+            file=file,
+            line=int(lines[idx[1]]),
+            column=stage_column,
+        )
+    if not np.any(q[idx] > 0):
+        raise InputError(
+            "gaugings: every discharge is zero; a rating needs gaugings with flow (zero-flow "
+            "gaugings only bound the datum)",
+            file=file,
+            line=int(lines[idx[0]]),
+            column=discharge_column,
+        )
+
+
 def read_gaugings(options: OutletOptions) -> Gaugings:
     """Read the gaugings an ``[outlet]`` section points to.
 
@@ -86,6 +140,7 @@ def read_gaugings(options: OutletOptions) -> Gaugings:
         When no gaugings file is declared.
     InputError
         From :func:`~lakebalance.io.tables.read_table` (missing column, text in a number...).
+        Also from :func:`check_gaugings` (too few usable rows, one stage, only zero flows).
     UnitError
         When a declared unit is unknown or of the wrong kind.
     """
@@ -106,8 +161,23 @@ def read_gaugings(options: OutletOptions) -> Gaugings:
         encoding=options.encoding,
         dayfirst=options.dayfirst,
         date_columns=("date",) if options.date else (),
+        dayfirst_key="[outlet] dayfirst",
     )
     flow = to_si(table["discharge"].to_numpy(), options.discharge_units, "flow", "gaugings")
+    stage = to_si(table["stage"].to_numpy(), options.stage_units, "length", "gauging stage")
+    check_gaugings(
+        stage, flow, table["_line"].to_numpy(), Path(options.gaugings), options.stage,
+        options.discharge,
+    )  # fmt: skip
+    from ..unitcheck import intended_unit
+
+    note = intended_unit("inflow", flow, options.discharge_units, label="gauged discharge")
+    if note:
+        import warnings
+
+        from ..errors import DataQualityWarning
+
+        warnings.warn(f"gaugings {options.gaugings}: {note}", DataQualityWarning, stacklevel=2)
     return Gaugings(
         file=Path(options.gaugings),
         date=(
@@ -115,7 +185,7 @@ def read_gaugings(options: OutletOptions) -> Gaugings:
             if "date" in table
             else np.full(len(table), np.datetime64("NaT"), dtype="datetime64[ns]")
         ),
-        stage_m=to_si(table["stage"].to_numpy(), options.stage_units, "length", "gauging stage"),
+        stage_m=stage,
         discharge_m3s=flow,
         weight=table["weight"].to_numpy() if "weight" in table else None,
         line=table["_line"].to_numpy(),

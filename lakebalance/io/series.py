@@ -297,10 +297,24 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
     if spec.source_timezone:
         check_zone(spec.source_timezone, site, spec)
 
+    dayfirst, order_note = spec.dayfirst, None
+    if spec.format is None:
+        from .dates import resolve_day_order
+
+        dayfirst, order_note = resolve_day_order(
+            raw.dates,
+            spec.dayfirst,
+            key=f"[series.{role}] dayfirst",
+            file=file,
+            lines=lines,
+            column=raw.date_column,
+        )
+    if order_note:
+        add("date_order", None, None, n, "inferred", order_note)
     stamps, bad_date, ordering = parse_timestamps(
         raw.dates,
         format=spec.format,
-        dayfirst=spec.dayfirst,
+        dayfirst=bool(dayfirst),
         time=raw.times,
         timezone=site.site.timezone,
         source_timezone=spec.source_timezone,
@@ -574,6 +588,16 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
                 f"{index[a].date().isoformat()}: stuck sensor? the repeats are flagged",
             )
     reason = qa.implausible_units(role, full)
+    if not reason:
+        from ..unitcheck import intended_unit
+
+        reason = intended_unit(role, full, units)
+        if reason:
+            import warnings
+
+            from ..errors import DataQualityWarning
+
+            warnings.warn(f"{key}: {reason}", DataQualityWarning, stacklevel=2)
     if reason:
         add(
             "implausible_units",

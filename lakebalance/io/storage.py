@@ -115,19 +115,28 @@ def _read_table(options: StorageOptions, path: Path) -> StorageCurve:
     volume = None
     if options.volume is not None:
         volume = to_si(frame["volume"].to_numpy(), options.volume_units, "volume", "storage volume")
-    return storage_from_table(
-        stage,
-        area,
-        volume,
-        integration=options.integration,
-        below=options.below,
-        above=options.above,
-        rows=frame["_line"].tolist(),
-        file=path,
-        tolerance=options.volume_tolerance,
-        bottom_stage_m=options.bottom,
-        source=f"table {path.name}",
-    )
+    try:
+        return storage_from_table(
+            stage,
+            area,
+            volume,
+            integration=options.integration,
+            below=options.below,
+            above=options.above,
+            rows=frame["_line"].tolist(),
+            file=path,
+            tolerance=options.volume_tolerance,
+            bottom_stage_m=options.bottom,
+            source=f"table {path.name}",
+            volume_mismatch="warn" if options.accept_volume_mismatch else "error",
+            accept_hint=(
+                f"set accept_volume_mismatch = true in [storage] to accept it (the relation "
+                f"integrates the areas), or widen volume_tolerance ({options.volume_tolerance:g})"
+            ),
+        )
+    except InputError as exc:  # name the file's own column header
+        exc.column = columns.get(str(exc.column), exc.column)
+        raise
 
 
 def _read_contours(options: StorageOptions, path: Path) -> StorageCurve:

@@ -179,8 +179,9 @@ def read_table(
     delimiter: str | None = None,
     decimal: str = ".",
     encoding: str | None = None,
-    dayfirst: bool = False,
+    dayfirst: bool | None = False,
     date_columns: Iterable[str] = (),
+    dayfirst_key: str = "dayfirst",
 ) -> pd.DataFrame:
     """Read a small table (CSV or .xlsx) whose every requested cell must be usable.
 
@@ -201,10 +202,14 @@ def read_table(
         Decimal mark of a text file (``","`` for a decimal comma).
     encoding : str, optional
         Text encoding (sniffed when None: byte-order mark, UTF-8, Windows-1252).
-    dayfirst : bool
-        Day-first dates (``03/04/2021`` is 3 April) in ``date_columns``.
+    dayfirst : bool or None
+        Day-first dates (``03/04/2021`` is 3 April) in ``date_columns``; None infers the order
+        from the cells and warns what it inferred
+        (:func:`~lakebalance.io.dates.resolve_day_order`).
     date_columns : iterable of str
         Our names of the columns holding dates (parsed to ``datetime64``; others are floats).
+    dayfirst_key : str
+        The site-file key that sets the order, named when the cells contradict it.
 
     Returns
     -------
@@ -247,9 +252,23 @@ def read_table(
     for key in columns:
         cells = frame[key]
         if key in date_columns:
-            from .dates import parse_timestamps
+            from .dates import parse_timestamps, resolve_day_order
 
-            stamps, bad = parse_timestamps(cells, dayfirst=dayfirst)
+            order, note = resolve_day_order(
+                cells,
+                dayfirst,
+                key=dayfirst_key,
+                file=raw.file,
+                lines=raw.lines,
+                column=raw.positions[key],
+            )
+            if note:
+                import warnings
+
+                from ..errors import DataQualityWarning
+
+                warnings.warn(f"{what}: {note}", DataQualityWarning, stacklevel=2)
+            stamps, bad = parse_timestamps(cells, dayfirst=order)
             if bad.any():
                 i = int(np.flatnonzero(bad)[0])
                 raise InputError(

@@ -36,17 +36,19 @@ from __future__ import annotations
 
 import warnings
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from functools import cached_property
 from typing import TYPE_CHECKING, Any, Literal
 
 import numpy as np
 
-from ..errors import ConfigError, DataQualityWarning, FitError, suggest
+from ..errors import ConfigError, DataQualityWarning, FitError, OptionError, suggest
+from ..options import Options, setting
 from ..resources import check_memory
 from ..results import Summary, estimate
 from .laws import GaugedStages, Law, Rating, discharge_with
 from .nls import covariance_from_jacobian, solve_least_squares
+from .options import MAX_BOOTSTRAP
 
 if TYPE_CHECKING:  # pragma: no cover
     import pandas as pd
@@ -71,7 +73,7 @@ Residuals = Literal["log", "linear"]
 
 
 @dataclass(frozen=True)
-class FitOptions:
+class FitOptions(Options):
     """How a rating is fitted.
 
     Parameters
@@ -86,13 +88,17 @@ class FitOptions:
         Parameter name -> (lower, upper) (SI); either may be ``None``/inf for none.
     bootstrap : int
         Residual-bootstrap refits kept for intervals (0: delta method only).
+    priors : dict
+        Parameter name -> (value, standard error) (SI) from a handbook or the drawings: a
+        Gaussian prior, applied as penalised least squares (see :func:`fit_rating_curve`).
     """
 
     residuals: Residuals = "log"
     fixed: Mapping[str, float] = field(default_factory=dict)
     initial: Mapping[str, float] = field(default_factory=dict)
     bounds: Mapping[str, tuple[float | None, float | None]] = field(default_factory=dict)
-    bootstrap: int = 0
+    bootstrap: int = setting(0, unit="refits", low=0, high=MAX_BOOTSTRAP)
+    priors: Mapping[str, tuple[float, float]] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -163,7 +169,9 @@ class RatingSummary(Summary):
             + (
                 "<td colspan=2>(fixed)</td>"
                 if fx
-                else f"<td>{se:.4g}</td><td>[{lo:.6g}, {hi:.6g}]</td>"
+                else f"<td>{se:.4g}</td><td>[{lo:.6g}, {hi:.6g}]</td>".replace(
+                    "<td>nan</td>", "<td>undefined</td>"
+                )
             )
             + "</tr>"
             for n, v, se, lo, hi, fx in self.rows
@@ -186,7 +194,8 @@ def _rating_text(title: str, rows, facts, notes) -> str:
         if fixed:
             lines.append(f"{name:<18s}{v:>14.6g}{'(fixed)':>14s}")
         else:
-            lines.append(f"{name:<18s}{v:>14.6g}{se:>14.4g}{f'[{lo:.6g}, {hi:.6g}]':>30s}")
+            se_text = f"{se:.4g}" if np.isfinite(se) else "undefined"
+            lines.append(f"{name:<18s}{v:>14.6g}{se_text:>14s}{f'[{lo:.6g}, {hi:.6g}]':>30s}")
     if notes:
         lines.append("")
         lines += [f"note: {n}" for n in notes]
@@ -229,6 +238,15 @@ class RatingFit:
         Highest stage of a zero-flow gauging used as a datum bound.
     derived : dict
         Quantities implied by the parameters (segment coefficients set by continuity).
+    priors : dict
+        Parameter name -> (value, standard error) of the priors applied (SI).
+    profile : dict
+        Parameter name -> profile-likelihood 95 % interval, for the parameters whose Wald
+        interval says nothing (on a bound, weakly identified, leaving its bounds); an end may be
+        infinite (not bounded by the gaugings).
+    support : tuple of ControlSupport
+        Gaugings above the threshold of each control
+        (:class:`~lakebalance.outlet.identify.ControlSupport`).
     """
 
     law: Law
@@ -248,6 +266,9 @@ class RatingFit:
     bootstrap_residuals: Array | None = None
     zero_flow_stage_m: float | None = None
     derived: dict[str, float] = field(default_factory=dict)
+    priors: dict[str, tuple[float, float]] = field(default_factory=dict)
+    profile: dict[str, tuple[float, float]] = field(default_factory=dict)
+    support: tuple = ()
 
     # ---- statistics --------------------------------------------------------------------
     @property
@@ -277,12 +298,20 @@ class RatingFit:
         return float(t.ppf(1 - alpha / 2, self.dof))
 
     def conf_int(self, alpha: float = 0.05) -> dict[str, tuple[float, float]]:
-        """Wald confidence interval of each parameter, ``value ± t(1-α/2, dof) · se``."""
+        """Confidence interval of each parameter: Wald, ``value ± t(1-α/2, dof) · se``, or at
+        ``alpha = 0.05`` the profile-likelihood interval of :attr:`profile` where one was made."""
         t = self.t_quantile(alpha)
-        return {
+        out = {
             n: (self.params[n] - t * self.stderr[n], self.params[n] + t * self.stderr[n])
             for n in self.param_names
         }
+        if np.isclose(alpha, 0.05):
+            out.update({n: tuple(v) for n, v in self.profile.items()})
+        return out
+
+    def interval_method(self, name: str) -> str | None:
+        """How the interval of ``name`` was made when not by the Wald rule (None)."""
+        return "profile likelihood" if name in self.profile else None
 
     def region_contains(self, values: Mapping[str, float], alpha: float = 0.05) -> bool:
         """Whether ``values`` lie inside the joint likelihood confidence region of the fit.
@@ -425,12 +454,19 @@ class RatingFit:
     def parameter_table(self, alpha: float = 0.05) -> dict[str, dict[str, Any]]:
         """``{name: {value, stderr, ci95: [lo, hi], unit, fixed}}`` (SI): the shared estimate
         shape (:class:`~lakebalance.results.Estimate`, Wald interval with Student t) and whether
-        the parameter was held fixed."""
+        the parameter was held fixed; ``interval`` says ``"profile likelihood"`` where the Wald
+        interval was replaced (an open end is null)."""
         ci = self.conf_int(alpha)
         units = self.law.param_units
         return {
             n: {
-                **estimate(self.params[n], self.stderr[n], *ci[n], unit=units[n]).to_dict(),
+                **estimate(
+                    self.params[n],
+                    self.stderr[n],
+                    *ci[n],
+                    unit=units[n],
+                    interval=self.interval_method(n) if np.isclose(alpha, 0.05) else None,
+                ).to_dict(),
                 "fixed": not f,
             }
             for n, f in zip(self.param_names, self.free)
@@ -441,7 +477,9 @@ class RatingFit:
 
         ``form``, ``residuals``, ``parameters`` (:meth:`parameter_table`), ``derived``, ``n``,
         ``dof``, ``se_percent``, ``gauged_range`` (m), ``zero_flow_stage_m``, ``bootstrap``
-        (refits kept), ``warnings``, ``caution``. The command adds the site, the seed, the
+        (refits kept), ``priors`` (parameter, value, stderr, unit), ``controls`` (gaugings above
+        each control's threshold, weakly identified or below practice), ``warnings``,
+        ``caution``. The command adds the site, the seed, the
         rating-shift test and the extrapolation check.
         """
         return {
@@ -455,6 +493,22 @@ class RatingFit:
             "gauged_range": list(self.gauged_range),
             "zero_flow_stage_m": self.zero_flow_stage_m,
             "bootstrap": 0 if self.bootstrap_params is None else int(len(self.bootstrap_params)),
+            "priors": [
+                {"parameter": n, "value": v, "stderr": se, "unit": self.law.param_units[n]}
+                for n, (v, se) in self.priors.items()
+            ],
+            "controls": [
+                {
+                    "control": c.control,
+                    "threshold_m": c.threshold_m,
+                    "gaugings": c.gaugings,
+                    "free": list(c.free),
+                    "prior": list(c.prior),
+                    "weakly_identified": c.weak,
+                    "below_practice": c.below_practice,
+                }
+                for c in self.support
+            ],
             "warnings": list(self.warnings),
             "caution": CAUTION,
         }
@@ -482,6 +536,18 @@ class RatingFit:
         facts += tuple((k, f"{v:.6g}") for k, v in self.derived.items())
         if self.zero_flow_stage_m is not None:
             facts += (("highest zero-flow stage", f"{self.zero_flow_stage_m:.3f} m"),)
+        for n, (v, se) in self.priors.items():
+            facts += ((f"prior on {n}", f"{v:.6g} ± {se:.4g} (penalised least squares)"),)
+        for c in self.support:
+            state = " (weakly identified)" if c.weak else ""
+            facts += (
+                (
+                    f"gaugings above {c.control}",
+                    f"{c.gaugings} above {c.threshold_m:.3f} m{state}",
+                ),
+            )
+        if self.profile:
+            facts += (("profile-likelihood intervals", ", ".join(self.profile)),)
         return RatingSummary(f"Rating curve ({self.form})", rows, facts, self.warnings)
 
 
@@ -491,9 +557,10 @@ class RatingFit:
 def _check_names(names: tuple[str, ...], given: Mapping[str, Any], what: str) -> None:
     for key in given:
         if key not in names:
-            raise ConfigError(
+            raise OptionError(
+                what,
                 f"rating: unknown parameter '{key}' in '{what}'{suggest(key, names)}; "
-                f"parameters are {', '.join(names)}"
+                f"parameters are {', '.join(names)}",
             )
 
 
@@ -591,20 +658,25 @@ def _bounds(law: Law, stages: GaugedStages, options: FitOptions) -> tuple[Array,
         if bhi is not None:
             hi[idx] = min(hi[idx], float(bhi))
         if lo[idx] > hi[idx]:
-            raise ConfigError(f"rating: bounds of '{key}' leave no room ([{lo[idx]}, {hi[idx]}])")
+            raise OptionError(
+                "bounds", f"rating: bounds of '{key}' leave no room ([{lo[idx]}, {hi[idx]}])"
+            )
     return lo, hi
 
 
-def _check_identifiable(g: _Gaugings, kf: int) -> None:
-    """Enough gaugings, over enough distinct stages, for ``kf`` free parameters."""
+def _check_identifiable(g: _Gaugings, kf: int, n_priors: int = 0) -> None:
+    """Enough gaugings (a prior counts as one), over enough distinct stages, for ``kf`` free
+    parameters."""
     n_used = int(g.in_resid.sum())
-    if n_used <= kf:
+    if n_used + n_priors <= kf:
+        extra = f" and {n_priors} prior(s)" if n_priors else ""
         raise FitError(
-            f"{n_used} usable gauging(s) cannot fit {kf} free parameter(s) with any uncertainty; "
-            f"need at least {kf + 1}"
+            f"{n_used} usable gauging(s){extra} cannot fit {kf} free parameter(s) with any "
+            f"uncertainty; need at least {kf + 1 - n_priors} gaugings"
         )
+    k_data = max(kf - n_priors, 1)
     n_stages = np.unique(g.h[g.in_resid]).size
-    if n_stages < min(kf, 3) or n_stages < 2 and kf > 1:
+    if n_stages < min(k_data, 3) or n_stages < 2 and k_data > 1:
         raise FitError(
             f"the gaugings span only {n_stages} distinct stage(s); {kf} free parameters need "
             "gaugings over a range of stages"
@@ -617,6 +689,10 @@ class _Problem:
 
     ``y`` is ``ln Q`` (log residuals) or ``Q``; ``sw`` the square roots of the weights; ``base``
     holds the fixed values (NaN where free); ``lo``/``hi`` the bounds of every parameter.
+    ``prior_at`` are positions in the free vector with a prior of mean ``prior_mean`` and standard
+    error ``prior_sd``; their pseudo-residuals ``prior_scale (theta - mean) / sd`` follow the
+    data residuals (``prior_scale`` is the residual standard deviation, so that the sum of squares
+    divided by it is the negative log posterior up to a constant).
     """
 
     law: Law
@@ -628,25 +704,89 @@ class _Problem:
     lo: Array
     hi: Array
     log: bool
+    prior_at: Array = field(default_factory=lambda: np.zeros(0, dtype=int))
+    prior_mean: Array = field(default_factory=lambda: np.zeros(0))
+    prior_sd: Array = field(default_factory=lambda: np.zeros(0))
+    prior_scale: float = 1.0
 
     def full_params(self, theta: Array) -> list[Array | float]:
         p = self.base.copy()
         p[self.free] = theta
         return list(p)
 
-    def residual(self, theta: Array) -> Array:
+    def data_residual(self, theta: Array) -> Array:
         f = self.law.discharge(self.full_params(theta), self.h)
         if self.log:
             with np.errstate(divide="ignore"):
                 f = np.log(f)
         return self.sw * (self.y - f)
 
+    def residual(self, theta: Array) -> Array:
+        r = self.data_residual(theta)
+        if self.prior_at.size == 0:
+            return r
+        pen = self.prior_scale * (np.asarray(theta)[self.prior_at] - self.prior_mean)
+        return np.concatenate([r, pen / self.prior_sd])
+
     def jacobian(self, theta: Array) -> Array:
         p = self.full_params(theta)
         g = np.stack(np.broadcast_arrays(*self.law.gradient(p, self.h)), axis=-1)[:, self.free]
         if self.log:
-            g = g / self.law.discharge(p, self.h)[:, None]
-        return -self.sw[:, None] * g
+            with np.errstate(divide="ignore", invalid="ignore"):
+                g = g / self.law.discharge(p, self.h)[:, None]
+        jac = -self.sw[:, None] * g
+        if self.prior_at.size == 0:
+            return jac
+        rows = np.zeros((self.prior_at.size, jac.shape[1]))
+        rows[np.arange(self.prior_at.size), self.prior_at] = self.prior_scale / self.prior_sd
+        return np.vstack([jac, rows])
+
+    def held(self, j: int, value: float) -> _Problem:
+        """The problem with free parameter ``j`` held at ``value`` (for its profile)."""
+        full = np.flatnonzero(self.free)[j]
+        free = self.free.copy()
+        free[full] = False
+        base = self.base.copy()
+        base[full] = value
+        # the prior of the held parameter is a constant of the profile: kept as a pseudo-datum
+        keep = self.prior_at != j
+        const = (
+            self.prior_scale * (value - self.prior_mean[~keep]) / self.prior_sd[~keep]
+            if (~keep).any()
+            else np.zeros(0)
+        )
+        at = self.prior_at[keep]
+        at = np.where(at > j, at - 1, at)
+        return _HeldProblem(
+            law=self.law,
+            free=free,
+            base=base,
+            h=self.h,
+            y=self.y,
+            sw=self.sw,
+            lo=self.lo,
+            hi=self.hi,
+            log=self.log,
+            prior_at=at,
+            prior_mean=self.prior_mean[keep],
+            prior_sd=self.prior_sd[keep],
+            prior_scale=self.prior_scale,
+            constant=const,
+        )
+
+
+@dataclass(frozen=True)
+class _HeldProblem(_Problem):
+    """A problem with one parameter held (its prior term a constant pseudo-residual)."""
+
+    constant: Array = field(default_factory=lambda: np.zeros(0))
+
+    def residual(self, theta: Array) -> Array:
+        return np.concatenate([super().residual(theta), self.constant])
+
+    def jacobian(self, theta: Array) -> Array:
+        jac = super().jacobian(theta)
+        return np.vstack([jac, np.zeros((self.constant.size, jac.shape[1]))])
 
 
 def _solve(problem: _Problem, starts: list[Array]):
@@ -670,37 +810,70 @@ def _solve(problem: _Problem, starts: list[Array]):
     return best
 
 
-def _covariance(best, names, free: Array, zero_stage: float | None, msgs: list[str]) -> Array:
-    """Covariance of every parameter (zero for fixed ones and for those resting on a bound)."""
-    kf = int(free.sum())
+def _covariance(best, sigma: float, dof: int) -> Array:
+    """Covariance of the free parameters, :math:`s^2 (J^T J)^{-1}` of the (penalised) Jacobian;
+    a parameter resting on a bound gets zero rows here (its variance comes from its profile)."""
+    kf = best.params.size
+    keep = ~best.active
+    sub, _ = covariance_from_jacobian(best.jacobian[:, keep], sigma**2 * dof, dof)
+    cov_free = np.zeros((kf, kf))
+    cov_free[np.ix_(keep, keep)] = sub
+    return cov_free
+
+
+def _profile_all(
+    problem: _Problem,
+    best,
+    cov_free: Array,
+    which: Array,
+    sigma: float,
+    dof: int,
+    alpha: float = 0.05,
+) -> dict[int, tuple[float, float]]:
+    """Profile-likelihood intervals of the free parameters marked in ``which``
+    (:func:`~lakebalance.outlet.identify.profile_interval`)."""
+    from scipy.stats import t as t_dist
+
+    from .identify import profile_interval
+
     theta = best.params
-    cov_free = best.cov
-    if best.active.any():
-        # parameters on a bound are held there: their variance is conditional (zero)
-        keep = ~best.active
-        sub, _ = covariance_from_jacobian(best.jacobian[:, keep], best.rss, best.dof)
-        cov_free = np.zeros((kf, kf))
-        cov_free[np.ix_(keep, keep)] = sub
-        fnames = [n for n, f in zip(names, free) if f]
-        for i in np.flatnonzero(best.active):
-            why = (
-                "the highest zero-flow gauging"
-                if zero_stage is not None and np.isclose(theta[i], zero_stage)
-                else "a bound"
-            )
-            msgs.append(
-                f"parameter {fnames[i]} = {theta[i]:.6g} rests on {why}; its standard error is "
-                "not estimated (held fixed there)"
-            )
-    if not np.all(np.isfinite(cov_free)):
-        msgs.append(
-            "some parameters are not identified by the gaugings (singular Jacobian): e.g. a "
-            "control whose datum lies above every gauging; their standard errors are undefined"
+    lo_f, hi_f = problem.lo[problem.free], problem.hi[problem.free]
+    r0 = problem.residual(theta)
+    s_min = float(r0 @ r0)
+    tq = float(t_dist.ppf(1 - alpha / 2, dof)) if dof > 0 else np.inf
+    threshold = sigma**2 * tq**2
+
+    def objective(j: int, v: float, start: Array) -> tuple[float, Array]:
+        held = problem.held(j, v)
+        p0 = np.delete(start, j)
+        if p0.size == 0:
+            r = held.residual(p0)
+            return float(r @ r), start
+        res = solve_least_squares(
+            held.residual, held.jacobian, p0, bounds=(held.lo[held.free], held.hi[held.free])
         )
-    k = len(names)
-    cov = np.zeros((k, k))
-    cov[np.ix_(free, free)] = cov_free
-    return cov
+        return res.rss, np.insert(res.params, j, v)
+
+    out = {}
+    with np.errstate(all="ignore"):
+        se = np.sqrt(np.abs(np.diag(cov_free)))
+    for j in np.flatnonzero(which):
+        scale = se[j] if np.isfinite(se[j]) and se[j] > 0 else 0.0
+        width = hi_f[j] - lo_f[j]
+        scale = scale or 0.05 * max(abs(theta[j]), 1e-3)
+        if np.isfinite(width):
+            scale = min(scale, 0.05 * width)
+        out[int(j)] = profile_interval(
+            objective,
+            theta,
+            int(j),
+            lower=lo_f[j],
+            upper=hi_f[j],
+            s_min=s_min,
+            threshold=threshold,
+            scale=scale,
+        )
+    return out
 
 
 def _residual_table(g: _Gaugings, law: Law, pfull: Array, log: bool) -> pd.DataFrame:
@@ -799,16 +972,18 @@ def fit_rating_curve(
     """
     options = options or FitOptions()
     names = law.param_names
-    for what in ("fixed", "initial", "bounds"):
+    for what in ("fixed", "initial", "bounds", "priors"):
         _check_names(names, getattr(options, what), what)
+    priors = _check_priors(options)
     g = _gaugings(stage_m, discharge_m3s, weights, dates, options.residuals)
     lo, hi = _bounds(law, g.stages, options)
     free = np.array([n not in options.fixed for n in names])
-    _check_identifiable(g, int(free.sum()))
+    _check_identifiable(g, int(free.sum()), len(priors))
     starts = _starting_values(law, g, lo, hi, options)
 
     log = options.residuals == "log"
     r = g.in_resid
+    free_names = [n for n, f in zip(names, free) if f]
     problem = _Problem(
         law=law,
         free=free,
@@ -819,11 +994,34 @@ def fit_rating_curve(
         lo=lo,
         hi=hi,
         log=log,
+        prior_at=np.array([free_names.index(n) for n in priors], dtype=int),
+        prior_mean=np.array([priors[n][0] for n in priors], dtype=float),
+        prior_sd=np.array([priors[n][1] for n in priors], dtype=float),
     )
-    best = _solve(problem, starts)
+    problem, best, sigma, dof = _solve_penalised(problem, starts)
     msgs = g.msgs
-    cov = _covariance(best, names, free, g.stages.highest_zero_flow_m, msgs)
+    cov_free = _covariance(best, sigma, dof)
     pfull = np.array(problem.full_params(best.params), dtype=float)
+    params = {n: float(v) for n, v in zip(names, pfull)}
+    from .identify import control_support
+
+    support = control_support(
+        law, params, dict(zip(names, free.tolist())), tuple(priors), problem.h
+    )
+    weak_names = {n for c in support if c.weak for n in c.free}
+    profile, cov_free = _honest_intervals(
+        problem,
+        best,
+        cov_free,
+        free_names=free_names,
+        weak_names=weak_names,
+        sigma=sigma,
+        dof=dof,
+        stages=g.stages,
+        msgs=msgs,
+    )
+    for c in support:
+        msgs.extend(c.messages())
     boot = boot_res = None
     if options.bootstrap > 0:
         if rng is None:
@@ -838,15 +1036,18 @@ def fit_rating_curve(
         boot, boot_res = _bootstrap(problem, best, options.bootstrap, rng)
     for m in msgs:
         warnings.warn(f"rating: {m}", DataQualityWarning, stacklevel=2)
+    k = len(names)
+    cov = np.zeros((k, k))
+    cov[np.ix_(free, free)] = cov_free
     return RatingFit(
         law=law,
-        params={n: float(v) for n, v in zip(names, pfull)},
+        params=params,
         param_names=names,
         cov=cov,
         free=tuple(bool(f) for f in free),
         n=int(r.sum()),
-        dof=best.dof,
-        sigma=best.sigma,
+        dof=dof,
+        sigma=sigma,
         residuals=options.residuals,
         table=_residual_table(g, law, pfull, log),
         lower=np.where(free, lo, pfull),
@@ -856,7 +1057,153 @@ def fit_rating_curve(
         bootstrap_residuals=boot_res,
         zero_flow_stage_m=g.stages.highest_zero_flow_m,
         derived=law.derived(list(pfull)),
+        priors=dict(priors),
+        profile={free_names[j]: v for j, v in profile.items()},
+        support=support,
     )
+
+
+def _check_priors(options: FitOptions) -> dict[str, tuple[float, float]]:
+    """The priors as ``name -> (mean, sd)``, each on a free parameter with a positive finite sd."""
+    out = {}
+    for name, pair in options.priors.items():
+        try:
+            mean, sd = (float(x) for x in pair)
+        except (TypeError, ValueError):
+            raise ConfigError(
+                f"rating: the prior of '{name}' must be [value, standard error], got {pair!r}"
+            ) from None
+        if name in options.fixed:
+            raise OptionError("priors", f"rating: '{name}' is fixed; it cannot also have a prior")
+        if not (np.isfinite(mean) and np.isfinite(sd) and sd > 0):
+            raise ConfigError(
+                f"rating: the prior of '{name}' needs a finite value and a positive standard "
+                f"error, got [{mean}, {sd}]"
+            )
+        out[name] = (mean, sd)
+    if out and options.bootstrap > 0:
+        raise ConfigError(
+            "rating: a bootstrap refits without the priors; use either priors (intervals from "
+            "the penalised fit and its profiles) or bootstrap = 0"
+        )
+    return out
+
+
+def _solve_penalised(problem: _Problem, starts: list[Array]):
+    """Solve, with the priors' pseudo-residuals scaled by the residual standard deviation.
+
+    Notes
+    -----
+    The penalised sum of squares :math:`\\sum_i r_i^2 + s^2 \\sum_j (\\theta_j - \\mu_j)^2 /
+    \\tau_j^2` is :math:`s^2` times the negative log posterior of a Gaussian likelihood and
+    independent Gaussian priors :math:`N(\\mu_j, \\tau_j^2)`: its minimum is the posterior mode
+    and :math:`s^2 (J^T J)^{-1}` of the augmented Jacobian the posterior covariance of the
+    linearised model, the prior entering as additional data (Gelman et al., 2013, *Bayesian Data
+    Analysis*, 3rd ed., §14.8). The residual variance is estimated from the data residuals with
+    the priors counted as observations, :math:`s^2 = \\sum_i r_i^2/(n + m - p)`, iterated with the
+    fit to a fixed point.
+
+    Returns
+    -------
+    problem, best, sigma, dof
+    """
+    m = problem.prior_at.size
+    kf = int(problem.free.sum())
+    n = problem.h.size
+    best = _solve(problem, starts)
+    if m == 0:
+        return problem, best, best.sigma, best.dof
+    dof = n + m - kf
+    scale = problem.prior_scale
+    for _ in range(50):
+        rd = problem.data_residual(best.params)
+        new = float(np.sqrt(rd @ rd / dof)) if dof > 0 else float("nan")
+        if not np.isfinite(new):
+            break
+        converged = abs(new - scale) <= 1e-10 * max(scale, 1e-300)
+        scale = new
+        problem = replace(problem, prior_scale=scale)
+        best = _solve(problem, [np.array(problem.full_params(best.params), dtype=float)])
+        if converged:
+            break
+    rd = problem.data_residual(best.params)
+    sigma = float(np.sqrt(rd @ rd / dof)) if dof > 0 else float("nan")
+    return problem, best, sigma, dof
+
+
+def _honest_intervals(
+    problem: _Problem,
+    best,
+    cov_free: Array,
+    *,
+    free_names: list[str],
+    weak_names: set[str],
+    sigma: float,
+    dof: int,
+    stages: GaugedStages,
+    msgs: list[str],
+) -> tuple[dict[int, tuple[float, float]], Array]:
+    """Profile-likelihood intervals where the Wald ones say nothing, and the covariance they
+    imply.
+
+    A free parameter is profiled when it rests on a bound, when its variance is not finite, when
+    its Wald interval leaves its bounds, or when its control is weakly identified. Its variance
+    becomes :math:`((u - l) / (2 t))^2` of the profile interval :math:`[l, u]`, its covariances
+    rescaled with it (correlations kept; zero for one on a bound), so draws of the rating carry
+    it; an open interval leaves the variance undefined (NaN) and says so.
+    """
+    from scipy.stats import t as t_dist
+
+    theta = best.params
+    lo_f, hi_f = problem.lo[problem.free], problem.hi[problem.free]
+    with np.errstate(invalid="ignore"):
+        se = np.sqrt(np.diag(cov_free))
+    tq = float(t_dist.ppf(0.975, dof)) if dof > 0 else np.inf
+    which = best.active | ~np.isfinite(se)
+    which |= (theta - tq * se < lo_f) | (theta + tq * se > hi_f)
+    which |= np.array([n in weak_names for n in free_names], dtype=bool)
+    if not which.any() or not np.isfinite(sigma) or dof <= 0:
+        if not np.all(np.isfinite(cov_free)):
+            msgs.append(
+                "some parameters are not identified by the gaugings (singular Jacobian): e.g. a "
+                "control whose datum lies above every gauging; their standard errors are undefined"
+            )
+        return {}, cov_free
+    profile = _profile_all(problem, best, cov_free, which, sigma, dof)
+    cov = cov_free.copy()
+    for j, (a, b) in profile.items():
+        name = free_names[j]
+        if best.active[j]:
+            why = (
+                "the highest zero-flow gauging"
+                if stages.highest_zero_flow_m is not None
+                and np.isclose(theta[j], stages.highest_zero_flow_m)
+                else "a bound"
+            )
+            msgs.append(
+                f"parameter {name} = {theta[j]:.6g} rests on {why}; its interval [{a:.6g}, "
+                f"{b:.6g}] is from the profile likelihood"
+            )
+        if np.isfinite(a) and np.isfinite(b):
+            var = ((b - a) / (2 * tq)) ** 2
+            old = cov[j, j]
+            if best.active[j] or not (np.isfinite(old) and old > 0):
+                cov[j, :] = 0.0
+                cov[:, j] = 0.0
+                cov[j, j] = var
+            else:
+                f = np.sqrt(var / old)
+                cov[j, :] *= f
+                cov[:, j] *= f
+        else:
+            cov[j, :] = np.nan
+            cov[:, j] = np.nan
+            msgs.append(
+                f"parameter {name}: the gaugings do not bound it (profile interval "
+                f"[{a:.6g}, {b:.6g}]); its variance is undefined, so draws of the rating "
+                "cannot carry it; give it a prior (value and standard error)"
+            )
+    return profile, cov
 
 
 def _bootstrap(
