@@ -1006,6 +1006,7 @@ class ReportResult:
     longitude: float | None = None
     messages: tuple[str, ...] = ()
     pdf: Path | None = None  # None when not asked for, or WeasyPrint is not here (see messages)
+    filing: dict[str, Any] | None = None  # the archive filing and its restatements, when filed
 
 
 def _safe_name(text: str) -> str:
@@ -1129,9 +1130,14 @@ def _write_report(
         year = complete[-1] if complete else present[-1]
     sections, head, summary = build_sections(run, int(year))
     prov = _provenance_dict(run)
-    filing = None
-
     fmt = formatter(run)
+    archive = file_to if file_to is not None else site.report.archive
+    filing = None
+    if archive is not None:
+        from .archive import prepare_filing
+
+        filing = prepare_filing(archive, run, int(year), prov, fmt)
+
     sections = [_without_omitted(s) for s in sections]
     tables = [t for s in sections for t in s.tables]
     csv_paths = {}
@@ -1210,6 +1216,18 @@ def _write_report(
         else:
             messages.append(f"PDF not written: {why}")
     folder.commit()  # the whole folder at once: never a mix of two runs
+    if filing is not None:  # filed once the report is complete
+        filing.record(folder.root)
+        n = len(filing.restatements)
+        messages.append(
+            f"filed into {filing.folder / 'archive.sqlite'}: "
+            + (
+                "first filing of this site"
+                if filing.previous is None
+                else f"{n} earlier figure{'s' if n != 1 else ''} restated since "
+                f"{filing.previous['filed_utc']}"
+            )
+        )
     return ReportResult(
         name=site.site.name,
         folder=folder.root,
@@ -1222,6 +1240,7 @@ def _write_report(
         latitude=None if location is None else location[0],
         longitude=None if location is None else location[1],
         messages=tuple(messages),
+        filing=None if filing is None else filing.to_dict(),
     )
 
 
