@@ -39,6 +39,7 @@ __all__ = [
     "column_kind",
     "convert",
     "axis_label",
+    "text_table",
 ]
 
 System = Literal["SI", "US"]
@@ -152,7 +153,7 @@ def number(value: float, digits: int = 3, *, decimals: int | None = None) -> str
             order = math.floor(math.log10(abs(x)))
         decimals = max(digits - 1 - order, 0)
     text = f"{x:,.{decimals}f}"
-    return "0" if re.fullmatch(r"-?0(\.0*)?", text) else text
+    return text.lstrip("-") if re.fullmatch(r"-0(\.0*)?", text) else text
 
 
 def quantity(
@@ -387,7 +388,7 @@ class Formatter:
         if kind == "percent":
             return Rule("percent", "%", 1.0, None, None, "whole, one decimal below 10")
         if kind == "days":
-            return Rule("days", "days", 1.0, None, 0, "whole days")
+            return Rule("days", "days", 1.0, 3, None, "3 significant digits, 4 from 1,000 up")
         if isinstance(sample, int | bool) or column in ("water_year", "days", "complete_days"):
             return Rule("count", "", 1.0, None, 0, "whole number")
         return Rule("number", "", 1.0, 4, None, "4 significant digits")
@@ -435,3 +436,86 @@ def _ordinal(n: int) -> str:
     if 10 <= n % 100 <= 20:
         return "th"
     return {1: "st", 2: "nd", 3: "rd"}.get(n % 10, "th")
+
+
+def text_table(
+    frame, fmt: Formatter | None = None, *, width: int = 120, index: bool = True,
+    header_width: int = 14,
+) -> str:  # fmt: skip
+    """A table for a terminal: headers in words with their display unit (wrapped over a few
+    lines), numbers by the display rules, at most ``width`` characters a line; columns that do
+    not fit go into a further block that repeats the first column.
+
+    Parameters
+    ----------
+    frame : pandas.DataFrame
+        SI values under unit-bearing column names; its index is the first column when ``index``.
+    fmt : Formatter, optional
+        Display units and stage resolution (default SI, 1 mm).
+    width : int
+        Largest line length, characters.
+    header_width : int
+        Width a header is wrapped to when its cells are narrower.
+    """
+    import textwrap
+
+    import pandas as pd
+
+    fmt = fmt or Formatter()
+    data = frame.reset_index() if index else frame.reset_index(drop=True)
+    if index and frame.index.name is None:
+        data = data.rename(columns={data.columns[0]: ""})
+    columns = []
+    for c in data.columns:
+        values = [v.item() if hasattr(v, "item") else v for v in data[c].tolist()]
+        if isinstance(values[0] if values else None, pd.Timestamp):
+            cells = [v.strftime("%Y-%m-%d") for v in values]
+        elif pd.api.types.is_numeric_dtype(data[c]) and not pd.api.types.is_bool_dtype(data[c]):
+            sample = next((v for v in values if v is not None and v == v), None)
+            rule = fmt.rule(str(c), sample)
+            cells = [fmt.format(rule, v) for v in values]
+        else:
+            cells = [
+                "–" if v is None else ("yes" if v else "no") if isinstance(v, bool) else str(v)
+                for v in values
+            ]
+        numeric = pd.api.types.is_numeric_dtype(data[c])
+        cell_w = max([len(x) for x in cells] + [1])
+        title = fmt.header(str(c)) if str(c) else ""
+        unit = ""
+        m = re.search(r" (\([^()]*\))$", title)
+        if m:  # the unit on a line of its own
+            title, unit = title[: m.start()], m.group(1)
+        w = max(cell_w, len(unit), min(header_width, len(title)),
+                *(len(word) for word in title.split() or [""]))  # fmt: skip
+        lines = (textwrap.wrap(title, w) or [""]) + ([unit] if unit else [])
+        columns.append((lines, cells, w, numeric))
+    first, rest = columns[0], columns[1:]
+    blocks: list[list] = []
+    current: list = []
+    used = first[2]
+    for col in rest:
+        if current and used + 2 + col[2] > width:
+            blocks.append(current)
+            current, used = [], first[2]
+        current.append(col)
+        used += 2 + col[2]
+    blocks.append(current)
+    out: list[str] = []
+    for block in blocks:
+        cols = [first, *block]
+        depth = max(len(c[0]) for c in cols)
+        for i in range(depth):
+            parts = []
+            for lines, _, w, numeric in cols:
+                text = lines[i - (depth - len(lines))] if i >= depth - len(lines) else ""
+                parts.append(text.rjust(w) if numeric else text.ljust(w))
+            out.append("  ".join(parts).rstrip())
+        for r in range(len(first[1])):
+            parts = [
+                (cells[r].rjust(w) if numeric else cells[r].ljust(w))
+                for _, cells, w, numeric in cols
+            ]
+            out.append("  ".join(parts).rstrip())
+        out.append("")
+    return "\n".join(out).rstrip("\n")

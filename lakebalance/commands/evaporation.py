@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from ._common import LakebalanceWarnings, add_json, add_site, open_lake
+from ._common import LakebalanceWarnings, add_json, add_site, open_lake, wrap
 
 HELP = "lake evaporation: monthly totals of every method the weather allows, side by side"
 
@@ -42,35 +42,36 @@ def run(args: argparse.Namespace) -> int:
     if args.json:
         print(dumps({"site": site.site.name, **result.to_dict(args.unit, warnings=messages)}))
         return 0
-    monthly = result.monthly(args.unit)
-    diffs = result.monthly_differences(args.unit)
-    print(f"{site.site.name}: lake evaporation by {result.method} (monthly totals, {args.unit})")
+    import pandas as pd
+
+    from ..display import Formatter, display_units, text_table
+
+    monthly = result.monthly("mm")
+    diffs = result.monthly_differences("mm")
+    # the depth unit asked for: inches show in US customary units, anything else in mm
+    us = str(args.unit).strip().lower() in ("in", "inch", "inches")
+    display = Formatter(display_units("US" if us else "SI"))
+    print(f"{site.site.name}: lake evaporation by {result.method} (monthly totals)")
     methods = list(result.available)
-    width = max(9, *(len(m) + 1 for m in methods))
-    head = f"{'month':<8}" + "".join(f"{m:>{width}}" for m in methods)
-    head += f"{'days':>6}{'filled':>7}"
     others = [m for m in methods if m != result.method]
-    head += "".join(f"{'Δ' + m:>{width + 1}}" for m in others)
-    print(head)
-
-    def fmt(x: float, w: int) -> str:
-        return f"{'-':>{w}}" if x != x else f"{x:>{w}.1f}"
-
-    for month, row in monthly.iterrows():
-        line = f"{str(month):<8}" + "".join(fmt(row[m], width) for m in methods)
-        line += f"{int(row['days']):>6}{int(row['filled_days']):>7}"
-        line += "".join(fmt(diffs.loc[month, m], width + 1) for m in others)
-        print(line)
-    line = f"{'total':<8}" + "".join(fmt(monthly[m].sum(min_count=1), width) for m in methods)
-    line += f"{int(monthly['days'].sum()):>6}{int(monthly['filled_days'].sum()):>7}"
-    line += "".join(fmt(diffs[m].sum(min_count=1), width + 1) for m in others)
-    print(line)
-    print(f"Δ columns: each method's monthly total minus {result.method}'s.")
+    frame = pd.DataFrame(index=pd.Index([str(m) for m in monthly.index], name="month"))
+    for m in methods:
+        frame[f"{m}_mm"] = monthly[m].to_numpy()
+    frame["days"] = monthly["days"].astype(int).to_numpy()
+    frame["filled_days"] = monthly["filled_days"].astype(int).to_numpy()
+    for m in others:
+        frame[f"{m}_minus_{result.method}_mm"] = diffs[m].to_numpy()
+    total = {c: frame[c].sum(min_count=1) for c in frame.columns}
+    frame.loc["total"] = [total[c] for c in frame.columns]
+    frame["days"] = frame["days"].astype(int)
+    frame["filled_days"] = frame["filled_days"].astype(int)
+    print(text_table(frame, display))
+    print(f"'minus' columns: each method's monthly total minus {result.method}'s.")
     for key, value in result.inputs.items():
         print(f"input: {key}: {value}")
     for note in result.notes:
         print(f"note: {note}")
     for msg in messages:
         print(f"warning: {msg}")
-    print(CAUTION)
+    print(wrap(CAUTION))
     return 0
