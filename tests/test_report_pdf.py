@@ -34,7 +34,9 @@ A4_PT = (595.28, 841.89)  # 210 mm × 297 mm at 72 pt per inch (ISO 216)
 
 def _words(text: str) -> str:
     """Text with all white space removed: line wrapping and hyphen-free breaks do not count."""
-    return re.sub(r"\s+", "", text)
+    import unicodedata
+
+    return re.sub(r"\s+", "", unicodedata.normalize("NFKC", text))  # ligatures (ﬁ) as letters
 
 
 @pytest.fixture(scope="module")
