@@ -557,3 +557,18 @@ def test_report_is_finite_where_it_says_numbers(summary):
         assert value is None or isinstance(value, int | float | str), key
         if isinstance(value, float):
             assert math.isfinite(value), key
+
+
+def test_method_notes_are_with_the_provenance(doc):
+    """How the numbers were computed (quadrature, Monte Carlo settings) is listed with the
+    provenance, not in the balance section a client reads."""
+    from lakebalance.report.build import is_method_note
+
+    balance = " ".join(
+        p.text_content() for p in doc.xpath("//section[@id='balance']/p[not(@class)]")
+    )
+    assert "quadrature" not in balance.lower() and "draws" not in balance.lower()
+    listed = [li.text_content() for li in doc.xpath("//section[@id='provenance']//ul/li")]
+    assert listed and all(is_method_note(n) for n in listed)
+    assert any("quadrature" in n.lower() for n in listed)
+    assert not is_method_note("46 of 6574 days have a missing term (residual left missing)")

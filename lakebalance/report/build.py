@@ -702,7 +702,8 @@ def _balance_section(run: Lake, year: int, days: pd.DatetimeIndex) -> Section:
     cum = _cumulative_figure(run, days)
     if cum is not None:
         figures.append(cum)
-    paragraphs = list(run.get("balance").notes)
+    # how the numbers were made (quadrature, draws, error settings) goes to the provenance
+    paragraphs = [n for n in run.get("balance").notes if not is_method_note(n)]
     return Section(
         "balance",
         "Water balance",
@@ -710,6 +711,19 @@ def _balance_section(run: Lake, year: int, days: pd.DatetimeIndex) -> Section:
         tables=(annual_t, monthly_t),
         figures=tuple(figures),
     )
+
+
+_METHOD_WORDS = re.compile(
+    r"quadrature|monte carlo|draws|covariance|day-boundary|relative errors|integrated along",
+    re.I,
+)
+
+
+def is_method_note(note: str) -> bool:
+    """Whether a step's note says how the numbers were computed (numerical method, Monte Carlo
+    settings) rather than something about the lake or its records: such notes are listed with
+    the provenance, not in the text a client reads first."""
+    return bool(_METHOD_WORDS.search(note))
 
 
 def _flags_section(run: Lake, days: pd.DatetimeIndex) -> Section:
@@ -1203,6 +1217,9 @@ def _write_report(
             for s in sections
         ],
         provenance=prov,
+        method_notes=[]
+        if run.get("balance") is None
+        else [n for n in run.get("balance").notes if is_method_note(n)],
         filing=None if filing is None else filing.to_dict(),
     )
     html_path = folder.write_text("report.html", html)
