@@ -223,6 +223,7 @@ _WORDS: dict[str, str] = {
     "max_inflow": "largest sustained inflow",
     "within_range": "within the relation's range",
     "probability": "chance of reaching it",
+    "members_reaching": "ensemble members reaching it",
     "reach_10pct": "10 % of members there by",
     "reach_50pct": "50 % of members there by",
     "reach_90pct": "90 % of members there by",

@@ -18,7 +18,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
-from ..display import Formatter, Rule, header, percent
+from ..display import Formatter, Rule, count_of, header, percent
 from ..errors import LakebalanceError
 from ..stats import water_year_of
 from ..units import SECONDS_PER_DAY
@@ -1378,6 +1378,8 @@ def _drawdown_section(run: Lake) -> Section:
             "stage_m": o.stage_m,
             "direction": o.direction,
             "probability_pct": 100.0 * o.probability,
+            # the same chance as a count of its basis, as a person says it
+            "members_reaching": count_of(round(o.probability * fc.members), fc.members, "members"),
             "reach_10pct_days": o.days_10,
             "reach_50pct_days": o.days_50,
             "reach_90pct_days": o.days_90,
@@ -1391,6 +1393,7 @@ def _drawdown_section(run: Lake) -> Section:
             "stage_m",
             "direction",
             "probability_pct",
+            "members_reaching",
             "reach_10pct_days",
             "reach_50pct_days",
             "reach_90pct_days",
