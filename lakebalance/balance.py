@@ -673,8 +673,12 @@ class Balance:
         cols += ["outflow_m3", "withdrawal_m3", "release_m3", "residual_m3", "closure_error_pct"]
         if "residual_p05_m3" in wy:
             cols += ["residual_p05_m3", "residual_p95_m3", "p_nonzero"]
-        with pd.option_context("display.width", 200, "display.max_columns", 30):
-            lines.append(wy[cols].to_string(float_format=lambda v: f"{v:,.4g}"))
+        from .display import text_table
+
+        shown = wy[[c for c in cols if c != "p_nonzero"]].copy()
+        if "p_nonzero" in wy:
+            shown["nonzero_confidence_pct"] = 100.0 * wy["p_nonzero"]
+        lines.append(text_table(shown))
         lines += ["", *self.notes]
         return Summary("\n".join(lines), "water balance")
 

@@ -559,7 +559,9 @@ class Dynamics:
         def table(title: str, frame: pd.DataFrame, empty: str) -> list[str]:
             if frame.empty:
                 return ["", f"{title} {empty}"]
-            return ["", title, frame.to_string(float_format=lambda v: f"{v:.4g}")]
+            from .display import text_table
+
+            return ["", title, text_table(frame)]
 
         lines += table(
             "largest sustained inflow that keeps the lake at or below each level:",
@@ -569,13 +571,13 @@ class Dynamics:
         lines += table(
             "response time tau(h) = A(h) / (dLoss/dh):", self.response, "none (no stage given)"
         )
+        from .display import text_table
+
         if "residence_outflow_days" in self.residence:
             lines += [
                 "",
                 "residence time (mean volume / mean outflow; / mean total losses), days:",
-                self.residence[["residence_outflow_days", "residence_losses_days"]].to_string(
-                    float_format=lambda v: f"{v:.4g}", na_rep="-"
-                ),
+                text_table(self.residence[["residence_outflow_days", "residence_losses_days"]]),
             ]
             if (
                 self.residence[["residence_outflow_days", "residence_losses_days"]]

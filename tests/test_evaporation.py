@@ -346,7 +346,7 @@ def test_cli_evaporation_json_lists_pan_and_three_computed_methods(tmp_path, cap
     assert len(doc["monthly"]) == 14 and "penman-pan" in doc["differences"][0]
     assert main(["evaporation", str(path), "--method", "fao56"]) == 0
     out = capsys.readouterr().out
-    assert "by fao56" in out and "Δpenman" in out and "total" in out
+    assert "by fao56" in out and "monthly total minus fao56's" in out and "total" in out
 
 
 def test_cli_evaporation_impossible_method_is_one_error_line_exit_2(tmp_path, capsys):

@@ -70,7 +70,7 @@ def runs(tmp_path_factory):
         str(MEMBERS),
     )
     api_dir = tmp_path_factory.mktemp("report_api")
-    result = make_report(SITE, api_dir, seed=SEED, draws=DRAWS, members=MEMBERS)
+    result = make_report(SITE, api_dir, seed=SEED, draws=DRAWS, members=MEMBERS, pdf=False)
     return {"cli": cli_dir, "proc": proc, "api": api_dir, "result": result}
 
 
@@ -307,51 +307,145 @@ def _read_csv(path: Path) -> tuple[list[str], list[list[str]]]:
     return rows[0], rows[1:]
 
 
-def _same_cell(html: str, value, csv_text: str) -> bool:
-    """HTML text, JSON value and CSV text of one cell say the same thing."""
+def _parse(text: str) -> float:
+    return float(text.replace(",", "").replace("%", "").strip())
+
+
+def _shown(value, rule: dict) -> float | int | str | None:
+    """The number a person should read for the JSON ``value`` under the JSON ``rule``, rounded
+    here independently of lakebalance.display: significant digits with Python's ``g`` format,
+    fixed decimals with :func:`round` (3 significant digits, 4 from 1,000 up, is the rule the
+    report states)."""
+    if value is None or isinstance(value, str | bool):
+        return value
+    kind = rule["kind"]
+    if kind == "count":
+        return int(round(value))
+    if kind == "percent":
+        return round(value, 1 if abs(value) < 10 else 0)
+    x = value * rule["factor_from_si"]
+    if rule["decimals"] is not None:
+        return round(x, rule["decimals"])
+    digits = rule["significant_digits"]
+    if kind != "number" and abs(x) >= 1000:
+        digits = 4
+    return float(f"{x:.{digits}g}")
+
+
+def _same_cell(html: str, value, csv_text: str, rule: dict) -> bool:
+    """HTML text, JSON value and CSV text of one cell say the same thing: the CSV holds the JSON
+    value at full precision, the HTML the value rounded by its column's stated rule."""
     if value is None:
         return html == DASH and csv_text == ""
     if isinstance(value, bool):
         return html == ("yes" if value else "no") and csv_text in ("True", "False", "")
     if isinstance(value, int | float):
         try:
-            return float(html) == float(value) and float(csv_text) == float(value)
+            shown = _parse(html)
+            return float(csv_text) == float(value) and shown == pytest.approx(
+                _shown(value, rule), rel=1e-12, abs=1e-15
+            )
         except ValueError:
             return False
     return html == str(value) and csv_text == str(value)
 
 
+_VOLUME = {"kind": "volume", "factor_from_si": 1e-3, "decimals": None, "significant_digits": 3}
+
+
 def test_same_cell_rejects_differences():
-    """The comparison itself can fail: a rounded-away digit or a blank is a difference."""
-    assert _same_cell("12.3", 12.3, "12.3")
-    assert not _same_cell("12.3", 12.34, "12.34")
-    assert not _same_cell("12.3", 12.3, "12.4")
-    assert not _same_cell("12", None, "")
-    assert _same_cell(DASH, None, "")
-    assert _same_cell("sill.C", "sill.C", "sill.C")
+    """The comparison itself can fail: a wrong digit, a value not at full precision in the CSV,
+    a blank, a unit not applied."""
+    assert _same_cell("4,593", 4593462.0, "4593462.0", _VOLUME)
+    assert not _same_cell("4,594", 4593462.0, "4593462.0", _VOLUME)
+    assert not _same_cell("4,593", 4593462.0, "4593000.0", _VOLUME)
+    assert not _same_cell("4,593,462", 4593462.0, "4593462.0", _VOLUME)
+    assert not _same_cell("12", None, "", _VOLUME)
+    assert _same_cell(DASH, None, "", _VOLUME)
+    assert _same_cell("sill.C", "sill.C", "sill.C", _VOLUME)
+
+
+#: Display factors from SI, from NIST SP 811 (2008) Appendix B: 1 ft = 0.3048 m (exact),
+#: 1 acre-foot = 1.233489E+03 m³, 1 ft³/s = 2.831685E-02 m³/s, 1 in = 0.0254 m (exact),
+#: 1 acre = 4.046873E+03 m²; SI volumes in thousand m³, areas in km², depths in mm.
+NIST_FACTOR = {
+    ("SI", "volume"): 1e-3,
+    ("SI", "flow"): 1.0,
+    ("SI", "area"): 1e-6,
+    ("SI", "depth"): 1.0,
+    ("SI", "length"): 1.0,
+    ("US", "volume"): 1 / 1.233489e3,
+    ("US", "flow"): 1 / 2.831685e-2,
+    ("US", "area"): 1 / 4.046873e3,
+    ("US", "depth"): 1 / 25.4,
+    ("US", "length"): 1 / 0.3048,
+}
+
+
+def _check_factors(summary) -> None:
+    system = summary["display_units"]
+    for t in summary["tables"].values():
+        for rule in t["display"]:
+            kind = "depth" if rule["kind"] == "depth_rate" else rule["kind"]
+            if (system, kind) in NIST_FACTOR:
+                assert rule["factor_from_si"] == pytest.approx(
+                    NIST_FACTOR[(system, kind)], rel=2e-6
+                ), (system, rule)
 
 
 def test_every_table_number_equals_json_and_csv(out, doc, summary):
-    """Each HTML table cell, parsed as a number where it is one, equals the value in
-    ``summary.json`` and in the table's CSV exactly (the report's stated promise)."""
+    """Each HTML table cell is its JSON value rounded by the column's stated rule (in the stated
+    display unit, whose factor from SI agrees with NIST SP 811); the CSV holds the JSON value at
+    full precision (property over every number of the demo report)."""
+    _check_factors(summary)
     shown = _html_tables(doc)
     assert set(shown) == set(summary["tables"])
     checked = 0
     for table_id, (head, rows) in shown.items():
         js = summary["tables"][table_id]
         csv_head, csv_rows = _read_csv(out / f"{table_id}.csv")
-        assert head == js["columns"] == csv_head, table_id
+        assert js["columns"] == csv_head, table_id
+        assert head == js["headers"], table_id
         assert len(rows) == len(js["rows"]) == len(csv_rows), table_id
         for r, (h_row, j_row, c_row) in enumerate(zip(rows, js["rows"], csv_rows, strict=True)):
             assert len(h_row) == len(j_row) == len(c_row) == len(head), (table_id, r)
             for c, (h, j, t) in enumerate(zip(h_row, j_row, c_row, strict=True)):
-                assert _same_cell(h, j, t), (table_id, r, head[c], h, j, t)
+                assert _same_cell(h, j, t, js["display"][c]), (table_id, r, head[c], h, j, t)
                 checked += isinstance(j, int | float) and not isinstance(j, bool)
     assert checked > 200, f"only {checked} numbers compared"
 
 
+def test_headers_are_words_with_units(summary):
+    """No header reads like code: no underscores, no scaled names (``1e3``), and every column
+    with a unit in its SI name says its display unit in brackets."""
+    for table_id, t in summary["tables"].items():
+        for column, head, rule in zip(t["columns"], t["headers"], t["display"], strict=True):
+            assert "_" not in head and "1e3" not in head, (table_id, head)
+            if rule["kind"] in ("volume", "flow", "area", "depth", "length", "percent"):
+                assert head.endswith(f"({rule['unit']})"), (table_id, column, head)
+
+
+def test_one_display_unit_per_quantity(summary):
+    """One report, one display unit for each kind of quantity."""
+    seen: dict[str, set] = {}
+    for t in summary["tables"].values():
+        for rule in t["display"]:
+            seen.setdefault(rule["kind"], set()).add(rule["unit"])
+    for kind, units in seen.items():
+        assert len(units) == 1, (kind, units)
+
+
+def test_no_table_is_all_dashes(doc):
+    """A table whose every value is missing is left out with its reason, never shown as dashes."""
+    for head, rows in _html_tables(doc).values():
+        for c in range(1, len(head)):
+            column = [row[c] for row in rows]
+            assert not rows or any(cell != DASH for cell in column), head[c]
+
+
 def test_xlsx_sheets_equal_csv(out, summary):
-    """The workbook holds the same tables as the CSV files (read back with openpyxl)."""
+    """The workbook holds the same tables as the CSV files (read back with openpyxl), to the 15
+    significant digits a spreadsheet keeps."""
     import pandas as pd
 
     sheets = pd.read_excel(out / "tables.xlsx", sheet_name=None, engine="openpyxl")
@@ -359,28 +453,35 @@ def test_xlsx_sheets_equal_csv(out, summary):
     for table_id, frame in sheets.items():
         from_csv = pd.read_csv(out / f"{table_id}.csv")
         pd.testing.assert_frame_equal(
-            frame, from_csv, check_dtype=False, check_exact=True, obj=table_id
-        )
+            frame, from_csv, check_dtype=False, check_exact=False, rtol=1e-14, obj=table_id
+        )  # a spreadsheet number carries 15 significant digits (Excel specifications, from memory)
 
 
 def test_key_numbers_equal_json_headline(out, doc, summary, runs):
-    """The key-number boxes and the plain-words summary of the HTML say what the JSON says."""
+    """The key-number tiles are the JSON headline rounded by their stated rule, in the report's
+    display unit; the plain-words summary of the HTML says what the JSON says."""
     boxes = doc.xpath("//*[@data-key]")
     assert boxes, "no key numbers shown"
     head = summary["headline"]
+    tiles = {t["key"]: t for t in summary["key_numbers"]}
     for box in boxes:
         key = box.get("data-key")
         assert head.get(key) is not None, key
-        assert float(box.text_content().strip()) == float(head[key]), key
+        rule = tiles[key]["display"]
+        shown = _parse(box.text_content())
+        assert shown == pytest.approx(_shown(head[key], rule), rel=1e-12, abs=1e-15), key
+        unit = box.getparent().xpath("./span[@class='unit']")
+        assert unit and unit[0].text_content() == rule["unit"], key
     keys = {b.get("data-key") for b in boxes}
     assert {"closure_percent", "residual_m3"} <= keys
     paragraphs = [" ".join(p.text_content().split()) for p in doc.xpath("//section[@id='year']/p")]
-    assert paragraphs == [" ".join(s.split()) for s in summary["summary"]]
-    # the annual table's row of the reported year carries the headline's residual
+    assert paragraphs[: len(summary["summary"])] == [
+        " ".join(s.split()) for s in summary["summary"]
+    ]
+    # the annual table's row of the reported year carries the headline's residual exactly
     annual = summary["tables"]["annual"]
     row = next(r for r in annual["rows"] if r[0] == summary["water_year"])
-    residual_1e3 = row[annual["columns"].index("residual_1e3_m3")]
-    assert abs(residual_1e3 * 1e3 - head["residual_m3"]) <= 50.0  # 0.1 × 10³ m³ shown
+    assert row[annual["columns"].index("residual_m3")] == head["residual_m3"]
     # the API's result carries the same headline as the file of the command-line run
     assert runs["result"].headline == head
 
@@ -423,6 +524,14 @@ def test_provenance(out, doc, summary):
     assert prov["site_sha256"] in text
     for item in prov["inputs"]:
         assert item["sha256"] in text
+        # shown relative to the site file's folder, never as an absolute local path
+        assert (SITE.parent / item["relative_path"]).resolve() == Path(item["path"]).resolve()
+        assert item["relative_path"] in text
+        assert not Path(item["relative_path"]).is_absolute()
+    assert str(ROOT) not in text, "an absolute local path in the HTML"
+    libraries = " ".join(doc.xpath("//p[@id='libraries']")[0].text_content().split())
+    for name, version in prov["libraries"].items():
+        assert f"{name} {version}" in libraries
     assert f"balance = {SEED}" in " ".join(text.split())
     assert re.fullmatch(r"\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d\+00:00", prov["run_utc"])
 
@@ -448,3 +557,18 @@ def test_report_is_finite_where_it_says_numbers(summary):
         assert value is None or isinstance(value, int | float | str), key
         if isinstance(value, float):
             assert math.isfinite(value), key
+
+
+def test_method_notes_are_with_the_provenance(doc):
+    """How the numbers were computed (quadrature, Monte Carlo settings) is listed with the
+    provenance, not in the balance section a client reads."""
+    from lakebalance.report.build import is_method_note
+
+    balance = " ".join(
+        p.text_content() for p in doc.xpath("//section[@id='balance']/p[not(@class)]")
+    )
+    assert "quadrature" not in balance.lower() and "draws" not in balance.lower()
+    listed = [li.text_content() for li in doc.xpath("//section[@id='provenance']//ul/li")]
+    assert listed and all(is_method_note(n) for n in listed)
+    assert any("quadrature" in n.lower() for n in listed)
+    assert not is_method_note("46 of 6574 days have a missing term (residual left missing)")

@@ -108,3 +108,57 @@ def test_blank_page_fails_the_check(tmp_path):
     page.write_text("<!DOCTYPE html><html><body></body></html>", encoding="utf-8")
     grey = _pixels(_screenshot(page, tmp_path)).mean(axis=2)
     assert float(grey.std()) < 1.0 and float(np.mean(grey < 200)) == 0.0
+
+
+def _print_to_pdf(page: Path, tmp: Path) -> Path:
+    pdf = tmp / (page.stem + "-print.pdf")
+    profile = tmp / f"profile-print-{page.stem}"
+    cmd = [
+        CHROMIUM,
+        "--headless",
+        "--no-sandbox",
+        "--disable-gpu",
+        "--disable-quic",
+        "--no-first-run",
+        "--disable-background-networking",
+        "--disable-component-update",
+        "--disable-sync",
+        "--no-pdf-header-footer",
+        f"--user-data-dir={profile}",
+        f"--print-to-pdf={pdf}",
+        page.resolve().as_uri(),
+    ]
+    proc = subprocess.run(cmd, capture_output=True, text=True, timeout=300)
+    assert pdf.is_file(), f"no PDF (exit {proc.returncode}): {proc.stderr[-2000:]}"
+    return pdf
+
+
+def test_report_print_preview(pages):
+    """Chromium's print of the report (its own paged-media engine, the print styles applied):
+    several A4 pages (the print style's ``@page`` size; CSS Paged Media Level 3), the caution on
+    page one, the section headings and the print style's page counter in the text (read back with
+    pypdf)."""
+    import re
+
+    pypdf = pytest.importorskip("pypdf", reason="pypdf reads the PDF back (test extra)")
+    from lakebalance.report.html import CAUTIONS
+
+    reader = pypdf.PdfReader(_print_to_pdf(pages["report"], pages["tmp"]))
+    n = len(reader.pages)
+    assert n >= 5, n
+    import unicodedata
+
+    # NFKC folds the typographic ligatures (ﬁ, ﬂ) that Chromium's fonts set into their letters
+    texts = [
+        re.sub(r"\s+", "", unicodedata.normalize("NFKC", p.extract_text() or ""))
+        for p in reader.pages
+    ]
+    for caution in CAUTIONS:
+        assert re.sub(r"\s+", "", caution) in texts[0]
+    everything = "".join(texts)
+    for heading in ("Theyearinbrief", "Waterbalance", "Provenance"):
+        assert heading in everything
+    assert f"page1of{n}" in texts[0]  # the print style's page counter
+    for page in reader.pages:  # A4 (ISO 216: 595 × 842 pt), either way up
+        w, h = sorted((float(page.mediabox.width), float(page.mediabox.height)))
+        assert abs(w - 595.3) < 2 and abs(h - 841.9) < 2, (w, h)

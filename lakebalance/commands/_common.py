@@ -81,6 +81,20 @@ class LakebalanceWarnings:
             warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
 
 
+def formatter(lake):
+    """The display of a site's human output: ``[report] units`` and its stage resolution."""
+    from ..report.build import formatter as _formatter
+
+    return _formatter(lake)
+
+
+def wrap(text: str, width: int = 120, indent: str = "") -> str:
+    """A long line of prose folded to ``width`` characters (the terminal tables' width)."""
+    import textwrap
+
+    return textwrap.fill(text, width, subsequent_indent=indent or "  ")
+
+
 def emit(args: argparse.Namespace, lake, doc: dict, summary: object, written: list) -> None:
     """Print a result as one JSON document (``--json``) or as its text summary."""
     site, seed = lake.site, lake.seed

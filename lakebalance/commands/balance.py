@@ -10,8 +10,10 @@ from ._common import (
     add_out,
     add_seed,
     add_site,
+    formatter,
     open_lake,
     output_folder,
+    wrap,
 )
 
 HELP = (
@@ -54,6 +56,8 @@ _BANDS = ["residual_p05_m3", "residual_p95_m3", "p_gain", "p_nonzero"]
 def run(args: argparse.Namespace) -> int:
     import sys
 
+    import pandas as pd
+
     from .._json import dumps
     from ..balance import CAUTION
     from ..errors import LakebalanceError
@@ -87,26 +91,36 @@ def run(args: argparse.Namespace) -> int:
         f"absent terms: {', '.join(balance.absent_terms) or 'none'}; "
         + (f"{balance.draws} Monte Carlo draws, seed {seed}" if balance.draws else "no bands")
     )
-    cols = _ANNUAL + [c for c in _BANDS if c in annual]
-    fmt = {"float_format": lambda v: f"{v:,.5g}"}
+    from ..display import text_table
+
+    display = formatter(lake)
+    shown = annual.copy()
+    if "p_nonzero" in shown:
+        shown["nonzero_confidence_pct"] = 100.0 * shown["p_nonzero"]
+    if "p_gain" in shown:
+        shown["gain_chance_pct"] = 100.0 * shown["p_gain"]
+    cols = [c for c in _ANNUAL if c in shown]
+    cols += [
+        c for c in ("residual_p05_m3", "residual_p95_m3", "nonzero_confidence_pct") if c in shown
+    ]
     print()
-    print("water years (m3; residual also in mm over the mean lake area):")
-    print(annual[cols].to_string(**fmt))
+    print("water years (residual also as a depth over the mean lake area):")
+    print(text_table(shown[cols], display))
     print()
-    print("months (m3):")
+    print("months:")
     mcols = ["complete_days", "storage_change_m3", "inflow_m3", "outflow_m3", "residual_m3"]
     mcols += [c for c in ("residual_p05_m3", "residual_p95_m3") if c in monthly]
     view = monthly[mcols].copy()
-    view.index = view.index.strftime("%Y-%m")
-    print(view.to_string(**fmt))
+    view.index = pd.Index(view.index.strftime("%Y-%m"), name="month")
+    print(text_table(view, display))
     print()
     for note in balance.notes:
-        print(f"note: {note}")
+        print(wrap(f"note: {note}"))
     for m in messages:
         print(f"warning: {m}", file=sys.stderr)
     if files:
         print(f"wrote {len(files)} files to {args.out}")
-    print(f"caution: {CAUTION}")
+    print(wrap(f"caution: {CAUTION}"))
     return 0
 
 

@@ -36,6 +36,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         metavar="WY",
         help="water year to report (default: the last complete one)",
     )
+    from .report import add_paper
+
+    add_paper(parser)
     add_seed(parser)
 
 
@@ -50,9 +53,17 @@ def run(args: argparse.Namespace) -> int:
             "incomplete; reinstall it (pip install lakebalance, or pip install -e . in a checkout)"
         )
     result = make_report(
-        site, args.out, year=args.year, seed=args.seed, progress=sys.stderr.isatty()
+        site,
+        args.out,
+        year=args.year,
+        seed=args.seed,
+        progress=sys.stderr.isatty(),
+        pdf=args.pdf,
+        file_to=args.file_to,
     )
     print(f"demo report: {result.html}")
+    if result.pdf is not None:
+        print(f"demo paper:  {result.pdf}")
     for line in result.messages:
         print(f"  {line}")
     return 0

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from ._common import LakebalanceWarnings, add_json, add_site, open_lake
+from ._common import LakebalanceWarnings, add_json, add_site, open_lake, wrap
 
 HELP = "residence and response times, equilibrium stages, inflow limits and what-if changes"
 
@@ -100,7 +100,7 @@ def run(args: argparse.Namespace) -> int:
         return 0
     print(f"{site.site.name}: lake dynamics")
     print()
-    print(dyn.summary())
+    print("\n".join(wrap(line) if len(line) > 120 else line for line in dyn.summary().splitlines()))
     for m in messages:
         print(f"warning: {m}", file=sys.stderr)
     return 0

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from ._common import LakebalanceWarnings, add_json, add_site, open_lake
+from ._common import LakebalanceWarnings, add_json, add_site, open_lake, wrap
 
 HELP = (
     "lake evaporation: monthly and water-year totals of every method the weather allows, side by "
@@ -54,36 +54,37 @@ def run(args: argparse.Namespace) -> int:
     if args.json:
         print(dumps({"site": site.site.name, **result.to_dict(args.unit, warnings=messages)}))
         return 0
-    monthly = result.monthly(args.unit)
-    diffs = result.monthly_differences(args.unit)
-    print(f"{site.site.name}: lake evaporation by {result.method} (monthly totals, {args.unit})")
+    import pandas as pd
+
+    from ..display import Formatter, display_units, text_table
+
+    monthly = result.monthly("mm")
+    diffs = result.monthly_differences("mm")
+    # the depth unit asked for: inches show in US customary units, anything else in mm
+    us = str(args.unit).strip().lower() in ("in", "inch", "inches")
+    display = Formatter(display_units("US" if us else "SI"))
+    print(f"{site.site.name}: lake evaporation by {result.method} (monthly totals)")
     methods = list(result.available)
-    width = {m: max(9, len(m) + 1) for m in methods}  # each column as wide as its name
-    head = f"{'month':<8}" + "".join(f"{m:>{width[m]}}" for m in methods)
-    head += f"{'days':>6}{'filled':>7}"
     others = [m for m in methods if m != result.method]
-    head += "".join(f"{'Δ' + m:>{width[m] + 1}}" for m in others)
-    print(head)
-
-    def fmt(x: float, w: int) -> str:
-        return f"{'-':>{w}}" if x != x else f"{x:>{w}.1f}"
-
-    for month, row in monthly.iterrows():
-        line = f"{str(month):<8}" + "".join(fmt(row[m], width[m]) for m in methods)
-        line += f"{int(row['days']):>6}{int(row['filled_days']):>7}"
-        line += "".join(fmt(diffs.loc[month, m], width[m] + 1) for m in others)
-        print(line)
-    line = f"{'total':<8}" + "".join(fmt(monthly[m].sum(min_count=1), width[m]) for m in methods)
-    line += f"{int(monthly['days'].sum()):>6}{int(monthly['filled_days'].sum()):>7}"
-    line += "".join(fmt(diffs[m].sum(min_count=1), width[m] + 1) for m in others)
-    print(line)
-    print(f"Δ columns: each method's monthly total minus {result.method}'s.")
-    _water_years(result, args.unit, methods, width, fmt)
+    frame = pd.DataFrame(index=pd.Index([str(m) for m in monthly.index], name="month"))
+    for m in methods:
+        frame[f"{m}_mm"] = monthly[m].to_numpy()
+    frame["days"] = monthly["days"].astype(int).to_numpy()
+    frame["filled_days"] = monthly["filled_days"].astype(int).to_numpy()
+    for m in others:
+        frame[f"{m}_minus_{result.method}_mm"] = diffs[m].to_numpy()
+    total = {c: frame[c].sum(min_count=1) for c in frame.columns}
+    frame.loc["total"] = [total[c] for c in frame.columns]
+    frame["days"] = frame["days"].astype(int)
+    frame["filled_days"] = frame["filled_days"].astype(int)
+    print(text_table(frame, display))
+    print(f"'minus' columns: each method's monthly total minus {result.method}'s.")
+    _water_years(result, methods, display)
     heat = result.lake_heat
     if heat is not None:
         print(
             "lake method: mean depth "
-            f"{heat['mean_depth_m'].mean():.1f} m (volume/area), time constant "
+            f"{display.stage(heat['mean_depth_m'].mean())} (volume/area), time constant "
             f"{heat['time_constant_days'].mean():.0f} days, water temperature "
             f"{heat['water_temperature_c'].min():.1f} to {heat['water_temperature_c'].max():.1f} °C"
         )
@@ -93,28 +94,33 @@ def run(args: argparse.Namespace) -> int:
         print(f"note: {note}")
     for msg in messages:
         print(f"warning: {msg}")
-    print(CAUTION)
+    print(wrap(CAUTION))
     return 0
 
 
-def _water_years(result, unit: str, methods: list[str], width: dict[str, int], fmt) -> None:
+def _water_years(result, methods: list[str], display) -> None:
     """The water-year totals of every method and the spread between them."""
-    years = result.water_years(unit)
-    spread = result.spread(unit)
-    start = result.water_year_start
+    import pandas as pd
+
+    from ..display import text_table
+
+    years = result.water_years("mm")
+    spread = result.spread("mm")
     print()
-    print(f"water-year totals ({unit}; water year starts in month {start}, named by its end)")
-    head = f"{'year':<8}" + "".join(f"{m:>{width[m]}}" for m in methods)
-    head += f"{'days':>6}{'ice':>5}{'sd':>8}{'rel.sd':>8}"
-    print(head)
-    for year, row in years.iterrows():
-        line = f"{year:<8}" + "".join(fmt(row[m], width[m]) for m in methods)
-        line += f"{int(row['days']):>6}{int(row['ice_days']):>5}"
-        if year in spread.index and spread.loc[year, "methods"] >= 2:
-            line += f"{spread.loc[year, 'sd']:>8.1f}{spread.loc[year, 'relative_sd']:>8.1%}"
-        else:
-            line += f"{'-':>8}{'-':>8}"
-        print(line)
+    print(
+        f"water-year totals (water year starts in month {result.water_year_start}, named by "
+        "its end)"
+    )
+    frame = pd.DataFrame(index=pd.Index([str(y) for y in years.index], name="water year"))
+    for m in methods:
+        frame[f"{m}_mm"] = years[m].to_numpy()
+    frame["days"] = years["days"].astype(int).to_numpy()
+    frame["ice_days"] = years["ice_days"].astype(int).to_numpy()
+    enough = spread.reindex(years.index)
+    ok = (enough["methods"] >= 2).to_numpy() if len(enough) else []
+    frame["spread_sd_mm"] = enough["sd"].where(ok).to_numpy()
+    frame["spread_relative_pct"] = (100 * enough["relative_sd"]).where(ok).to_numpy()
+    print(text_table(frame, display))
     rel = result.relative_spread()
     if rel is not None:
         print(

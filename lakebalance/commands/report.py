@@ -9,7 +9,7 @@ from pathlib import Path
 
 from ._common import add_seed
 
-HELP = "write the annual report (HTML, CSV/XLSX, JSON) of one or many sites"
+HELP = "write the annual report (HTML, PDF, CSV/XLSX, JSON) of one or many sites"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -77,7 +77,27 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         help="memory limit of one site's worker in GiB (default: the available memory shared "
         "by the workers)",
     )
+    add_paper(parser)
     add_seed(parser)
+
+
+def add_paper(parser: argparse.ArgumentParser) -> None:
+    """``--no-pdf`` and ``--file-to DIR``, shared with ``lakebalance demo``."""
+    parser.add_argument(
+        "--no-pdf",
+        dest="pdf",
+        action="store_false",
+        help="write no report.pdf (by default it is made from the HTML when the 'pdf' extra, "
+        "WeasyPrint, is installed)",
+    )
+    parser.add_argument(
+        "--file-to",
+        type=Path,
+        default=None,
+        metavar="DIR",
+        help="file the results into the archive DIR (an SQLite file archive.sqlite there) and "
+        "list what changed in earlier years since the last filing (default: [report] archive)",
+    )
 
 
 def _expand(paths: list[Path]) -> tuple[list[Path], dict[str, tuple]]:
@@ -109,14 +129,24 @@ def run(args: argparse.Namespace) -> int:
     registers = [p for p in args.sites if p.suffix.lower() in (".csv", ".gpkg", ".geojson", ".shp")]
     limits = _limits(args)
     options = {k: v for k, v in (("draws", args.draws), ("members", args.members)) if v}
+    options["pdf"] = args.pdf
+    if args.file_to is not None:
+        options["file_to"] = args.file_to
     progress = sys.stderr.isatty()
     if len(sites) == 1 and args.scheduler is None:
         from ..report.build import make_report
 
         result = make_report(
-            sites[0], args.out, year=args.year, seed=args.seed, progress=progress, **options
+            sites[0],
+            args.out,
+            year=args.year,
+            seed=args.seed,
+            progress=progress,
+            **options,
         )
         print(f"report: {result.html}")
+        if result.pdf is not None:
+            print(f"paper:  {result.pdf}")
         for line in result.messages:
             print(f"  {line}")
         return 0

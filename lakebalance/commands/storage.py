@@ -101,12 +101,12 @@ def run(args: argparse.Namespace) -> int:
     for m in messages:
         print(f"warning: {m}")
     print()
-    shown = table.rename(
-        columns={"stage_m": "stage (m)", "area_m2": "area (m²)", "volume_m3": "storage (m³)"}
-    )
-    print(shown.to_string(index=False, float_format=lambda v: f"{v:.6g}"))
+    from ..display import text_table
+    from ._common import formatter, wrap
+
+    print(text_table(table, formatter(lake), index=False))
     print()
-    print(f"caution: {CAUTION}")
+    print(wrap(f"caution: {CAUTION}"))
     if args.out is not None:
         print(f"wrote storage tables and figure to {args.out}")
     return 0

@@ -18,9 +18,10 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
+from ..display import Formatter, Rule, count_of, header, percent
 from ..errors import LakebalanceError
 from ..stats import water_year_of
-from ..units import SECONDS_PER_DAY, from_si
+from ..units import SECONDS_PER_DAY
 from ..vocabulary import TERMS
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -34,69 +35,127 @@ __all__ = ["Table", "Figure", "Section", "ReportResult", "REPORT_STEPS", "run_st
 # --------------------------------------------------------------------------------------------
 @dataclass(frozen=True)
 class Table:
-    """A table as shown: the first column labels the rows; numbers already rounded."""
+    """A table: SI values at full precision under unit-bearing column names (``residual_m3``).
+
+    CSV, XLSX and JSON hold :attr:`frame` as it is; the HTML and the PDF show it through a
+    :class:`~lakebalance.display.Formatter` (headers in words with the report's display unit,
+    digits per quantity). ``omitted`` says why a table with nothing to show is left out.
+    """
 
     id: str
     title: str
     frame: pd.DataFrame
     note: str = ""
-    decimals: dict[str, int] = field(default_factory=dict)
+    decimals: dict[str, int] = field(default_factory=dict)  # kept for callers; display rules rule
+    omitted: str | None = None
 
-    def cell(self, column: str, value: Any) -> str:
+    def _sample(self, column: str) -> Any:
+        for v in self.frame[column]:
+            if v is not None and not (isinstance(v, float) and math.isnan(v)):
+                return v.item() if isinstance(v, np.generic) else v
+        return None
+
+    def rules(self, fmt: Formatter) -> list[Rule]:
+        """The display rule of each column."""
+        return [fmt.rule(c, self._sample(c)) for c in self.frame.columns]
+
+    def headers(self, fmt: Formatter) -> list[str]:
+        """The headers a person reads (words and display unit)."""
+        return [fmt.header(c) for c in self.frame.columns]
+
+    def cell(self, column: str, value: Any, fmt: Formatter | None = None) -> str:
         """The text of one cell, as the HTML shows it."""
-        if value is None or (isinstance(value, float) and not math.isfinite(value)):
-            return "–"
-        if isinstance(value, bool | np.bool_):
-            return "yes" if value else "no"
-        if isinstance(value, float | np.floating):
-            d = self.decimals.get(column, 0)
-            return f"{float(value):.{d}f}"
-        if isinstance(value, pd.Timestamp):
-            return value.strftime("%Y-%m-%d")
-        return str(value)
+        fmt = fmt or Formatter()
+        return fmt.format(fmt.rule(column, self._sample(column)), _plain(value))
 
-    def rows(self) -> list[list[str]]:
+    def rows(self, fmt: Formatter | None = None) -> list[list[str]]:
         """All rows as text."""
-        cols = list(self.frame.columns)
+        fmt = fmt or Formatter()
+        rules = self.rules(fmt)
         return [
-            [self.cell(c, v) for c, v in zip(cols, row, strict=True)]
+            [fmt.format(r, _plain(v)) for r, v in zip(rules, row, strict=True)]
             for row in self.frame.itertuples(index=False)
         ]
 
-    def to_json(self) -> dict[str, Any]:
-        """Columns and rows with the same (rounded) values, numbers as numbers."""
-        rows = []
-        for row in self.frame.itertuples(index=False):
-            out = []
-            for v in row:
-                if isinstance(v, float | np.floating):
-                    out.append(None if not math.isfinite(float(v)) else float(v))
-                elif isinstance(v, np.integer):
-                    out.append(int(v))
-                elif isinstance(v, bool | np.bool_):
-                    out.append(bool(v))
-                elif isinstance(v, pd.Timestamp):
-                    out.append(v.strftime("%Y-%m-%d"))
-                else:
-                    out.append(v)
-            rows.append(out)
-        return {"title": self.title, "columns": list(self.frame.columns), "rows": rows}
+    def to_json(self, fmt: Formatter | None = None) -> dict[str, Any]:
+        """Columns (SI names) and rows at full precision, numbers as numbers; with each column's
+        header and display rule, so that a reader can check every number the HTML shows."""
+        fmt = fmt or Formatter()
+        rows = [[_plain(v) for v in row] for row in self.frame.itertuples(index=False)]
+        return {
+            "title": self.title,
+            "columns": list(self.frame.columns),
+            "headers": self.headers(fmt),
+            "display": [r.to_dict() for r in self.rules(fmt)],
+            "rows": rows,
+        }
+
+
+def _plain(v: Any) -> Any:
+    """A cell as a JSON value: None for NaN, dates as ISO text, numpy scalars as Python ones."""
+    if v is None:
+        return None
+    if isinstance(v, bool | np.bool_):
+        return bool(v)
+    if isinstance(v, np.integer):
+        return int(v)
+    if isinstance(v, float | np.floating):
+        return None if not math.isfinite(float(v)) else float(v)
+    if isinstance(v, pd.Timestamp):
+        return v.strftime("%Y-%m-%d")
+    if v is pd.NA or v is pd.NaT:
+        return None
+    return v
+
+
+#: Scaled column names some callers use, and the SI name and factor they become.
+_SCALED = (("_1e3_m3", "_m3", 1e3), ("_1e6_m3", "_m3", 1e6), ("_ha", "_m2", 1e4))
 
 
 def table(
-    id: str, title: str, frame: pd.DataFrame, decimals: dict[str, int] | int = 0, note: str = ""
+    id: str,
+    title: str,
+    frame: pd.DataFrame,
+    decimals: dict[str, int] | int = 0,
+    note: str = "",
+    *,
+    empty_reason: str = "none of its values could be computed for this site",
 ) -> Table:
-    """A :class:`Table` whose float columns are rounded to ``decimals`` (per column or one for all)."""
+    """A :class:`Table` of SI values at full precision (``decimals`` is no longer used to round:
+    the display rules of :mod:`lakebalance.display` choose the digits).
+
+    Scaled columns (``_1e3_m3``, ``_ha``) are brought back to SI names and values. Numeric
+    columns with no value at all are left out and named in the note; a table left with no
+    number to show is marked ``omitted`` with ``empty_reason``.
+    """
     frame = frame.copy()
-    if isinstance(decimals, int):
-        decimals = {c: decimals for c in frame.columns}
+    for c in list(frame.columns):
+        for suffix, si, factor in _SCALED:
+            if isinstance(c, str) and c.endswith(suffix):
+                frame = frame.rename(columns={c: c[: -len(suffix)] + si})
+                frame[c[: -len(suffix)] + si] = frame[c[: -len(suffix)] + si] * factor
+                break
     for c in frame.columns:
-        if pd.api.types.is_float_dtype(frame[c]):
-            frame[c] = frame[c].round(decimals.get(c, 0))
-        elif pd.api.types.is_datetime64_any_dtype(frame[c]):
+        if pd.api.types.is_datetime64_any_dtype(frame[c]):
             frame[c] = frame[c].dt.strftime("%Y-%m-%d")
+    numeric = [c for c in frame.columns[1:] if pd.api.types.is_numeric_dtype(frame[c])]
+    if len(numeric) == 0 and frame.shape[1] > 1:
+        numeric = []
+    empty = [c for c in numeric if frame[c].isna().all()] if len(frame) else []
+    omitted = None
+    if empty:
+        frame = frame.drop(columns=empty)
+        left = ", ".join(header(c) for c in empty)
+        note = (note + " " if note else "") + f"Left out, as no value could be computed: {left}."
+        if len(empty) == len(numeric):
+            omitted = f"The table '{title}' is left out: {empty_reason}."
     return Table(
-        id=id, title=title, frame=frame.reset_index(drop=True), note=note, decimals=dict(decimals)
+        id=id,
+        title=title,
+        frame=frame.reset_index(drop=True),
+        note=note,
+        decimals=dict(decimals) if isinstance(decimals, dict) else {},
+        omitted=omitted,
     )
 
 
@@ -135,6 +194,19 @@ def _png(fig: Any) -> bytes:
 
 def _fmt(x: float, decimals: int = 0) -> str:
     return "–" if x is None or not math.isfinite(x) else f"{x:,.{decimals}f}"
+
+
+def formatter(run: Lake) -> Formatter:
+    """The display of ``run``'s report: ``[report] units`` and the stage gauge's resolution
+    (the stage series' ``resolution``, else 1 mm)."""
+    from ..display import display_units
+    from ..units import conversion
+
+    spec = next(iter(run.site.series_of("stage")), None)
+    resolution = 0.001
+    if spec is not None and spec.resolution is not None:
+        resolution = float(conversion(spec.units, "length", "stage").scale * spec.resolution)
+    return Formatter(display_units(run.site.report.units), resolution)
 
 
 # --------------------------------------------------------------------------------------------
@@ -292,8 +364,10 @@ def _simulated_storage(daily: pd.DataFrame) -> pd.Series:
 
 
 def _stage_figure(run: Lake, days: pd.DatetimeIndex) -> Figure:
-    from .style import PALETTE, new_figure, shade_periods
+    from ..display import axis_label, convert
+    from .style import PALETTE, date_axis, new_figure, shade_periods
 
+    u = formatter(run).units
     d = run.get("balance").daily.loc[days[0] : days[-1]]
     sim_v = _simulated_storage(d)
     with warnings.catch_warnings(record=True) as outside:
@@ -309,10 +383,15 @@ def _stage_figure(run: Lake, days: pd.DatetimeIndex) -> Figure:
     )
     sim_h[sim_v.isna()] = np.nan
     fig, ax = new_figure(height=3.4)
-    ax.plot(d.index, d["stage_end_m"], color=PALETTE["observed"], label="observed (end of day)")
     ax.plot(
         d.index,
-        sim_h,
+        convert(d["stage_end_m"].to_numpy(), "length", u),
+        color=PALETTE["observed"],
+        label="observed (end of day)",
+    )
+    ax.plot(
+        d.index,
+        convert(sim_h.to_numpy(), "length", u),
         color=PALETTE["simulated"],
         ls="--",
         label="from measured terms only (residual = 0)",
@@ -327,10 +406,12 @@ def _stage_figure(run: Lake, days: pd.DatetimeIndex) -> Figure:
     for name, level in sorted(run.site.levels.items(), key=lambda kv: kv[1]):
         lo, hi = np.nanmin(d["stage_end_m"]), np.nanmax(d["stage_end_m"])
         if lo - 1.0 <= level <= hi + 1.0:
-            ax.axhline(level, color="#555555", lw=0.7, ls=":")
-            ax.annotate(name, (d.index[0], level), fontsize=7, va="bottom")
-    ax.set_ylabel("stage (m, gauge datum)")
+            shown = float(convert(level, "length", u))
+            ax.axhline(shown, color="#555555", lw=0.7, ls=":")
+            ax.annotate(name, (d.index[0], shown), fontsize=7, va="bottom")
+    ax.set_ylabel(axis_label("stage", "length", u, "on the gauge datum"))
     ax.set_xlabel("date")
+    date_axis(ax)
     ax.legend(loc="best")
     return Figure(
         "stage",
@@ -341,8 +422,14 @@ def _stage_figure(run: Lake, days: pd.DatetimeIndex) -> Figure:
     )
 
 
-def _components_figure(monthly: pd.DataFrame) -> Figure:
+def _components_figure(monthly: pd.DataFrame, units: Any = None) -> Figure:
+    from ..display import SI, axis_label, convert
     from .style import PALETTE, new_figure
+
+    u = units or SI
+
+    def V(values: Any) -> np.ndarray:
+        return convert(np.asarray(values, float), "volume", u)
 
     fig, ax = new_figure(height=3.6)
     x = np.arange(len(monthly))
@@ -356,7 +443,7 @@ def _components_figure(monthly: pd.DataFrame) -> Figure:
     for sign, terms in ((1.0, gains), (-1.0, losses)):  # gains stacked up, losses down
         bottom = np.zeros(len(monthly))
         for col, key, hatch in terms:
-            v = sign * monthly[col].fillna(0).to_numpy() / 1e3
+            v = sign * V(monthly[col].fillna(0).to_numpy())
             ax.bar(
                 x,
                 v,
@@ -368,10 +455,10 @@ def _components_figure(monthly: pd.DataFrame) -> Figure:
                 label=key,
             )
             bottom += v
-    ax.plot(x, monthly["storage_change_m3"].to_numpy() / 1e3, "k-o", ms=3, label="storage change")
+    ax.plot(x, V(monthly["storage_change_m3"].to_numpy()), "k-o", ms=3, label="storage change")
     ax.plot(
         x,
-        monthly["residual_m3"].to_numpy() / 1e3,
+        V(monthly["residual_m3"].to_numpy()),
         color=PALETTE["residual"],
         ls="--",
         marker="s",
@@ -379,8 +466,15 @@ def _components_figure(monthly: pd.DataFrame) -> Figure:
         label="residual",
     )
     ax.axhline(0, color="black", lw=0.6)
-    ax.set_xticks(x, [m.strftime("%b %Y") for m in monthly.index], rotation=45, ha="right")
-    ax.set_ylabel("volume (10³ m³ per month)")
+    # one label a month, the year said under the first month of each year (concise, as a date axis)
+    ax.set_xticks(
+        x,
+        [
+            m.strftime("%b\n%Y") if i == 0 or m.month == 1 else m.strftime("%b")
+            for i, m in enumerate(monthly.index)
+        ],
+    )
+    ax.set_ylabel(axis_label("volume", "volume", u, "per month"))
     ax.legend(ncols=4, loc="upper center", bbox_to_anchor=(0.5, -0.3))
     return Figure(
         "components",
@@ -391,17 +485,23 @@ def _components_figure(monthly: pd.DataFrame) -> Figure:
 
 
 def _cumulative_figure(run: Lake, days: pd.DatetimeIndex) -> Figure | None:
-    from .style import PALETTE, new_figure
+    from ..display import axis_label, convert
+    from .style import PALETTE, date_axis, new_figure
+
+    u = formatter(run).units
+
+    def V(values: Any) -> np.ndarray:
+        return convert(np.asarray(values, float), "volume", u)
 
     bal = run.get("balance")
     d = bal.daily.loc[days[0] : days[-1]]
-    res = d["residual_m3"].where(d["complete"], 0.0).cumsum() / 1e3
+    res = pd.Series(V(d["residual_m3"].where(d["complete"], 0.0).cumsum()), index=d.index)
     fig, ax = new_figure(height=3.2)
     if "cumulative_residual_p05_m3" in d:
         ax.fill_between(
             d.index,
-            d["cumulative_residual_p05_m3"] / 1e3,
-            d["cumulative_residual_p95_m3"] / 1e3,
+            V(d["cumulative_residual_p05_m3"]),
+            V(d["cumulative_residual_p95_m3"]),
             color=PALETTE["band"],
             alpha=0.4,
             hatch="...",
@@ -411,8 +511,9 @@ def _cumulative_figure(run: Lake, days: pd.DatetimeIndex) -> Figure | None:
         )
     ax.plot(res.index, res, color=PALETTE["residual"], label="cumulative residual")
     ax.axhline(0, color="black", lw=0.6)
-    ax.set_ylabel("cumulative residual (10³ m³)")
+    ax.set_ylabel(axis_label("cumulative residual", "volume", u))
     ax.set_xlabel("date")
+    date_axis(ax)
     ax.legend(loc="best")
     return Figure(
         "cumulative",
@@ -432,12 +533,12 @@ def _storage_section(run: Lake) -> Section:
     span = curve.max_stage_m - curve.min_stage_m
     step = max(0.1, round(span / 25, 1))
     tab = curve.table(step).copy()
-    tab["area_ha"] = from_si(tab.pop("area_m2").to_numpy(), "area", "ha")
-    tab["volume_1e3_m3"] = tab.pop("volume_m3") / 1e3
-    fig = storage_figure(curve, levels=dict(run.site.levels))
+    fig = storage_figure(curve, levels=dict(run.site.levels), units=formatter(run).units)
+    fmt = formatter(run)
     paragraphs = [
         f"Built from the {curve.source or 'survey'} with {curve.stage_m.size} surveyed levels, "
-        f"stage {curve.min_stage_m:.2f} to {curve.max_stage_m:.2f} m; "
+        f"stage {fmt.value('stage_m', curve.min_stage_m)} to "
+        f"{fmt.value('stage_m', curve.max_stage_m)}; "
         f"below the range: {curve.below}, above: {curve.above}."
     ]
     if getattr(curve, "check", None) is not None:
@@ -449,9 +550,8 @@ def _storage_section(run: Lake) -> Section:
         tables=(
             table(
                 "storage",
-                f"Area and volume at {step:g} m steps",
+                f"Area and volume at {step:g} m steps of stage",
                 tab,
-                {"stage_m": 2, "area_ha": 2, "volume_1e3_m3": 1},
             ),
         ),
         figures=(
@@ -494,12 +594,13 @@ def _rating_section(run: Lake, year_stage: pd.Series) -> Section:
     above = float(np.mean(h > hi)) * 100 if h.size else math.nan
     below = float(np.mean(h < lo)) * 100 if h.size else math.nan
     stage_max = float(np.nanmax(h)) if h.size else None
-    fig = rating_figure(fit, stage_max)
+    fmt = formatter(run)
+    fig = rating_figure(fit, stage_max, units=fmt.units)
     paragraphs = (
-        f"Form {fit.form}, fitted to {fit.n} gaugings between {lo:.2f} and {hi:.2f} m; residual "
-        f"standard error {fit.se_percent:.1f} %.",
-        f"In the reported year the stage was above the highest gauging on {above:.1f} % of days "
-        f"and below the lowest on {below:.1f} %; outflows there are extrapolated.",
+        f"Form {fit.form}, fitted to {fit.n} gaugings between {fmt.value('stage_m', lo)} and "
+        f"{fmt.value('stage_m', hi)}; residual standard error {percent(fit.se_percent)}.",
+        f"In the reported year the stage was above the highest gauging on {percent(above)} of "
+        f"days and below the lowest on {percent(below)}; outflows there are extrapolated.",
     )
     return Section(
         "rating",
@@ -508,9 +609,9 @@ def _rating_section(run: Lake, year_stage: pd.Series) -> Section:
         tables=(
             table(
                 "rating",
-                "Rating parameters (SI) with 95 % confidence intervals",
+                "Rating parameters, in the SI units of the fitted law, with 95 % confidence "
+                "intervals",
                 params,
-                {"value": 4, "stderr": 4, "ci95_low": 4, "ci95_high": 4},
             ),
         ),
         figures=(
@@ -538,6 +639,8 @@ def _evaporation_section(run: Lake, days: pd.DatetimeIndex) -> Section:
     methods = [c for c in ev.by_method.columns]
     frame = frame[["month", *methods, "days", "filled_days"]]
     frame.columns = ["month", *[f"{m}_mm" for m in methods], "days", "filled_days"]
+    frame["days"] = frame["days"].astype(int)
+    frame["filled_days"] = frame["filled_days"].astype(int)
     paragraphs = [
         f"Lake evaporation in the balance: {ev.method}. Every method the weather allows "
         "is shown beside it (monthly totals, mm)."
@@ -568,22 +671,17 @@ def _balance_tables(run: Lake, year: int) -> tuple[Table, Table, pd.DataFrame]:
     ]
     band_cols = [c for c in ("residual_p05_m3", "residual_p95_m3") if c in wy]
     annual = wy[cols + band_cols].copy()
-    for c in cols[2:] + band_cols:
-        annual[c.replace("_m3", "_1e3_m3")] = annual.pop(c) / 1e3
     annual["residual_mm"] = wy["residual_mm"]
-    annual["closure_pct"] = wy["closure_error_pct"]
+    annual["closure_error_pct"] = wy["closure_error_pct"]
     if "p_nonzero" in wy:
-        annual["p_nonzero"] = wy["p_nonzero"]
-    dec = {c: 1 for c in annual.columns}
-    dec.update({"water_year": 0, "complete_days": 0, "closure_pct": 1, "p_nonzero": 2})
+        annual["nonzero_confidence_pct"] = 100.0 * wy["p_nonzero"]
     annual_t = table(
         "annual",
-        "Water-year balance (10³ m³; residual also in mm over the mean lake area)",
+        "Water-year balance (residual also as a depth over the mean lake area)",
         annual,
-        dec,
         note="Residual = observed storage change minus the sum of the measured terms; positive "
-        "is an unexplained gain. p_nonzero: confidence that the residual differs from zero. "
-        "Totals over complete days only.",
+        "is an unexplained gain. The confidence that the residual is not zero comes from the "
+        "Monte Carlo draws of the measured terms. Totals over complete days only.",
     )
     m = bal.monthly()
     keys = water_year_of(m.index, bal.water_year_start)
@@ -591,11 +689,9 @@ def _balance_tables(run: Lake, year: int) -> tuple[Table, Table, pd.DataFrame]:
     monthly = pd.DataFrame({"month": [t.strftime("%Y-%m") for t in m.index]})
     monthly["complete_days"] = m["complete_days"].to_numpy()
     for c in cols[2:] + [c for c in ("residual_p05_m3", "residual_p95_m3") if c in m]:
-        monthly[c.replace("_m3", "_1e3_m3")] = m[c].to_numpy() / 1e3
+        monthly[c] = m[c].to_numpy()
     monthly["residual_mm"] = m["residual_mm"].to_numpy()
-    mdec = {c: 1 for c in monthly.columns}
-    mdec["complete_days"] = 0
-    monthly_t = table("monthly", f"Monthly balance, water year {year} (10³ m³)", monthly, mdec)
+    monthly_t = table("monthly", f"Monthly balance, water year {year}", monthly)
     return annual_t, monthly_t, m
 
 
@@ -603,11 +699,12 @@ def _balance_section(run: Lake, year: int, days: pd.DatetimeIndex) -> Section:
     if run.get("balance") is None:
         return Section("balance", "Water balance", missing=_missing(run, "balance"))
     annual_t, monthly_t, m = _balance_tables(run, year)
-    figures = [_stage_figure(run, days), _components_figure(m)]
+    figures = [_stage_figure(run, days), _components_figure(m, formatter(run).units)]
     cum = _cumulative_figure(run, days)
     if cum is not None:
         figures.append(cum)
-    paragraphs = list(run.get("balance").notes)
+    # how the numbers were made (quadrature, draws, error settings) goes to the provenance
+    paragraphs = [n for n in run.get("balance").notes if not is_method_note(n)]
     return Section(
         "balance",
         "Water balance",
@@ -615,6 +712,19 @@ def _balance_section(run: Lake, year: int, days: pd.DatetimeIndex) -> Section:
         tables=(annual_t, monthly_t),
         figures=tuple(figures),
     )
+
+
+_METHOD_WORDS = re.compile(
+    r"quadrature|monte carlo|draws|covariance|day-boundary|relative errors|integrated along",
+    re.I,
+)
+
+
+def is_method_note(note: str) -> bool:
+    """Whether a step's note says how the numbers were computed (numerical method, Monte Carlo
+    settings) rather than something about the lake or its records: such notes are listed with
+    the provenance, not in the text a client reads first."""
+    return bool(_METHOD_WORDS.search(note))
 
 
 def _flags_section(run: Lake, days: pd.DatetimeIndex) -> Section:
@@ -628,7 +738,7 @@ def _flags_section(run: Lake, days: pd.DatetimeIndex) -> Section:
                 "start": f.start,
                 "end": f.end,
                 "kind": f.kind,
-                "volume_1e3_m3": f.volume_m3 / 1e3,
+                "volume_m3": f.volume_m3,
                 "depth_mm": f.depth_mm,
                 "significance": f.significance,
                 "likely cause": f.cause,
@@ -640,7 +750,7 @@ def _flags_section(run: Lake, days: pd.DatetimeIndex) -> Section:
             "start",
             "end",
             "kind",
-            "volume_1e3_m3",
+            "volume_m3",
             "depth_mm",
             "significance",
             "likely cause",
@@ -685,7 +795,6 @@ def _flags_section(run: Lake, days: pd.DatetimeIndex) -> Section:
                 "flags",
                 f"Flags touching water year ({lo} to {hi})",
                 frame,
-                {"volume_1e3_m3": 1, "depth_mm": 1, "significance": 1},
             ),
         )
     return Section("flags", "Unexplained residuals", paragraphs=tuple(paragraphs), tables=tables)
@@ -708,6 +817,17 @@ def _seepage_section(run: Lake) -> Section:
     ]
     rates = rates[keep].copy()
     rates["within_fitted_stages"] = np.where(rates["within_fitted_stages"], "yes", "no")
+    rates = pd.DataFrame(
+        {
+            "name": rates["name"],
+            "stage_m": rates["stage_m"],
+            "seepage_m3s": rates["m3_per_day"] / SECONDS_PER_DAY,
+            "seepage_low_m3s": rates["m3_per_day_low"] / SECONDS_PER_DAY,
+            "seepage_high_m3s": rates["m3_per_day_high"] / SECONDS_PER_DAY,
+            "seepage_depth_mm_d": rates["mm_per_day"],
+            "within_fitted_stages": rates["within_fitted_stages"],
+        }
+    )
     params = _parameter_frame(s.param_names, s.params, s.stderr, s.conf_int())
     paragraphs = [
         f"Seepage (net loss to the ground; positive leaves the lake), model {s.model}, from "
@@ -724,22 +844,14 @@ def _seepage_section(run: Lake) -> Section:
         tables=(
             table(
                 "seepage-params",
-                "Seepage law parameters (SI: k in m²/s, h0 in m)",
+                "Seepage law parameters, in the SI units of the fitted law (k in m²/s, h0 in m "
+                "on the gauge datum)",
                 params,
-                {"value": 6, "stderr": 6, "ci95_low": 6, "ci95_high": 6},
             ),
             table(
                 "seepage-rates",
-                "Seepage at the mean and named stages, with 95 % CI",
+                "Seepage at the mean and named stages, with its 95 % interval",
                 rates,
-                {
-                    "stage_m": 2,
-                    "m3_per_day": 0,
-                    "m3_per_day_low": 0,
-                    "m3_per_day_high": 0,
-                    "L_per_s": 1,
-                    "mm_per_day": 2,
-                },
             ),
         ),
     )
@@ -759,32 +871,36 @@ def _headline(run: Lake, year: int, days: pd.DatetimeIndex) -> dict[str, Any]:
         wy = run.get("balance").water_years()
         if year in wy.index:
             row = wy.loc[year]
-            out["closure_percent"] = _r(row.get("closure_error_pct"), 1)
-            out["residual_m3"] = _r(row.get("residual_m3"), 0)
-            out["residual_mm"] = _r(row.get("residual_mm"), 1)
-            out["inflow_m3"] = _r(row.get("inflow_m3"), 0)
-            out["storage_change_m3"] = _r(row.get("storage_change_m3"), 0)
+            out["closure_percent"] = _r(row.get("closure_error_pct"))
+            out["residual_m3"] = _r(row.get("residual_m3"))
+            out["residual_mm"] = _r(row.get("residual_mm"))
+            out["inflow_m3"] = _r(row.get("inflow_m3"))
+            out["storage_change_m3"] = _r(row.get("storage_change_m3"))
             out["complete_days"] = int(row.get("complete_days", 0))
             if "residual_p05_m3" in row:
-                out["residual_p05_m3"] = _r(row["residual_p05_m3"], 0)
-                out["residual_p95_m3"] = _r(row["residual_p95_m3"], 0)
+                out["residual_p05_m3"] = _r(row["residual_p05_m3"])
+                out["residual_p95_m3"] = _r(row["residual_p95_m3"])
             if "p_nonzero" in row:
-                out["p_nonzero"] = _r(row["p_nonzero"], 2)
+                out["p_nonzero"] = _r(row["p_nonzero"])
+                out["nonzero_confidence_pct"] = _r(100.0 * row["p_nonzero"])
         d = run.get("balance").daily.loc[days[0] : days[-1], "stage_end_m"].dropna()
         if len(d):
-            out["stage_end_m"] = _r(float(d.iloc[-1]), 3)
+            out["stage_end_m"] = _r(float(d.iloc[-1]))
     if run.get("seepage") is not None:
         rate = float(np.asarray(run.get("seepage").rate_m3s(run.get("seepage").mean_stage_m)))
-        out["seepage_m3_per_day"] = _r(rate * SECONDS_PER_DAY, 0)
+        out["seepage_m3_per_day"] = _r(rate * SECONDS_PER_DAY)
+        out["seepage_m3s"] = _r(rate)
     return out
 
 
-def _r(value: Any, decimals: int) -> float | None:
+def _r(value: Any) -> float | None:
+    """A finite float at full precision (JSON keeps every digit; the display rules round what
+    people read), else None."""
     try:
         v = float(value)
     except (TypeError, ValueError):
         return None
-    return round(v, decimals) if math.isfinite(v) else None
+    return v if math.isfinite(v) else None
 
 
 def _year_in_words(run: Lake, head: dict[str, Any], previous: dict[str, Any]) -> list[str]:
@@ -796,20 +912,24 @@ def _year_in_words(run: Lake, head: dict[str, Any], previous: dict[str, Any]) ->
     if run.get("balance") is None:
         out.append("The water balance could not be closed for this site; see the sections below.")
         return out
+    fmt = formatter(run)
     res = head.get("residual_m3")
     pct = head.get("closure_percent")
     if res is not None:
         sign = "an unexplained gain" if res > 0 else "an unexplained loss"
+        depth = head.get("residual_mm")
         text = (
-            f"The balance closed with {sign} of {_fmt(abs(res) / 1e3, 1)} thousand m³ "
-            f"({_fmt(head.get('residual_mm') or math.nan, 1)} mm over the lake)"
+            f"The balance closed with {sign} of {fmt.value('residual_m3', abs(res))} "
+            f"({fmt.value('residual_mm', abs(depth) if depth is not None else math.nan)} "
+            "over the lake)"
         )
         if pct is not None:
-            text += f", {abs(pct):.1f} % of the measured gains (gauged inflow and rain)"
+            text += f", {percent(abs(pct))} of the measured gains (gauged inflow and rain)"
         if "residual_p05_m3" in head and head["residual_p05_m3"] is not None:
             text += (
-                f"; the 5–95 % band of the residual is {_fmt(head['residual_p05_m3'] / 1e3, 1)}"
-                f" to {_fmt(head['residual_p95_m3'] / 1e3, 1)} thousand m³"
+                f"; the 5–95 % band of the residual is "
+                f"{fmt.cell('residual_m3', head['residual_p05_m3'])}"
+                f" to {fmt.value('residual_m3', head['residual_p95_m3'])}"
             )
             lo, hi = head["residual_p05_m3"], head["residual_p95_m3"]
             text += (
@@ -829,35 +949,58 @@ def _year_in_words(run: Lake, head: dict[str, Any], previous: dict[str, Any]) ->
         mean_inflow = float(full["inflow_m3"].mean())
         if mean_inflow > 0:
             out.append(
-                f"Gauged inflow was {_fmt(head['inflow_m3'] / 1e3, 1)} thousand m³, "
-                f"{100.0 * head['inflow_m3'] / mean_inflow:.0f} % of the mean of the "
+                f"Gauged inflow was {fmt.value('inflow_m3', head['inflow_m3'])}, "
+                f"{percent(100.0 * head['inflow_m3'] / mean_inflow)} of the mean of the "
                 f"{len(full)} water years with at least 300 complete days."
             )
     if previous.get("residual_m3") is not None and res is not None:
         change = res - previous["residual_m3"]
         out.append(
             f"Compared with water year {previous['water_year']}, the residual changed by "
-            f"{_fmt(change / 1e3, 1)} thousand m³."
+            f"{fmt.value('residual_m3', change)}."
         )
     if head.get("stage_end_m") is not None:
-        out.append(f"The year ended at stage {head['stage_end_m']:.2f} m on the gauge datum.")
-    if head.get("seepage_m3_per_day") is not None:
         out.append(
-            f"Estimated seepage at the mean stage: {_fmt(head['seepage_m3_per_day'])} m³/d "
-            "(net loss to the ground)."
+            f"The year ended at stage {fmt.value('stage_m', head['stage_end_m'])} on the "
+            "gauge datum."
+        )
+    if head.get("seepage_m3s") is not None:
+        out.append(
+            f"Estimated seepage at the mean stage: {fmt.value('seepage_m3s', head['seepage_m3s'])}"
+            " (net loss to the ground)."
         )
     return out
 
 
+#: The key-number tiles: headline key, label, and the SI column whose display rule it takes.
 _KEY_NUMBERS = [
-    ("closure_percent", "closure error", "% of gains", 1),
-    ("residual_m3", "residual", "m³", 0),
-    ("residual_mm", "residual depth", "mm", 1),
-    ("inflow_m3", "gauged inflow", "m³", 0),
-    ("storage_change_m3", "storage change", "m³", 0),
-    ("stage_end_m", "stage at year end", "m", 3),
-    ("seepage_m3_per_day", "seepage at mean stage", "m³/d", 0),
+    ("closure_percent", "closure error (share of gains)", "closure_error_pct"),
+    ("residual_m3", "residual", "residual_m3"),
+    ("residual_mm", "residual depth", "residual_mm"),
+    ("inflow_m3", "gauged inflow", "inflow_m3"),
+    ("storage_change_m3", "storage change", "storage_change_m3"),
+    ("stage_end_m", "stage at year end", "stage_m"),
+    ("seepage_m3s", "seepage at mean stage", "seepage_m3s"),
 ]
+
+
+def key_numbers(head: dict[str, Any], fmt: Formatter) -> list[dict[str, Any]]:
+    """The key-number tiles of a headline: label, text, display unit and rule of each."""
+    out = []
+    for key, label, column in _KEY_NUMBERS:
+        if head.get(key) is None:
+            continue
+        rule = fmt.rule(column, head[key])
+        out.append(
+            {
+                "key": key,
+                "label": label,
+                "text": fmt.format(rule, head[key]),
+                "unit": rule.unit,
+                "display": rule.to_dict(),
+            }
+        )
+    return out
 
 
 # --------------------------------------------------------------------------------------------
@@ -877,6 +1020,8 @@ class ReportResult:
     latitude: float | None = None
     longitude: float | None = None
     messages: tuple[str, ...] = ()
+    pdf: Path | None = None  # None when not asked for, or WeasyPrint is not here (see messages)
+    filing: dict[str, Any] | None = None  # the archive filing and its restatements, when filed
 
 
 def _safe_name(text: str) -> str:
@@ -928,6 +1073,8 @@ def make_report(
     draws: int | None = None,
     members: int | None = None,
     progress: bool = False,
+    pdf: bool = True,
+    file_to: str | Path | None = None,
 ) -> ReportResult:
     """Run every step on one site and write its report into the folder ``out_dir``.
 
@@ -950,6 +1097,12 @@ def make_report(
         Monte Carlo draws of the balance and ensemble members of the forecast.
     progress : bool
         Show progress on stderr.
+    pdf : bool
+        Also write ``report.pdf`` from the same HTML (needs the ``pdf`` extra, WeasyPrint; when
+        it is missing the report says so in its messages and goes on).
+    file_to : path, optional
+        Archive folder to file this run's results into (default: ``[report] archive``); the
+        filing lists what changed in earlier years since the last filing of the site.
     """
     from ..config import load_site
     from ..io.output import OutputFolder, site_inputs
@@ -959,14 +1112,14 @@ def make_report(
     folder = OutputFolder(out_dir, inputs=site_inputs(site), replace=True, kind="report")
     try:
         return _write_report(folder, site, year=year, seed=seed, draws=draws, members=members,
-                             progress=progress)  # fmt: skip
+                             progress=progress, pdf=pdf, file_to=file_to)  # fmt: skip
     finally:
         folder.abandon()  # after a commit, nothing to remove
 
 
 def _write_report(
     folder: Any, site: Any, *, year: int | None, seed: int | None, draws: int | None,
-    members: int | None, progress: bool,
+    members: int | None, progress: bool, pdf: bool = True, file_to: Any = None,
 ) -> ReportResult:  # fmt: skip
     """Run the steps of ``site`` and write the report into ``folder`` (an OutputFolder)."""
     from .. import __version__
@@ -993,7 +1146,15 @@ def _write_report(
         year = complete[-1] if complete else present[-1]
     sections, head, summary = build_sections(run, int(year))
     prov = _provenance_dict(run)
+    fmt = formatter(run)
+    archive = file_to if file_to is not None else site.report.archive
+    filing = None
+    if archive is not None:
+        from .archive import prepare_filing
 
+        filing = prepare_filing(archive, run, int(year), prov, fmt)
+
+    sections = [_without_omitted(s) for s in sections]
     tables = [t for s in sections for t in s.tables]
     csv_paths = {}
     for t, (name, _) in zip(tables, unique_slugs((t.id for t in tables), "table"), strict=True):
@@ -1002,11 +1163,7 @@ def _write_report(
     xlsx = folder.write_xlsx(
         "tables.xlsx", {t.id: t.frame.set_index(t.frame.columns[0]) for t in tables}
     )
-    key_numbers = [
-        {"key": k, "label": label, "unit": unit, "text": f"{head[k]:.{d}f}"}
-        for k, label, unit, d in _KEY_NUMBERS
-        if head.get(k) is not None
-    ]
+    tiles = key_numbers(head, fmt)
     location = run.location
     messages = [f"{step} not available: {why}" for step, why in run.unavailable.items()]
     document = {
@@ -1014,14 +1171,19 @@ def _write_report(
         "version": __version__,
         "site": site.site.name,
         "water_year": int(year),
+        "display_units": fmt.units.system,
+        "stage_resolution_m": fmt.stage_resolution_m,
         "headline": head,
+        "key_numbers": tiles,
         "summary": summary,
-        "tables": {t.id: t.to_json() for t in tables},
+        "tables": {t.id: t.to_json(fmt) for t in tables},
         "unavailable": run.unavailable,
         "warnings": caught,
         "cautions": list(CAUTIONS),
         "provenance": prov,
     }
+    if filing is not None:
+        document["filing"] = filing.to_dict()
     json_path = folder.write_text("summary.json", dumps(document))
     title = site.report.title or f"{site.site.name}: water balance"
     html = render(
@@ -1030,7 +1192,8 @@ def _write_report(
         subtitle=f"Water year {year} ({head['first_day']} to {head['last_day']}) · "
         f"lakebalance {__version__}",
         summary=summary,
-        key_numbers=key_numbers,
+        key_numbers=tiles,
+        units_note=_units_note(fmt),
         sections=[
             {
                 "id": s.id,
@@ -1045,9 +1208,10 @@ def _write_report(
                     {
                         "id": t.id,
                         "title": t.title,
-                        "columns": list(t.frame.columns),
-                        "rows": t.rows(),
+                        "columns": t.headers(fmt),
+                        "rows": t.rows(fmt),
                         "note": t.note,
+                        "wide": t.frame.shape[1] > WIDE_COLUMNS,
                     }
                     for t in s.tables
                 ],
@@ -1055,13 +1219,39 @@ def _write_report(
             for s in sections
         ],
         provenance=prov,
+        method_notes=[]
+        if run.get("balance") is None
+        else [n for n in run.get("balance").notes if is_method_note(n)],
+        filing=None if filing is None else filing.to_dict(),
     )
     html_path = folder.write_text("report.html", html)
+    pdf_path = None
+    if pdf:
+        from .pdf import html_to_pdf, pdf_unavailable
+
+        why = pdf_unavailable()
+        if why is None:
+            pdf_path = folder.write_bytes("report.pdf", html_to_pdf(html))
+        else:
+            messages.append(f"PDF not written: {why}")
     folder.commit()  # the whole folder at once: never a mix of two runs
+    if filing is not None:  # filed once the report is complete
+        filing.record(folder.root)
+        n = len(filing.restatements)
+        messages.append(
+            f"filed into {filing.folder / 'archive.sqlite'}: "
+            + (
+                "first filing of this site"
+                if filing.previous is None
+                else f"{n} earlier figure{'s' if n != 1 else ''} restated since "
+                f"{filing.previous['filed_utc']}"
+            )
+        )
     return ReportResult(
         name=site.site.name,
         folder=folder.root,
         html=html_path,
+        pdf=pdf_path,
         json=json_path,
         xlsx=xlsx,
         csv=csv_paths,
@@ -1069,6 +1259,33 @@ def _write_report(
         latitude=None if location is None else location[0],
         longitude=None if location is None else location[1],
         messages=tuple(messages),
+        filing=None if filing is None else filing.to_dict(),
+    )
+
+
+#: A table with more columns than this is printed on a landscape page.
+WIDE_COLUMNS = 9
+
+
+def _without_omitted(section: Section) -> Section:
+    """The section without its tables that have nothing to show, each said as missing."""
+    import dataclasses
+
+    kept = tuple(t for t in section.tables if t.omitted is None)
+    said = tuple(t.omitted for t in section.tables if t.omitted is not None)
+    if not said:
+        return section
+    return dataclasses.replace(section, tables=kept, missing=section.missing + said)
+
+
+def _units_note(fmt: Formatter) -> str:
+    u = fmt.units
+    return (
+        f"Units shown ({'SI' if u.system == 'SI' else 'US customary'}): stage "
+        f"{u.of('length')[1]}, volume {u.of('volume')[1]}, flow {u.of('flow')[1]}, depth "
+        f"{u.of('depth')[1]}, area {u.of('area')[1]}. Volumes, flows, areas and depths to 3 "
+        "significant digits (4 from 1,000 up), stages to the gauge resolution, percentages whole "
+        "(one decimal below 10 %). The CSV and JSON files keep every digit, in SI."
     )
 
 
@@ -1077,8 +1294,8 @@ def _dynamics_headline(run: Lake) -> dict[str, Any]:
     out: dict[str, Any] = {}
     res = dyn.residence
     if "all" in res.index:
-        out["residence_days"] = _r(res.loc["all", "residence_losses_days"], 0)
-    out["equilibrium_stage_m"] = _r(dyn.equilibrium.stage_m, 2)
+        out["residence_days"] = _r(res.loc["all", "residence_losses_days"])
+    out["equilibrium_stage_m"] = _r(dyn.equilibrium.stage_m)
     return out
 
 
@@ -1093,17 +1310,17 @@ def _dynamics_section(run: Lake) -> Section:
     res = res[
         ["water_year", "mean_storage_m3", "residence_outflow_days", "residence_losses_days"]
     ].copy()
-    res["mean_storage_1e3_m3"] = res.pop("mean_storage_m3") / 1e3
     resp = dyn.response.reset_index()
     resp = resp.rename(columns={resp.columns[0]: "stage"})
     resp = resp[["stage", "stage_m", "response_time_days"]]
     limits = dyn.limits.reset_index()
     limits = limits.rename(columns={limits.columns[0]: "level"})
     eq = dyn.equilibrium
+    fmt = formatter(run)
     paragraphs = [
-        f"For a sustained inflow of {dyn.inflow_m3s:.3f} m³/s the lake settles at "
+        f"For a sustained inflow of {fmt.value('inflow_m3s', dyn.inflow_m3s)} the lake settles at "
         + (
-            f"{eq.stage_m:.2f} m"
+            f"{fmt.value('stage_m', eq.stage_m)}"
             if math.isfinite(eq.stage_m)
             else f"no stage in range ({eq.status})"
         )
@@ -1114,14 +1331,16 @@ def _dynamics_section(run: Lake) -> Section:
         )
         + ". The steady state depends on the outlet law, the losses and the inflow; the lake's "
         "area sets how long it takes to get there.",
-        f"The outlet stops flowing below {dyn.cease_to_flow_stage_m:.2f} m; a sustained inflow of "
-        f"at least {dyn.minimum_inflow_to_flow_m3s:.3f} m³/s keeps it flowing.",
+        f"The outlet stops flowing below {fmt.value('stage_m', dyn.cease_to_flow_stage_m)}; a "
+        f"sustained inflow of at least {fmt.value('inflow_m3s', dyn.minimum_inflow_to_flow_m3s)} "
+        "keeps it flowing.",
     ]
     for w in dyn.what_if:
         if math.isfinite(w.equilibrium.stage_m):
             paragraphs.append(
-                f"{w.label}: equilibrium {w.equilibrium.stage_m:.2f} m, 95 % of the way there "
-                f"from {w.start_stage_m:.2f} m in {w.time_to_95_days:.0f} days."
+                f"{w.label}: equilibrium {fmt.value('stage_m', w.equilibrium.stage_m)}, 95 % of "
+                f"the way there from {fmt.value('stage_m', w.start_stage_m)} in "
+                f"{w.time_to_95_days:.0f} days."
             )
     paragraphs += list(dyn.notes)
     return Section(
@@ -1131,22 +1350,19 @@ def _dynamics_section(run: Lake) -> Section:
         tables=(
             table(
                 "residence",
-                "Residence time by water year (days)",
+                "Residence time by water year",
                 res,
-                {"residence_outflow_days": 0, "residence_losses_days": 0, "mean_storage_1e3_m3": 1},
                 note="Mean volume over mean outlet outflow, and over mean total losses.",
             ),
             table(
                 "response",
                 "Response (e-folding) time at chosen stages",
                 resp,
-                {"stage_m": 2, "response_time_days": 1},
             ),
             table(
                 "limits",
                 "Largest sustained inflow that keeps the lake at or below each level",
                 limits,
-                {"stage_m": 2, "max_inflow_m3s": 3},
             ),
         ),
     )
@@ -1171,16 +1387,18 @@ def _drawdown_section(run: Lake) -> Section:
             "probability_pct": 100.0 * o.probability,
             "interval_low_pct": np.nan if o.interval is None else 100.0 * o.interval[0],
             "interval_high_pct": np.nan if o.interval is None else 100.0 * o.interval[1],
-            "days_10pct": o.days_10,
-            "days_50pct": o.days_50,
-            "days_90pct": o.days_90,
+            # the same chance as a count of its basis, as a person says it
+            "members_reaching": count_of(round(o.probability * fc.members), fc.members, "members"),
+            "reach_10pct_days": o.days_10,
+            "reach_50pct_days": o.days_50,
+            "reach_90pct_days": o.days_90,
         }
         for o in fc.odds
     ]
     odds = pd.DataFrame(rows)
     if not any(r["years_reached"] for r in rows):
         odds = odds.drop(columns="years_reached")
-    for c in ("days_10pct", "days_50pct", "days_90pct"):
+    for c in ("reach_10pct_days", "reach_50pct_days", "reach_90pct_days"):
         odds[c] = odds[c].astype(float)
     basis = (
         f"{fc.independent_years} independent historical years"
@@ -1195,16 +1413,7 @@ def _drawdown_section(run: Lake) -> Section:
             "by which 10, 50 and 90 % of the runs have reached it (blank where the years cannot "
             "support that share)",
             odds,
-            {
-                "stage_m": 2,
-                "probability_pct": 0,
-                "interval_low_pct": 0,
-                "interval_high_pct": 0,
-                "days_10pct": 0,
-                "days_50pct": 0,
-                "days_90pct": 0,
-            },
-        ),  # fmt: skip
+        ),
     ]
     if fc.method_spread:
         spread = fc.method_spread_frame().reset_index()
@@ -1227,28 +1436,30 @@ def _drawdown_section(run: Lake) -> Section:
         for c in eff.columns[1:]:
             eff[c] = eff[c].astype(float)
         for c in ("probability_restricted", "probability_unrestricted"):
-            eff[c.replace("probability", "probability_pct")] = 100.0 * eff.pop(c)
+            eff[f"{c}_pct"] = 100.0 * eff.pop(c)
+        eff = eff.rename(
+            columns={
+                "median_days_restricted": "median_restricted_days",
+                "median_days_unrestricted": "median_unrestricted_days",
+            }
+        )
         tables.append(
             table(
                 "drawdown-restrictions",
                 "What the restriction rules change",
                 eff,
-                {
-                    "stage_m": 2,
-                    "probability_pct_restricted": 0,
-                    "probability_pct_unrestricted": 0,
-                    "median_days_restricted": 0,
-                    "median_days_unrestricted": 0,
-                },
+                empty_reason="no member reached a named level within the outlook, with or "
+                "without the restriction rules",
             )
         )
-    fig = fan_chart(fc)
+    fig = fan_chart(fc, units=formatter(run).units)
     skill_text, skill_table = _hindcast_skill(run, fc)
     if skill_table is not None:
         tables.append(skill_table)
     paragraphs = [
         f"Scenario {fc.scenario} ({METHOD_WORDS.get(fc.method, fc.method)}), {fc.members:,} "
-        f"runs on {basis}, from {fc.start} at stage {fc.start_stage_m:.2f} m, seed {fc.seed}. "
+        f"runs on {basis}, from {fc.start} at stage "
+        f"{formatter(run).value('stage_m', fc.start_stage_m)}, seed {fc.seed}. "
         f"A share is called a chance only from {MIN_YEARS_FOR_CHANCE} independent years; a "
         "percentile or band is shown only where at least one independent year lies beyond it.",
         *_forecast_sentences(run),

@@ -18,7 +18,7 @@ def flags_figure(flags: Flags) -> Any:
     """
     import pandas as pd
 
-    from .style import PALETTE, new_figure, shade_periods
+    from .style import PALETTE, date_axis, new_figure, shade_periods
 
     fig, ax = new_figure(height=3.4)
     r = flags.residual_m3
@@ -34,6 +34,7 @@ def flags_figure(flags: Flags) -> Any:
             ax.annotate(f.kind, (start, top), fontsize=6, rotation=90, va="top")
     ax.set_ylabel("residual, m³/d (+ = unexplained gain)")
     ax.set_title("Unexplained residual of the daily balance and its flags")
+    date_axis(ax)
     ax.legend(loc="lower left", fontsize=7)
     return fig
 
@@ -70,6 +71,9 @@ def seepage_figure(fit: SeepageFit) -> Any:
     if fit.dates is not None and len(fit.dates) == fit.residuals_m3s.size:
         ax2.plot(fit.dates, fit.residuals_m3s * 1000.0, ".", ms=2, color=PALETTE["residual"])
         ax2.set_xlabel("date")
+        from .style import date_axis
+
+        date_axis(ax2)
     else:
         ax2.plot(fit.residuals_m3s * 1000.0, ".", ms=2, color=PALETTE["residual"])
     ax2.axhline(0.0, color=PALETTE["observed"], lw=0.8)

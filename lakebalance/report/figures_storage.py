@@ -11,6 +11,7 @@ import numpy as np
 from .style import LINESTYLES, PALETTE, new_figure
 
 if TYPE_CHECKING:  # pragma: no cover
+    from ..display import DisplayUnits
     from ..storage import StorageCurve
 
 __all__ = ["storage_figure"]
@@ -22,6 +23,7 @@ def storage_figure(
     *,
     step_m: float = 0.05,
     levels: dict[str, float] | None = None,
+    units: DisplayUnits | None = None,
 ) -> Any:
     """Area and volume against stage.
 
@@ -36,25 +38,38 @@ def storage_figure(
         Stage step of the drawn curve, m.
     levels : dict of str to float, optional
         Named stages (m) drawn as horizontal lines (spill, intake, ...).
+    units : DisplayUnits, optional
+        Display units of the axes (default SI: m, km², thousand m³), as the report's tables.
 
     Returns
     -------
     matplotlib.figure.Figure
     """
+    from ..display import SI, axis_label, convert
+
+    u = units or SI
+
+    def A(v):
+        return convert(v, "area", u)
+
+    def V(v):
+        return convert(v, "volume", u)
+
+    def H(v):
+        return convert(v, "length", u)
+
     fig, axes = new_figure(1, 2, width=8.0, height=3.6)
     ax_area, ax_volume = np.atleast_1d(axes).ravel()
     table = curve.table(step_m)
-    h = table["stage_m"].to_numpy()
+    h = H(table["stage_m"].to_numpy())
     name = curve.source or "relation"
-    ax_area.plot(
-        table["area_m2"] / 1e6, h, color=PALETTE["simulated"], ls=LINESTYLES[0], label=name
-    )
+    ax_area.plot(A(table["area_m2"]), h, color=PALETTE["simulated"], ls=LINESTYLES[0], label=name)
     ax_volume.plot(
-        table["volume_m3"] / 1e6, h, color=PALETTE["simulated"], ls=LINESTYLES[0], label=name
+        V(table["volume_m3"]), h, color=PALETTE["simulated"], ls=LINESTYLES[0], label=name
     )
     ax_area.plot(
-        curve.area_m2 / 1e6,
-        curve.stage_m,
+        A(curve.area_m2),
+        H(curve.stage_m),
         "o",
         ms=3,
         mfc="none",
@@ -62,8 +77,8 @@ def storage_figure(
         label="surveyed levels",
     )
     ax_volume.plot(
-        curve.volume_m3 / 1e6,
-        curve.stage_m,
+        V(curve.volume_m3),
+        H(curve.stage_m),
         "o",
         ms=3,
         mfc="none",
@@ -76,34 +91,34 @@ def storage_figure(
         shift = float(curve.volume(lo)) - float(other.volume(lo))
         label = other.source or "second survey"
         ax_area.plot(
-            t2["area_m2"] / 1e6,
-            t2["stage_m"],
+            A(t2["area_m2"]),
+            H(t2["stage_m"]),
             color=PALETTE["inflow"],
             ls=LINESTYLES[1],
             label=label,
         )
         ax_volume.plot(
-            (t2["volume_m3"] + shift) / 1e6,
-            t2["stage_m"],
+            V(t2["volume_m3"] + shift),
+            H(t2["stage_m"]),
             color=PALETTE["inflow"],
             ls=LINESTYLES[1],
             label=label,
         )
     for k, (level, stage) in enumerate(sorted((levels or {}).items(), key=lambda kv: kv[1])):
         for ax in (ax_area, ax_volume):
-            ax.axhline(stage, color=PALETTE["band"], lw=0.7, ls=LINESTYLES[(k + 2) % 6])
+            ax.axhline(float(H(stage)), color=PALETTE["band"], lw=0.7, ls=LINESTYLES[(k + 2) % 6])
         ax_volume.annotate(
             level,
-            (1.0, stage),
+            (1.0, float(H(stage))),
             xycoords=("axes fraction", "data"),
             fontsize=7,
             ha="right",
             va="bottom",
         )
-    ax_area.set_xlabel("area (km²)")
-    ax_volume.set_xlabel("storage (million m³)")
+    ax_area.set_xlabel(axis_label("area", "area", u))
+    ax_volume.set_xlabel(axis_label("storage", "volume", u))
     for ax in (ax_area, ax_volume):
-        ax.set_ylabel("stage (m)")
+        ax.set_ylabel(axis_label("stage", "length", u))
     ax_area.legend(loc="lower right")
     title = "stage-area-storage relation" + (" (approximate)" if curve.approximate else "")
     fig.suptitle(title)

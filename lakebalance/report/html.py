@@ -50,6 +50,12 @@ def png_base64(png: bytes) -> str:
 
 def render(template: str, **context: Any) -> str:
     """Render ``template`` (``"report.html"`` or ``"index.html"``) with the shared style and cautions."""
-    context.setdefault("css", _css())
+    from markupsafe import Markup
+
+    # the style sheet is the package's own file: raw text inside <style>, where HTML entities
+    # are not decoded (escaping its quotes would break CSS strings such as the page counter)
+    css = _css()
+    assert "</style" not in css.lower()
+    context.setdefault("css", Markup(css))
     context.setdefault("cautions", CAUTIONS)
     return _environment().get_template(template).render(**context)

@@ -46,6 +46,7 @@ class Provenance:
     site_file: str
     site_sha256: str
     inputs: tuple[tuple[str, str, str], ...]  # (what, path, sha256)
+    relative: tuple[str, ...] = ()  # each input's path relative to the site file's folder
     seeds: dict[str, int] = field(default_factory=dict)
     python: str = ""
     libraries: dict[str, str] = field(default_factory=dict)
@@ -57,11 +58,32 @@ class Provenance:
             "run_utc": self.run_utc,
             "site_file": self.site_file,
             "site_sha256": self.site_sha256,
-            "inputs": [{"what": w, "path": p, "sha256": h} for w, p, h in self.inputs],
+            "site_file_name": Path(self.site_file).name,
+            "inputs": [
+                {"what": w, "path": p, "relative_path": r, "sha256": h}
+                for (w, p, h), r in zip(self.inputs, self._relative(), strict=True)
+            ],
             "seeds": dict(self.seeds),
             "python": self.python,
             "libraries": dict(self.libraries),
         }
+
+    def _relative(self) -> tuple[str, ...]:
+        if len(self.relative) == len(self.inputs):
+            return self.relative
+        return tuple(relative_to_site(p, self.site_file) for _, p, _ in self.inputs)
+
+
+def relative_to_site(path: str | Path, site_file: str | Path) -> str:
+    """``path`` relative to the folder of ``site_file`` (with ``..`` where it lies outside), as
+    POSIX text, so that a report names its inputs without the local folders above the site."""
+    import os
+
+    base = Path(site_file).resolve().parent
+    try:
+        return Path(os.path.relpath(Path(path).resolve(), base)).as_posix()
+    except ValueError:  # another drive (Windows)
+        return Path(path).name
 
 
 def provenance(site: Site, seeds: dict[str, int], now: _dt.datetime | None = None) -> Provenance:
@@ -76,10 +98,12 @@ def provenance(site: Site, seeds: dict[str, int], now: _dt.datetime | None = Non
         digest = sha256_file(path) if Path(path).is_file() else "missing"
         inputs.append((what, str(path), digest))
     libs = {}
-    for name in ("numpy", "pandas", "scipy", "statsmodels", "pint", "matplotlib", "geopandas"):
+    names = ("numpy", "pandas", "scipy", "statsmodels", "pint", "matplotlib", "geopandas",
+             "jinja2", "weasyprint")  # fmt: skip
+    for name in names:
         try:
             libs[name] = metadata.version(name)
-        except metadata.PackageNotFoundError:  # pragma: no cover
+        except metadata.PackageNotFoundError:  # an optional one (weasyprint) not installed
             pass
     return Provenance(
         tool_version=__version__,

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from typing import Any
 
-__all__ = ["PALETTE", "LINESTYLES", "new_figure", "apply_style", "shade_periods"]
+__all__ = ["PALETTE", "LINESTYLES", "new_figure", "apply_style", "shade_periods", "date_axis"]
 
 #: Okabe–Ito colours by role (hex).
 PALETTE = {
@@ -78,3 +78,14 @@ def shade_periods(ax: Any, periods: list[tuple[Any, Any]], *, label: str = "flag
             edgecolor="none",
             label=label if i == 0 else None,
         )
+
+
+def date_axis(ax: Any) -> None:
+    """Concise date ticks on the x axis (matplotlib's ``ConciseDateFormatter`` on an
+    ``AutoDateLocator`` of at most 8 ticks): labels that never print over each other at print
+    size, the year said once."""
+    import matplotlib.dates as mdates
+
+    locator = mdates.AutoDateLocator(minticks=3, maxticks=8)
+    ax.xaxis.set_major_locator(locator)
+    ax.xaxis.set_major_formatter(mdates.ConciseDateFormatter(locator))
