@@ -84,16 +84,16 @@ def run(args: argparse.Namespace) -> int:
     if heat is not None:
         print(
             "lake method: mean depth "
-            f"{display.stage(heat['mean_depth_m'].mean())} (volume/area), time constant "
+            f"{display.value('mean_depth_m', heat['mean_depth_m'].mean())} (volume/area), time constant "
             f"{heat['time_constant_days'].mean():.0f} days, water temperature "
             f"{heat['water_temperature_c'].min():.1f} to {heat['water_temperature_c'].max():.1f} °C"
         )
     for key, value in result.inputs.items():
-        print(f"input: {key}: {value}")
+        print(wrap(f"input: {key}: {value}"))
     for note in result.notes:
-        print(f"note: {note}")
+        print(wrap(f"note: {note}"))
     for msg in messages:
-        print(f"warning: {msg}")
+        print(wrap(f"warning: {msg}"))
     print(wrap(CAUTION))
     return 0
 
@@ -124,7 +124,9 @@ def _water_years(result, methods: list[str], display) -> None:
     rel = result.relative_spread()
     if rel is not None:
         print(
-            f"spread between the methods (sd of complete water years' totals / their mean): "
-            f'{rel:.1%} on average; [uncertainty] evaporation_error = "method_spread" uses it '
-            "as the evaporation error of the balance"
+            wrap(
+                f"spread between the methods (sd of complete water years' totals / their mean): "
+                f'{rel:.1%} on average; [uncertainty] evaporation_error = "method_spread" uses '
+                "it as the evaporation error of the balance"
+            )
         )

@@ -546,7 +546,9 @@ def _score(
                     "happened": o,
                 }
             )
-    events = pd.DataFrame(event_rows)
+    events = pd.DataFrame(
+        event_rows, columns=["start", "level", "stage_m", "direction", "probability", "happened"]
+    )
     skill_rows = []
     order = sorted(levels, key=lambda k: -levels[k])
     for name in order:
@@ -577,7 +579,14 @@ def _score(
                     "uncertainty_term": unc,
                 }
             )
-    skill = pd.DataFrame(skill_rows)
+    skill = pd.DataFrame(
+        skill_rows,
+        columns=[
+            "level", "stage_m", "direction", "starts", "happened", "base_rate",
+            "mean_probability", "brier", "brier_climatology", "brier_skill",
+            "reliability_term", "resolution_term", "uncertainty_term",
+        ],
+    )  # fmt: skip
     pooled = reliability_table(events["probability"], events["happened"])
     stage_rows = []
     for r in results:

@@ -1395,7 +1395,22 @@ def _drawdown_section(run: Lake) -> Section:
         }
         for o in fc.odds
     ]
-    odds = pd.DataFrame(rows)
+    odds = pd.DataFrame(
+        rows,
+        columns=[
+            "level",
+            "stage_m",
+            "direction",
+            "years_reached",
+            "probability_pct",
+            "interval_low_pct",
+            "interval_high_pct",
+            "members_reaching",
+            "reach_10pct_days",
+            "reach_50pct_days",
+            "reach_90pct_days",
+        ],
+    )
     if not any(r["years_reached"] for r in rows):
         odds = odds.drop(columns="years_reached")
     for c in ("reach_10pct_days", "reach_50pct_days", "reach_90pct_days"):
