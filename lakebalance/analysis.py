@@ -29,10 +29,11 @@ from .errors import ConfigError, LakebalanceError
 if TYPE_CHECKING:  # pragma: no cover
     import pandas as pd
 
-    from .balance import Balance, TermErrors
+    from .balance import Balance, ClosureOptions, DailyTerms, TermErrors
     from .drawdown import Forecast
     from .dynamics import Dynamics, WhatIfRequest
     from .evaporation.lake import EvaporationResult
+    from .fieldchecks import FieldChecks
     from .flags import Flags
     from .laws import LakeLaws
     from .outlet.fit import RatingFit
@@ -53,6 +54,7 @@ STEPS = {
     "seepage": "the seepage estimate",
     "dynamics": "the dynamics",
     "forecast": "the drawdown forecast",
+    "field_checks": "the field checks",
 }
 
 
@@ -234,9 +236,50 @@ class Lake:
         def compute() -> Records:
             from .io import read_records
 
-            return read_records(self.site, progress=self.progress)
+            return _with_offset_periods(self, read_records(self.site, progress=self.progress))
 
         return self._step("records", compute)
+
+    @property
+    def field_checks(self) -> FieldChecks | None:
+        """The staff-gauge checks against the logger (records as corrected), the corrections
+        they propose and their judgment of the flagged datum shifts; None without checks."""
+
+        def compute() -> FieldChecks | None:
+            from .fieldchecks import FieldChecks, compare_checks, judge_shifts, size_corrections
+
+            records = self.records
+            if records.check_readings is None or "stage" not in records.daily.columns:
+                return None
+            options = self.site.field_checks
+            comp = compare_checks(
+                records.check_readings, records.daily["stage"], records.subdaily_stage
+            )
+            flags = self.get("flags")
+            shifts = [
+                (f.start, float(f.magnitude_m))
+                for f in (flags.of_kind("datum_shift") if flags is not None else ())
+                if f.magnitude_m is not None and not f.accepted
+            ]
+            proposals = size_corrections(
+                comp,
+                records.daily["stage"],
+                options,
+                step_days=[d for d, _ in shifts],
+                accepted=self.site.correction,
+            )
+            notes = []
+            if flags is None and self.reason("flags"):
+                notes.append(f"no flags to judge: {self.reason('flags')}")
+            return FieldChecks(
+                comparison=comp,
+                proposals=proposals,
+                judgments=judge_shifts(comp, shifts, options),
+                tolerance_m=2.0 * options.reading_error,
+                notes=tuple(notes),
+            )
+
+        return self._step("field_checks", compute)
 
     @property
     def storage(self) -> StorageCurve:
@@ -393,34 +436,16 @@ class Lake:
         """The daily water balance with Monte Carlo bands (``draws`` of them)."""
         return self._step("balance", self._balance)
 
-    def _balance(self) -> Balance:
-        import numpy as np
+    def _terms(self, records: Records, evaporation_m: pd.Series | None) -> DailyTerms:
+        """The balance's daily terms from ``records`` (stage, flows, depths; SI)."""
         import pandas as pd
 
-        from .balance import (
-            ClosureOptions,
-            DailyTerms,
-            OutletParameters,
-            add_uncertainty,
-            boundary_stage_from_readings,
-            close_daily,
-        )
+        from .balance import DailyTerms, boundary_stage_from_readings
 
-        site, records = self.site, self.records
         daily = records.daily
-        if "stage" not in daily.columns:
-            raise ConfigError("the water balance needs a stage series ([series.stage])")
-        storage, rating = self.storage, self.rating
-        notes: list[str] = []
-        evaporation_m = self._evaporation_depth()
-        if evaporation_m is not None:
-            notes.append(f"lake evaporation by the {self.evaporation.method} method")
         info = {s.key: s for s in records.series}
         inflows = {info[k].name if k in info else k: daily[k] for k in records.keys("inflow")}
-        rain_keys = records.keys("rain")
-        if len(rain_keys) > 1:
-            notes.append(f"rain is the daily mean of {len(rain_keys)} gauges")
-        terms = DailyTerms(
+        return DailyTerms(
             stage_m=daily["stage"],
             inflow_m3s=inflows,
             rain_m=records.mean("rain"),
@@ -434,12 +459,41 @@ class Lake:
             ),
             subdaily_stage_m=records.subdaily_stage,
         )
+
+    def _closure_options(self) -> ClosureOptions:
+        from .balance import ClosureOptions
+
+        site = self.site
         stage_spec = next(iter(site.series_of("stage")), None)
-        options = ClosureOptions(
+        return ClosureOptions(
             boundary_rule=site.uncertainty.boundary_rule,
             water_year_start=site.site.water_year_start,
             subdaily_coverage=stage_spec.coverage if stage_spec is not None else 0.8,
         )
+
+    def _balance(self) -> Balance:
+        import numpy as np
+
+        from .balance import (
+            OutletParameters,
+            add_uncertainty,
+            close_daily,
+        )
+
+        site, records = self.site, self.records
+        daily = records.daily
+        if "stage" not in daily.columns:
+            raise ConfigError("the water balance needs a stage series ([series.stage])")
+        storage, rating = self.storage, self.rating
+        notes: list[str] = []
+        evaporation_m = self._evaporation_depth()
+        if evaporation_m is not None:
+            notes.append(f"lake evaporation by the {self.evaporation.method} method")
+        terms = self._terms(records, evaporation_m)
+        rain_keys = records.keys("rain")
+        if len(rain_keys) > 1:
+            notes.append(f"rain is the daily mean of {len(rain_keys)} gauges")
+        options = self._closure_options()
         try:
             storage.check_record(daily["stage"].to_numpy(dtype=float), daily.index)
         except LakebalanceError as exc:
@@ -450,6 +504,7 @@ class Lake:
         balance = close_daily(
             terms, volume_fn=laws.volume, area_fn=laws.area, outflow_fn=outflow, options=options
         )
+        balance = _ice_outflow(balance, site.period)
         if self.draws > 0:
             outlet = None
             if rating is not None:
@@ -843,6 +898,128 @@ def _persistent_errors(balance: Balance, chosen: Any, used: pd.Series) -> Callab
         return model.covariance_of_sums(full, ("systematic", "area", "rating"))
 
     return cov
+
+
+def _ice_outflow(balance: Balance, periods: Any) -> Balance:
+    """The balance with the outflow of each declared ice period estimated as declared."""
+    import pandas as pd
+
+    from .balance import replace_outflow
+    from .periods import days_of, period_outflow, periods_of_kind
+
+    for p in periods_of_kind(periods, "ice"):
+        if p.how_outflow == "rating" or "outflow" in balance.absent_terms:
+            continue
+        index = pd.DatetimeIndex(balance.daily.index)
+        mask = days_of(p, index)
+        if not mask.any():
+            continue
+        q = period_outflow(balance.daily["outflow_m3"].to_numpy(), mask, p.how_outflow, p.fraction)
+        how = (
+            f"{p.fraction:g} of the open-water rating"
+            if p.how_outflow == "fraction"
+            else "interpolated in time between the open-water days around it"
+        )
+        balance = replace_outflow(
+            balance, q, f"outflow of {p.describe()} ({int(mask.sum())} days): {how}"
+        )
+    return balance
+
+
+def _preliminary_residual(lake: Lake, records: Records) -> Callable | None:
+    """Corrected stage (m) → the daily residual (m³/d) of a balance closed on ``records`` with it
+    (no evaporation, no bands: what sizes an offset period), or None without a storage
+    relation."""
+    import numpy as np
+    import pandas as pd
+
+    from .balance import close_daily
+
+    storage = lake.get("storage")
+    if storage is None:
+        return None
+    rating = lake.get("rating")
+    terms = lake._terms(records, None)
+    index = pd.DatetimeIndex(records.daily.index)
+    options = lake._closure_options()
+
+    def residual(stage_m: np.ndarray) -> np.ndarray:
+        t = dataclasses.replace(
+            terms,
+            stage_m=pd.Series(stage_m, index=index),
+            boundary_stage_m=None,
+            subdaily_stage_m=None,
+        )
+        b = close_daily(
+            t,
+            volume_fn=storage.volume,
+            area_fn=storage.area,
+            outflow_fn=None if rating is None else rating.discharge,
+            options=options,
+        )
+        return b.daily["residual_m3"].reindex(index).to_numpy(dtype=float)
+
+    return residual
+
+
+def _with_offset_periods(lake: Lake, records: Records) -> Records:
+    """``records`` with the stage offset of each declared offset period removed (sized from the
+    field checks inside it, from the balance residual or from its end steps), the days marked
+    estimated, and a finding."""
+    import numpy as np
+    import pandas as pd
+
+    from .periods import correct_offset_periods, periods_of_kind
+    from .records import Finding
+
+    site = records.site
+    periods = periods_of_kind(site.period, "offset", "fouled")
+    daily = records.daily
+    if not periods or "stage" not in daily.columns:
+        return records
+    times = diffs = None
+    if records.check_readings is not None:
+        from .fieldchecks import compare_checks
+
+        comp = compare_checks(records.check_readings, daily["stage"], records.subdaily_stage)
+        times, diffs = pd.DatetimeIndex(comp["time"]), comp["difference_m"].to_numpy()
+    index = pd.DatetimeIndex(daily.index)
+    stage, method, applied = correct_offset_periods(
+        daily["stage"].to_numpy(dtype=float), index, periods, times, diffs,
+        residual_with=_preliminary_residual(lake, records),
+    )  # fmt: skip
+    findings = list(records.findings)
+    sub = records.subdaily_stage
+    for p, delta, words in applied:
+        sized = np.isfinite(delta)
+        findings.append(
+            Finding(
+                "stage",
+                "offset_period",
+                p.first.isoformat(),
+                p.last.isoformat(),
+                int(((index >= pd.Timestamp(p.first)) & (index <= pd.Timestamp(p.last))).sum()),
+                "corrected, estimated" if sized else "left, could not be sized",
+                f"{p.describe()}: {words}" + (f", {delta * 1000:+.0f} mm removed" if sized else ""),
+            )  # fmt: skip
+        )
+        if sized and sub is not None:
+            t = pd.DatetimeIndex(sub.index)
+            inside = (t >= pd.Timestamp(p.first)) & (
+                t < pd.Timestamp(p.last) + pd.Timedelta(days=1)
+            )
+            sub = sub.where(~inside, sub - delta)
+    new_daily = daily.copy()
+    new_daily["stage"] = stage
+    estimated = (
+        records.estimated.copy()
+        if records.estimated is not None
+        else pd.DataFrame(index=daily.index)
+    )
+    estimated["stage"] = method
+    return dataclasses.replace(
+        records, daily=new_daily, findings=tuple(findings), subdaily_stage=sub, estimated=estimated
+    )
 
 
 def _name(key: Any) -> str:

@@ -847,6 +847,29 @@ def close_daily(
     )
 
 
+def replace_outflow(balance: Balance, outflow_m3: Array, note: str) -> Balance:
+    """``balance`` with its daily outflow replaced (m³/d) and the residual and ``complete``
+    recomputed from it (e.g. the outflow of a declared ice period, :mod:`lakebalance.periods`).
+
+    Call it before :func:`add_uncertainty`, so that the error model sees the outflow used.
+    """
+    d = balance.daily.copy()
+    new = np.asarray(outflow_m3, dtype=float)
+    old = d["outflow_m3"].to_numpy(dtype=float)
+    residual = d["residual_m3"].to_numpy(dtype=float) + (new - old)
+    # where the old outflow was missing, the residual is rebuilt from the other columns
+    rebuild = ~np.isfinite(old)
+    if rebuild.any():
+        gains = d["inflow_m3"] + d["rain_m3"] - d["evaporation_m3"]
+        losses = d["withdrawal_m3"] + d["release_m3"]
+        full = (d["storage_change_m3"] - (gains - new - losses)).to_numpy(dtype=float)
+        residual = np.where(rebuild, full, residual)
+    d["outflow_m3"] = new
+    d["residual_m3"] = residual
+    d["complete"] = np.isfinite(residual)
+    return replace(balance, daily=d, notes=(*balance.notes, note))
+
+
 def _outflow_volumes(
     terms: DailyTerms,
     index: pd.DatetimeIndex,

@@ -27,9 +27,11 @@ from .balance import UncertaintyOptions
 from .drawdown.options import DemandRule, DrawdownOptions
 from .errors import ConfigError, OptionError, UnitError, suggest
 from .evaporation.options import EvaporationOptions
+from .fieldchecks import FieldCheckOptions
 from .flags import FlagOptions
 from .options import Options, setting
 from .outlet.options import OutletComponent, OutletOptions
+from .periods import Period
 from .qa import QAOptions
 from .records import Correction
 from .report.options import ReportOptions
@@ -51,6 +53,8 @@ __all__ = [
     "DemandRule",
     "DrawdownOptions",
     "Correction",
+    "Period",
+    "FieldCheckOptions",
     "ReportOptions",
     "Site",
     "SERIES_ROLES",
@@ -140,6 +144,8 @@ class Site:
     seepage: SeepageOptions = field(default_factory=SeepageOptions)
     drawdown: DrawdownOptions = field(default_factory=DrawdownOptions)
     correction: tuple[Correction, ...] = ()
+    period: tuple[Period, ...] = ()  # [[period]]: ice and offset periods (lakebalance.periods)
+    field_checks: FieldCheckOptions = field(default_factory=FieldCheckOptions)
     report: ReportOptions = field(default_factory=ReportOptions)
 
     @property
@@ -165,6 +171,7 @@ _TOP_SECTIONS = {
     "flags": FlagOptions,
     "seepage": SeepageOptions,
     "drawdown": DrawdownOptions,
+    "field_checks": FieldCheckOptions,
     "report": ReportOptions,
 }
 _INTERNAL_FIELDS = {"role", "key"}
@@ -342,7 +349,7 @@ def quantity(value: float | str, unit: str, kind: str, what: str) -> float:
 def parse_site(data: dict[str, Any], path: Path, text: str = "") -> Site:
     """Validate a parsed site-file table and build the :class:`Site` (paths resolved against ``path``)."""
     ctx = _Ctx(path, text)
-    valid = [*_TOP_SECTIONS, "series", "levels", "correction"]
+    valid = [*_TOP_SECTIONS, "series", "levels", "correction", "period"]
     for key in data:
         if key not in valid:
             raise ctx.error(f"unknown section [{key}]{suggest(key, valid)}", key)
@@ -399,6 +406,17 @@ def parse_site(data: dict[str, Any], path: Path, text: str = "") -> Site:
         kwargs["correction"] = _coerce(
             tuple[Correction, ...], data["correction"], ctx, "", "correction"
         )
+    if "period" in data:
+        kwargs["period"] = _coerce(tuple[Period, ...], data["period"], ctx, "", "period")
+        keys = [s.key for s in series]
+        for i, p in enumerate(kwargs["period"]):
+            if p.series not in keys:
+                raise ctx.error(
+                    f"[[period]] {p.describe()} names series {p.series!r}, which the site file "
+                    f"does not declare{suggest(p.series, keys)}",
+                    f"period[{i}]",
+                    "series",
+                )
     return Site(path=path, series=tuple(series), levels=levels, **kwargs)
 
 

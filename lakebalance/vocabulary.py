@@ -24,6 +24,7 @@ __all__ = [
     "Term",
     "ROLES",
     "SERIES_ROLES",
+    "SPARSE_ROLES",
     "TERMS",
     "TERM_BY_NAME",
     "MEASURED_TERMS",
@@ -57,6 +58,9 @@ class Role:
     smooth : bool
         Smooth enough for the spike check (event-driven or gusty series are not: a robust z-score
         would flag every storm or cloudy day).
+    sparse : bool
+        A few readings a year by design (field checks): no gap findings, no warning that the
+        readings are coarse, and the readings are kept with their times.
     """
 
     name: str
@@ -67,6 +71,7 @@ class Role:
     plausible: tuple[float, float] = (-INF, INF)
     state: bool = False
     smooth: bool = False
+    sparse: bool = False
 
 
 #: Every series role, in the order the documentation lists them.
@@ -74,6 +79,8 @@ ROLES: dict[str, Role] = {
     r.name: r
     for r in (
         Role("stage", "length", "lake stage", state=True, smooth=True),
+        # staff-gauge (or surveyed) readings of the same stage on the gauge datum, made at visits
+        Role("staff_gauge", "length", "staff-gauge check reading", sparse=True),
         # 3e5 m³/s: above the largest rivers' mean daily flow (from memory)
         Role("inflow", "flow", "gauged inflow", True, plausible=(0.0, 3.0e5)),
         Role("rain", "depth", "rain", True, plausible=(0.0, 2.0)),  # 2 m/d: above the record
@@ -119,6 +126,9 @@ ROLES: dict[str, Role] = {
 
 #: The role names, in order.
 SERIES_ROLES: tuple[str, ...] = tuple(ROLES)
+
+#: Roles read a few times a year by design (field checks), kept with their reading times.
+SPARSE_ROLES: frozenset[str] = frozenset(r for r, v in ROLES.items() if v.sparse)
 
 
 @dataclass(frozen=True)

@@ -24,6 +24,8 @@ SECTIONS = {
     "[drawdown]": config.DrawdownOptions,
     "[[drawdown.restriction]]": config.DemandRule,
     "[[correction]]": config.Correction,
+    "[[period]]": config.Period,
+    "[field_checks]": config.FieldCheckOptions,
     "[report]": config.ReportOptions,
 }
 
