@@ -267,6 +267,7 @@ class Lake:
                 options,
                 step_days=[d for d, _ in shifts],
                 accepted=self.site.correction,
+                residual_with=_preliminary_residual(self, records),
             )
             notes = []
             if flags is None and self.reason("flags"):

@@ -17,7 +17,7 @@ Pure: pandas Series and frames in, frozen results out; no file reading.
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, Literal
 
@@ -264,14 +264,20 @@ def compare_checks(
 
 
 def _located_step(
-    stage_m: np.ndarray, k0: int, k1: int, change_m: float, z: float, candidates: Sequence[int]
+    stage_m: np.ndarray,
+    k0: int,
+    k1: int,
+    change_m: float,
+    z: float,
+    candidates: Sequence[int],
 ) -> int | None:
     """The day in (k0, k1] on which the logger jumps by about ``change_m``, or None.
 
     A candidate day (a flagged datum shift) is taken when it lies inside; otherwise the day whose
-    day-to-day change, less the median change of the 15 days around it (the lake's own change),
-    has the sign of ``change_m``, at least half its size and a robust z-score (median absolute
-    deviation × 1.4826 of those departures over the record) of at least ``z``.
+    day-to-day change of the stage, less the median of the 15 days around it (the lake's own
+    change), has the sign of ``change_m``, at least half its size and a robust z-score (median
+    absolute deviation × 1.4826 of those departures over the record) of at least ``z``. Used
+    when there is no balance to choose with (:func:`_step_or_drift`).
     """
     inside = [c for c in candidates if k0 < c <= k1]
     if inside:
@@ -302,6 +308,47 @@ def _located_step(
     return None
 
 
+def _step_or_drift(
+    stage_m: np.ndarray,
+    k0: int,
+    k1: int,
+    c0: float,
+    c1: float,
+    candidates: Sequence[int],
+    residual_with: Callable[[np.ndarray], np.ndarray],
+) -> int | None:
+    """The step day in (k0, k1] that best closes the balance, or None when a drift closes it
+    better.
+
+    Each hypothesis (a step from c0 to c1 on each day, or a drift linear from c0 to c1) corrects
+    the stage between the two checks; the balance residual is closed with it and its spread
+    (sum of squares about its mean) over the days strictly between the checks is compared. The
+    balance explains the lake's own rises, so a storm is not taken for a step; a datum shift of
+    an outlet lake also moves the outflow of every later day, which the residual shows.
+    """
+    inside = [c for c in candidates if k0 < c <= k1]
+    if inside:
+        return int(inside[0])
+    span = k1 - k0
+    window = slice(k0 + 1, k1)
+
+    def spread(correction: np.ndarray) -> float:
+        trial = stage_m.copy()
+        trial[k0:k1] = trial[k0:k1] + correction
+        r = np.asarray(residual_with(trial), dtype=float)[window]
+        r = r[np.isfinite(r)]
+        return float(np.sum((r - r.mean()) ** 2)) if r.size > 2 else float("inf")
+
+    j = np.arange(span)
+    drift = spread(c0 + (c1 - c0) * j / span)
+    best, best_k = float("inf"), None
+    for k in range(k0 + 1, k1):
+        cost = spread(np.where(j < k - k0, c0, c1))
+        if cost < best:
+            best, best_k = cost, k
+    return best_k if best_k is not None and best < drift else None
+
+
 def size_corrections(
     comparison: pd.DataFrame,
     logger_daily_m: pd.Series,
@@ -310,6 +357,7 @@ def size_corrections(
     series: str = "stage",
     step_days: Sequence[str] = (),
     accepted: Sequence[Correction] = (),
+    residual_with: Callable[[np.ndarray], np.ndarray] | None = None,
 ) -> tuple[Proposal, ...]:
     """Size the correction of each stretch between two consecutive checks.
 
@@ -326,6 +374,10 @@ def size_corrections(
         ISO dates of datum shifts already found (residual flags): a step is put there first.
     accepted : sequence of Correction
         The site file's corrections, to mark proposals accepted.
+    residual_with : callable, optional
+        Daily stage (m, on ``logger_daily_m``'s days) → the daily balance residual (m³/d) closed
+        with it: when given, the balance chooses between a step and a drift
+        (:func:`_step_or_drift`); else steps are looked for in the stage alone.
 
     Returns
     -------
@@ -374,7 +426,12 @@ def size_corrections(
         why = f"field checks {t0[:10]} and {t1[:10]}"
         step = None
         if abs(change) > tol:
-            step = _located_step(stage, int(k[i]), int(k[i + 1]), -change, options.step_z, cand)
+            if residual_with is not None:
+                step = _step_or_drift(
+                    stage, int(k[i]), int(k[i + 1]), c[i], c[i + 1], cand, residual_with
+                )
+            else:
+                step = _located_step(stage, int(k[i]), int(k[i + 1]), -change, options.step_z, cand)
         if abs(change) <= tol:
             shape: Shape = "offset"
             value = 0.5 * (c[i] + c[i + 1])
@@ -393,6 +450,7 @@ def size_corrections(
             evidence.append(
                 f"the logger steps by {jump * 1000:+.0f} mm on {s}; the checks say "
                 f"{-change * 1000:+.0f} mm"
+                + ("; a step there closes the balance better than a drift" if residual_with else "")
             )
         else:
             shape = "drift"

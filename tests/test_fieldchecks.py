@@ -105,3 +105,36 @@ def test_drift_correction_values_linear_in_time():
     assert v == pytest.approx(np.linspace(0, 0.010, 11))
     with pytest.raises(ValueError, match="end_value"):
         Correction("stage", "drift", "2022-01-01", None, 0.0)
+
+
+def test_lake_reads_staff_gauge_and_proposes(tmp_path):
+    """Through the analysis object: a simulated lake (tests/lakefamilies.py) with a planted
+    +40 mm datum shift and quarterly staff readings; the field checks propose a step on the
+    shift's day, and the residual flag of that shift (if any) is judged confirmed."""
+    from lakefamilies import Fault, simulate
+
+    from lakebalance.analysis import open_site
+
+    sim = simulate("flow_through", 5, tmp_path, [Fault("datum_shift", "2002-06-15", 1, 0.04)],
+                   years=2)  # fmt: skip
+    truth = pd.Series(sim.truth["stage_true_m"], index=sim.truth["dates"])
+    rng = np.random.default_rng(5)
+    days = truth.index[::91]
+    staff = truth[days].to_numpy() + rng.uniform(-NOISE_M, NOISE_M, days.size)
+    pd.DataFrame(
+        {"date": (days + pd.Timedelta(hours=10)).strftime("%Y-%m-%d %H:%M"), "value": staff}
+    ).to_csv(tmp_path / "staff.csv", index=False)
+    text = sim.site_file.read_text(encoding="utf-8").replace("draws = 200", "draws = 0")
+    text += '\n[series.staff_gauge]\nfile = "staff.csv"\nunits = "m"\n'
+    sim.site_file.write_text(text, encoding="utf-8")
+    lake = open_site(sim.site_file, draws=0)
+    fc = lake.field_checks
+    assert fc is not None and len(fc.comparison) == days.size
+    steps = [p for p in fc.proposals if p.shape == "step"]
+    assert steps and steps[0].step_day == "2002-06-15"
+    assert not any(p.accepted for p in fc.proposals)
+    for j in fc.judgments:
+        if j.day == "2002-06-15":
+            assert j.status == "confirmed"
+    assert "[[correction]]" in steps[0].toml()
+    assert "field checks" in str(fc.summary())
