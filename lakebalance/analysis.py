@@ -472,6 +472,42 @@ class Lake:
             subdaily_coverage=stage_spec.coverage if stage_spec is not None else 0.8,
         )
 
+    def _graded(
+        self, balance: Balance, terms: DailyTerms, laws: Any, outflow: Any, options: Any
+    ) -> Balance:
+        """The balance with the grade of every term on every day and the infilled table."""
+        import pandas as pd
+
+        from .balance import grade_balance
+        from .periods import days_of, periods_of_kind
+
+        records = self.records
+        stage_est = None
+        if records.estimated is not None and "stage" in records.estimated.columns:
+            stage_est = records.estimated["stage"].reindex(records.daily.index).fillna("")
+            stage_est = stage_est.to_numpy(dtype=object)
+        index = pd.DatetimeIndex(balance.daily.index)
+        ice = {}
+        for p in periods_of_kind(self.site.period, "ice"):
+            if p.how_outflow != "rating":
+                how = (
+                    f"{p.fraction:g} of the open-water rating under ice"
+                    if p.how_outflow == "fraction"
+                    else "interpolated across the ice period"
+                )
+                ice[how] = ice.get(how, False) | days_of(p, index)
+        return grade_balance(
+            balance,
+            terms,
+            volume_fn=laws.volume,
+            area_fn=laws.area,
+            outflow_fn=outflow,
+            options=options,
+            stage_estimated=stage_est,
+            after_closure=lambda b: _ice_outflow(b, self.site.period),
+            outflow_estimated=ice,
+        )
+
     def _balance(self) -> Balance:
         import numpy as np
 
@@ -506,6 +542,7 @@ class Lake:
             terms, volume_fn=laws.volume, area_fn=laws.area, outflow_fn=outflow, options=options
         )
         balance = _ice_outflow(balance, site.period)
+        balance = self._graded(balance, terms, laws, outflow, options)
         if self.draws > 0:
             outlet = None
             if rating is not None:

@@ -521,6 +521,11 @@ class Balance:
     error_model : ResidualErrors or None
         The error model of the residual (:mod:`lakebalance.errormodel`), after
         :func:`add_uncertainty`: what the flags' significance and the seepage interval use.
+    grades : pandas.DataFrame or None
+        After :func:`grade_balance`: the grade of every term on every day (``measured``,
+        ``estimated: <method>``, ``missing``; :mod:`lakebalance.grades`).
+    infilled : pandas.DataFrame or None
+        After :func:`grade_balance`: the daily table closed with the missing days estimated.
     """
 
     daily: pd.DataFrame
@@ -535,6 +540,8 @@ class Balance:
     errors: TermErrors | None = None
     nodes: int = 3
     error_model: ResidualErrors | None = field(default=None, repr=False)
+    grades: pd.DataFrame | None = field(default=None, repr=False)
+    infilled: pd.DataFrame | None = field(default=None, repr=False)
 
     # -- properties ----------------------------------------------------------------------
     @property
@@ -624,6 +631,35 @@ class Balance:
             out = out.join(self.annual_bands)
         return out
 
+    @property
+    def graded_terms(self) -> list[str]:
+        """The terms that carry grades: storage change, inflow (and each tributary), rain,
+        evaporation, outflow, withdrawal, release, residual."""
+        return ["storage_change", "inflow", *[f"inflow:{n}" for n in self.inflow_names]] + [
+            *_TERMS[1:],
+            "residual",
+        ]
+
+    def _graded(self, keys: Array, label: str) -> pd.DataFrame:
+        from .grades import graded_totals
+
+        if self.grades is None or self.infilled is None:
+            raise ValueError("no grades: the balance was not graded (grade_balance)")
+        return graded_totals(self.daily, self.infilled, self.grades, keys, label, self.graded_terms)
+
+    def graded_monthly(self) -> pd.DataFrame:
+        """Monthly totals of each term measured-only and infilled, with the share estimated and
+        the days measured, estimated and missing (:func:`lakebalance.grades.graded_totals`)."""
+        keys = np.asarray(self.daily.index.to_period("M").to_timestamp())
+        out = self._graded(keys, "month")
+        out.index = pd.DatetimeIndex(out.index, name="month")
+        return out
+
+    def graded_water_years(self) -> pd.DataFrame:
+        """Water-year totals of each term measured-only and infilled, with the share estimated
+        (see :meth:`graded_monthly`)."""
+        return self._graded(water_year_of(self.daily.index, self.water_year_start), "water_year")
+
     def to_frame(self) -> pd.DataFrame:
         """The daily table (:attr:`daily`)."""
         return self.daily
@@ -642,6 +678,11 @@ class Balance:
             "totals_m3": self.totals,
             "water_years": self.water_years().reset_index().to_dict(orient="records"),
             "monthly": self.monthly().reset_index().to_dict(orient="records"),
+            "water_years_graded": (
+                self.graded_water_years().reset_index().to_dict(orient="records")
+                if self.grades is not None
+                else None
+            ),
             "notes": list(self.notes),
             "caution": CAUTION,
         }
@@ -845,6 +886,79 @@ def close_daily(
         notes=tuple(notes),
         nodes=options.nodes,
     )
+
+
+def grade_balance(
+    balance: Balance,
+    terms: DailyTerms,
+    *,
+    volume_fn: StageFn,
+    area_fn: StageFn,
+    outflow_fn: StageFn | None = None,
+    options: ClosureOptions = ClosureOptions(),
+    stage_estimated: Array | None = None,
+    after_closure: Callable[[Balance], Balance] | None = None,
+    outflow_estimated: Mapping[str, Array] | None = None,
+    max_gap_days: int = 31,
+) -> Balance:
+    """``balance`` with the grade of every term on every day and the infilled daily table.
+
+    Parameters
+    ----------
+    balance : Balance
+        From :func:`close_daily` on ``terms``.
+    terms : DailyTerms
+        The measured terms it was closed from.
+    volume_fn, area_fn, outflow_fn, options
+        As for :func:`close_daily`.
+    stage_estimated : ndarray of str, optional
+        Per day of ``terms.stage_m``, the method of a stage already estimated ('' = measured).
+    after_closure : callable, optional
+        Applied to the infilled closure as to the measured one (e.g. an ice period's outflow).
+    outflow_estimated : mapping of str to ndarray of bool, optional
+        Method → days (of the balance) whose outflow is estimated otherwise.
+    max_gap_days : int
+        Longest stage, withdrawal or release gap interpolated in time, days.
+
+    Notes
+    -----
+    The missing days are estimated by :func:`lakebalance.grades.infill_terms` and the balance is
+    closed again on them (daily path, no sub-daily stage); the measured balance is unchanged.
+    """
+    from .grades import infill_terms, term_grades
+
+    filled, input_grades = infill_terms(
+        terms, stage_estimated=stage_estimated, max_gap_days=max_gap_days
+    )
+    closed = close_daily(
+        filled, volume_fn=volume_fn, area_fn=area_fn, outflow_fn=outflow_fn, options=options
+    )
+    if after_closure is not None:
+        closed = after_closure(closed)
+    index = pd.DatetimeIndex(balance.daily.index)
+    grades = term_grades(
+        index,
+        input_grades,
+        pd.DatetimeIndex(pd.Series(terms.stage_m).index),
+        absent=balance.absent_terms,
+        outflow_estimated=outflow_estimated,
+    )
+    infilled = closed.daily.reindex(index)
+    # the grades agree with the volumes: no volume, no measurement; no estimate, missing
+    for t in balance.graded_terms:
+        col = f"{t}_m3"
+        g = grades[t].to_numpy(dtype=object).copy()
+        have_m = np.isfinite(balance.daily[col].to_numpy(dtype=float))
+        have_i = np.isfinite(infilled[col].to_numpy(dtype=float))
+        g[(g == "measured") & ~have_m] = "estimated: from the estimated stage around the day"
+        g[~have_i] = "missing"
+        grades[t] = g
+    n_est = int(grades["residual"].astype(str).str.startswith("estimated").sum())
+    note = (
+        f"grades: {n_est} of {len(index)} days have an estimated term; totals are given "
+        "measured-only and infilled"
+    )
+    return replace(balance, grades=grades, infilled=infilled, notes=(*balance.notes, note))
 
 
 def replace_outflow(balance: Balance, outflow_m3: Array, note: str) -> Balance:
