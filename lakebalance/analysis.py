@@ -40,6 +40,7 @@ if TYPE_CHECKING:  # pragma: no cover
     from .records import Records
     from .seepage import SeepageFit
     from .storage import StorageCurve
+    from .surveys import DatedStorage
 
 __all__ = ["Lake", "open_site", "STEPS"]
 
@@ -55,6 +56,7 @@ STEPS = {
     "dynamics": "the dynamics",
     "forecast": "the drawdown forecast",
     "field_checks": "the field checks",
+    "surveys": "the dated surveys",
 }
 
 
@@ -291,9 +293,27 @@ class Lake:
 
             if self.site.storage is None:
                 raise ConfigError("the site file has no [storage] section", file=self.site.path)
+            surveys = self.surveys
+            if surveys is not None:
+                return surveys.latest
             return read_storage(self.site.storage, site_file=self.site.path)
 
         return self._step("storage", compute)
+
+    @property
+    def surveys(self) -> DatedStorage | None:
+        """The dated surveys (``[storage] date`` and ``[[storage.survey]]``), interpolated in time;
+        None with one survey. :attr:`storage` is then the latest, and the balance uses each
+        day's relation."""
+
+        def compute() -> DatedStorage | None:
+            from .io.storage import read_surveys
+
+            if self.site.storage is None:
+                return None
+            return read_surveys(self.site.storage, site_file=self.site.path)
+
+        return self._step("surveys", compute)
 
     def survey(self, file: Path) -> StorageCurve:
         """Another survey read with the ``[storage]`` settings (e.g. ``--compare``)."""
@@ -537,6 +557,19 @@ class Lake:
             where = site.storage.file if site.storage is not None else None
             raise _with_file(exc, where or site.path) from None
         laws = self.laws_without_seepage
+        surveys = self.surveys
+        if surveys is not None:  # each day's relation, interpolated between the surveys
+            lo = storage.min_stage_m if storage.below == "error" else -np.inf
+            hi = storage.max_stage_m if storage.above == "error" else np.inf
+            laws = dataclasses.replace(
+                laws,
+                volume=surveys.volume_relation((lo, hi)),
+                area=surveys.area_relation((lo, hi)),
+            )
+            notes.append(
+                f"storage: {len(surveys.dates)} surveys ({', '.join(surveys.dates)}), each day's "
+                "relation interpolated linearly in time between them"
+            )
         outflow = None if rating is None else rating.discharge
         balance = close_daily(
             terms, volume_fn=laws.volume, area_fn=laws.area, outflow_fn=outflow, options=options

@@ -446,14 +446,23 @@ def _boundaries(
     return b, from_given
 
 
-def _at(fn: StageFn, stage_m: Array) -> Array:
+def _at(fn: StageFn, stage_m: Array, days: pd.DatetimeIndex | None = None) -> Array:
     """``fn`` evaluated where the stage is known (NaN elsewhere), so that a missing day never
-    reaches a relation whose policy raises outside its range."""
+    reaches a relation whose policy raises outside its range.
+
+    A relation that changes in time (an object with ``on_days(stage_m, days)``, e.g. dated
+    surveys or dated ratings) is evaluated with the day of each row of ``stage_m`` (shape (n,)
+    or (n, k) for n ``days``)."""
     h = np.asarray(stage_m, dtype=float)
     out = np.full(h.shape, np.nan)
     ok = np.isfinite(h)
     if ok.any():
-        out[ok] = np.asarray(fn(h[ok]), dtype=float)
+        on_days = getattr(fn, "on_days", None)
+        if on_days is not None and days is not None:
+            rows = np.nonzero(ok)[0]
+            out[ok] = np.asarray(on_days(h[ok], pd.DatetimeIndex(days)[rows]), dtype=float)
+        else:
+            out[ok] = np.asarray(fn(h[ok]), dtype=float)
     return out
 
 
@@ -793,9 +802,10 @@ def close_daily(
     tau, w = gauss_legendre(options.nodes, (0.0, 1.0))
     path = day_path(hs, he, stage, tau)
     ok_stage = np.isfinite(path).all(axis=1)
-    area_nodes = _at(area_fn, path)
+    area_nodes = _at(area_fn, path, index)
     area = np.where(ok_stage, area_nodes @ w, np.nan)
-    vs, ve, vmean = _at(volume_fn, hs), _at(volume_fn, he), _at(volume_fn, stage)
+    vs, ve = _at(volume_fn, hs, index), _at(volume_fn, he, index)
+    vmean = _at(volume_fn, stage, index)
     dv = ve - vs
     outflow, n_readings = _outflow_volumes(terms, index, path, w, ok_stage, outflow_fn, options)
 
@@ -998,7 +1008,7 @@ def _outflow_volumes(
     n = len(index)
     if outflow_fn is None:
         return np.zeros(n), 0
-    q_nodes = _at(outflow_fn, path)
+    q_nodes = _at(outflow_fn, path, index)
     outflow = np.where(ok_stage, (q_nodes @ w) * SECONDS_PER_DAY, np.nan)
     if terms.subdaily_stage_m is None:
         return outflow, 0
@@ -1151,11 +1161,14 @@ def residual_errors(
         params = values + outlet.draw(rng, int(rating_variants))
         rating_m3 = rating_variant_volumes(outlet.discharge_with, params, values, path, w, ok)
 
-    a_s = np.nan_to_num(_at(area_fn, hs))
-    a_e = np.nan_to_num(_at(area_fn, he))
+    a_s = np.nan_to_num(_at(area_fn, hs, d.index))
+    a_e = np.nan_to_num(_at(area_fn, he, d.index))
     if outflow_fn is not None:
         eps = 1e-4  # m, central-difference step for dQ/dh
-        dq = np.nan_to_num((_at(outflow_fn, path + eps) - _at(outflow_fn, path - eps)) / (2 * eps))
+        dq = np.nan_to_num(
+            (_at(outflow_fn, path + eps, d.index) - _at(outflow_fn, path - eps, d.index))
+            / (2 * eps)
+        )
         g_s = (dq * (1 - tau)[None, :]) @ w * SECONDS_PER_DAY
         g_e = (dq * tau[None, :]) @ w * SECONDS_PER_DAY
     else:

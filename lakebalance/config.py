@@ -36,13 +36,14 @@ from .qa import QAOptions
 from .records import Correction
 from .report.options import ReportOptions
 from .seepage import SeepageOptions
-from .storage import StorageOptions
+from .storage import DatedSurvey, StorageOptions
 from .vocabulary import SERIES_ROLES
 
 __all__ = [
     "SiteInfo",
     "SeriesSpec",
     "StorageOptions",
+    "DatedSurvey",
     "OutletComponent",
     "OutletOptions",
     "UncertaintyOptions",

@@ -25,6 +25,7 @@ SECTIONS = {
     "[[drawdown.restriction]]": config.DemandRule,
     "[[correction]]": config.Correction,
     "[[period]]": config.Period,
+    "[[storage.survey]]": config.DatedSurvey,
     "[field_checks]": config.FieldCheckOptions,
     "[report]": config.ReportOptions,
 }
