@@ -37,6 +37,7 @@ if TYPE_CHECKING:  # pragma: no cover
     from .flags import Flags
     from .laws import LakeLaws
     from .outlet.fit import RatingFit
+    from .outlet.periods import DatedRating
     from .records import Records
     from .seepage import SeepageFit
     from .storage import StorageCurve
@@ -57,6 +58,7 @@ STEPS = {
     "forecast": "the drawdown forecast",
     "field_checks": "the field checks",
     "surveys": "the dated surveys",
+    "ratings": "the dated ratings",
 }
 
 
@@ -339,7 +341,8 @@ class Lake:
     @property
     def rating(self) -> RatingFit | None:
         """The outlet rating fitted to the spot gaugings, or None when the site has no
-        ``[outlet]``."""
+        ``[outlet]``. With dated rating periods (``[[outlet.period]]``) it is the rating in force
+        now (the last period's); :attr:`ratings` holds them all."""
 
         def compute() -> RatingFit | None:
             import numpy as np
@@ -352,6 +355,9 @@ class Lake:
             outlet = self.site.outlet
             if outlet is None:
                 return None
+            if outlet.period:
+                dated = self.ratings
+                return None if dated is None else dated.latest
             options = outlet.fit_options()
             law = law_from_options(outlet)
             gaugings = read_gaugings(outlet)
@@ -370,6 +376,42 @@ class Lake:
                 raise _with_file(exc, gaugings.file) from None
 
         return self._step("rating", compute)
+
+    @property
+    def ratings(self) -> DatedRating | None:
+        """The dated ratings of ``[[outlet.period]]``, each fitted from its own period's gaugings
+        (:mod:`lakebalance.outlet.periods`); None without periods. The balance applies each
+        day's rating."""
+
+        def compute() -> DatedRating | None:
+            import numpy as np
+
+            from .errors import FitError
+            from .io.gaugings import read_gaugings
+            from .outlet.laws import law_from_options
+            from .outlet.periods import fit_rating_periods
+
+            outlet = self.site.outlet
+            if outlet is None or not outlet.period:
+                return None
+            options = outlet.fit_options()
+            gaugings = read_gaugings(outlet)
+            rng = np.random.default_rng(self.seed) if options.bootstrap > 0 else None
+            try:
+                return fit_rating_periods(
+                    law_from_options(outlet),
+                    gaugings.stage_m,
+                    gaugings.discharge_m3s,
+                    gaugings.date,
+                    outlet.period,
+                    weights=gaugings.weight,
+                    options=options,
+                    rng=rng,
+                )
+            except FitError as exc:
+                raise _with_file(exc, gaugings.file) from None
+
+        return self._step("ratings", compute)
 
     @property
     def evaporation(self) -> EvaporationResult:
@@ -571,6 +613,14 @@ class Lake:
                 "relation interpolated linearly in time between them"
             )
         outflow = None if rating is None else rating.discharge
+        dated = self.ratings
+        if dated is not None:
+            outflow = dated
+            notes.append(
+                f"outflow: {len(dated.fits)} rating periods (from "
+                + ", ".join(s or "the start" for s in dated.starts)
+                + "), each day by its own"
+            )
         balance = close_daily(
             terms, volume_fn=laws.volume, area_fn=laws.area, outflow_fn=outflow, options=options
         )
@@ -578,7 +628,12 @@ class Lake:
         balance = self._graded(balance, terms, laws, outflow, options)
         if self.draws > 0:
             outlet = None
-            if rating is not None:
+            if dated is not None:
+                notes.append(
+                    "rating parameter error left out of the bands: the ratings are dated "
+                    "(each period's own intervals are in the rating step)"
+                )
+            elif rating is not None:
                 cov = np.asarray(rating.cov, dtype=float)
                 if np.all(np.isfinite(cov)):
                     outlet = OutletParameters(
@@ -1010,6 +1065,7 @@ def _preliminary_residual(lake: Lake, records: Records) -> Callable | None:
     if storage is None:
         return None
     rating = lake.get("rating")
+    outflow = lake.get("ratings") or (None if rating is None else rating.discharge)
     terms = lake._terms(records, None)
     index = pd.DatetimeIndex(records.daily.index)
     options = lake._closure_options()
@@ -1025,7 +1081,7 @@ def _preliminary_residual(lake: Lake, records: Records) -> Callable | None:
             t,
             volume_fn=storage.volume,
             area_fn=storage.area,
-            outflow_fn=None if rating is None else rating.discharge,
+            outflow_fn=outflow,
             options=options,
         )
         return b.daily["residual_m3"].reindex(index).to_numpy(dtype=float)

@@ -1073,7 +1073,11 @@ def subdaily_outflow_m3(
     t, h = t[order], h[order]
     keep = np.r_[True, np.diff(t) > 0]
     t, h = t[keep], h[keep]
-    q = np.asarray(outflow_fn(h), dtype=float)
+    on_days = getattr(outflow_fn, "on_days", None)  # a rating that changes in time
+    if on_days is not None:
+        q = np.asarray(on_days(h, pd.DatetimeIndex(t).normalize()), dtype=float)
+    else:
+        q = np.asarray(outflow_fn(h), dtype=float)
     dt = np.diff(t) / 1e9  # s
     vol = 0.5 * (q[:-1] + q[1:]) * dt
     ok = dt <= max_gap_hours * 3600.0

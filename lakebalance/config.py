@@ -31,6 +31,7 @@ from .fieldchecks import FieldCheckOptions
 from .flags import FlagOptions
 from .options import Options, setting
 from .outlet.options import OutletComponent, OutletOptions
+from .outlet.periods import RatingPeriod
 from .periods import Period
 from .qa import QAOptions
 from .records import Correction
@@ -46,6 +47,7 @@ __all__ = [
     "DatedSurvey",
     "OutletComponent",
     "OutletOptions",
+    "RatingPeriod",
     "UncertaintyOptions",
     "EvaporationOptions",
     "QAOptions",

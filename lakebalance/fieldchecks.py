@@ -237,8 +237,8 @@ def compare_checks(
     how = np.array(["daily mean"] * len(times), dtype=object)
     if logger_subdaily_m is not None and len(logger_subdaily_m):
         sub = logger_subdaily_m.dropna().sort_index()
-        t = sub.index.asi8.astype(float)
-        x = times.asi8.astype(float)
+        t = pd.DatetimeIndex(sub.index).as_unit("ns").asi8.astype(float)
+        x = times.as_unit("ns").asi8.astype(float)
         at = np.interp(x, t, sub.to_numpy(dtype=float), left=np.nan, right=np.nan)
         pos = np.searchsorted(t, x)
         near = np.minimum(

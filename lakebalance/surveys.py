@@ -85,8 +85,10 @@ class DatedStorage:
         import pandas as pd
 
         t = pd.DatetimeIndex(pd.to_datetime(list(days) if not hasattr(days, "asi8") else days))
-        x = t.asi8.astype(float)
-        knots = pd.DatetimeIndex([pd.Timestamp(d) for d in self.dates]).asi8.astype(float)
+        x = t.as_unit("ns").asi8.astype(float)
+        knots = (
+            pd.DatetimeIndex([pd.Timestamp(d) for d in self.dates]).as_unit("ns").asi8.astype(float)
+        )
         k = len(knots)
         w = np.zeros((x.size, k))
         if k == 1:

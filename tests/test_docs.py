@@ -26,6 +26,7 @@ SECTIONS = {
     "[[correction]]": config.Correction,
     "[[period]]": config.Period,
     "[[storage.survey]]": config.DatedSurvey,
+    "[[outlet.period]]": config.RatingPeriod,
     "[field_checks]": config.FieldCheckOptions,
     "[report]": config.ReportOptions,
 }
