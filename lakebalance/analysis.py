@@ -138,6 +138,9 @@ class Lake:
         self.draws = int(site.uncertainty.draws if draws is None else draws)
         self.members = members
         self.forecast_start = forecast_start
+        #: stage (m) the default forecast starts from, when not the record's that day (e.g. the
+        #: record corrected for a datum shift the field checks confirm)
+        self.forecast_start_stage: float | None = None
         self.progress = progress
         self._results: dict[Any, Any] = {}
         self._failures: dict[Any, LakebalanceError] = {}
@@ -870,7 +873,9 @@ class Lake:
                 "scenario": scenario,
                 "members": members if members is not None else self.members,
                 "start": start if start is not None else self.forecast_start,
-                "start_stage": start_stage_m,
+                "start_stage": start_stage_m
+                if start_stage_m is not None
+                else self.forecast_start_stage,
             }.items()
             if v is not None
         }

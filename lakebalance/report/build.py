@@ -22,6 +22,7 @@ from ..errors import LakebalanceError
 from ..stats import water_year_of
 from ..units import SECONDS_PER_DAY, from_si
 from ..vocabulary import TERMS
+from .headline import graded_numbers, graded_sentence, open_shifts, plan_outlook, shift_sentences
 
 if TYPE_CHECKING:  # pragma: no cover
     from ..analysis import Lake
@@ -153,14 +154,17 @@ REPORT_STEPS = (
 )
 
 
-def run_steps(lake: Lake) -> list[str]:
+def run_steps(lake: Lake, before_forecast: Any = None) -> list[str]:
     """Run every step of ``lake`` once (a step that cannot run keeps its reason) and return the
-    warnings raised on the way, each once, as ``"Category: message"``."""
+    warnings raised on the way, each once, as ``"Category: message"``. ``before_forecast`` (no
+    arguments) is called before the forecast runs (e.g. to set where it starts)."""
     caught: list[str] = []
     with warnings.catch_warnings(record=True) as seen:
         warnings.simplefilter("always")
         lake.records  # noqa: B018 - the report cannot start without them
         for step in REPORT_STEPS:
+            if step == "forecast" and before_forecast is not None:
+                before_forecast()
             lake.get(step)
     for w in seen:
         text = f"{w.category.__name__}: {w.message}"
@@ -786,7 +790,13 @@ def _r(value: Any, decimals: int) -> float | None:
     return round(v, decimals) if math.isfinite(v) else None
 
 
-def _year_in_words(run: Lake, head: dict[str, Any], previous: dict[str, Any]) -> list[str]:
+def _year_in_words(
+    run: Lake,
+    head: dict[str, Any],
+    previous: dict[str, Any],
+    outlook: dict[str, Any] | None = None,
+    shifts: list[dict[str, Any]] | None = None,
+) -> list[str]:
     name = run.site.site.name
     out = [
         f"This report covers water year {head['water_year']} of {name}, "
@@ -816,12 +826,20 @@ def _year_in_words(run: Lake, head: dict[str, Any], previous: dict[str, Any]) ->
                 if lo > 0 or hi < 0
                 else ", so it cannot be told from zero"
             )
+        if any(x["day"] >= head["first_day"] for x in shifts or []):
+            text += " (but see the datum shift below)"
         out.append(text + ".")
+    out += shift_sentences(shifts or [], head["first_day"])
     if head.get("complete_days") is not None:
         out.append(
             f"{head['complete_days']} days had every term measured; the others are left "
             "out of the totals, never counted as zero."
         )
+        graded = graded_sentence(
+            head, len(run.records.daily.loc[head["first_day"] : head["last_day"]])
+        )
+        if graded:
+            out.append(graded)
     wy = run.get("balance").water_years()
     full = wy[wy["complete_days"] >= 300]
     if head.get("inflow_m3") is not None and len(full) > 1:
@@ -845,6 +863,8 @@ def _year_in_words(run: Lake, head: dict[str, Any], previous: dict[str, Any]) ->
             f"Estimated seepage at the mean stage: {_fmt(head['seepage_m3_per_day'])} m³/d "
             "(net loss to the ground)."
         )
+    if outlook and outlook.get("sentence"):
+        out.append(outlook["sentence"])
     return out
 
 
@@ -882,8 +902,11 @@ def _safe_name(text: str) -> str:
     return re.sub(r"[^A-Za-z0-9_.-]+", "_", text).strip("_") or "site"
 
 
-def build_sections(run: Lake, year: int) -> tuple[list[Section], dict[str, Any], list[str]]:
-    """The sections, the headline numbers and the plain-words summary of ``year``."""
+def build_sections(
+    run: Lake, year: int, outlook: dict[str, Any] | None = None
+) -> tuple[list[Section], dict[str, Any], list[str]]:
+    """The sections, the headline numbers and the plain-words summary of ``year`` (``outlook``:
+    where the drawdown outlook starts and why, :func:`~lakebalance.report.headline.plan_outlook`)."""
     index = run.records.daily.index
     keys = water_year_of(index, run.site.site.water_year_start)
     days = index[keys == year]
@@ -904,6 +927,17 @@ def build_sections(run: Lake, year: int) -> tuple[list[Section], dict[str, Any],
         _qa_section(run, days),
     ]
     head = _headline(run, year, days)
+    shifts = open_shifts(run, head["last_day"])
+    head["unaccepted_shifts"] = (
+        "; ".join(
+            f"{x['day']} {x['step_m']:+.3f} m ({x['status'] or 'no field checks'})" for x in shifts
+        )
+        or None
+    )
+    head.update(graded_numbers(run, year))
+    if outlook is not None:
+        head["outlook_start"] = outlook.get("start")
+        head["outlook_start_stage_m"] = outlook.get("start_stage_m")
     previous: dict[str, Any] = {}
     if run.get("balance") is not None:
         earlier = index[keys == year - 1]
@@ -911,7 +945,7 @@ def build_sections(run: Lake, year: int) -> tuple[list[Section], dict[str, Any],
             previous = _headline(run, year - 1, earlier)
     if run.get("dynamics") is not None:
         head.update(_dynamics_headline(run))
-    summary = _year_in_words(run, head, previous)
+    summary = _year_in_words(run, head, previous, outlook, shifts)
     if run.get("forecast") is not None:
         summary += list(_forecast_sentences(run))[:3]
     return sections, head, summary
@@ -977,19 +1011,33 @@ def _write_report(
     # the outlook draws from seed + 1, so that its streams are not the balance's
     run = Lake(site, seed=seed, forecast_seed=seed + 1, draws=draws, members=members,
                progress=progress)  # fmt: skip
-    caught = run_steps(run)
-    keys = water_year_of(run.records.daily.index, site.site.water_year_start)
-    present = sorted(set(np.asarray(keys).tolist()))
-    if year is not None and year not in present:
-        raise LakebalanceError(
-            f"water year {year} is not in the record ({present[0]} to {present[-1]})",
-            file=site.path,
-        )
-    if year is None:
-        counts = pd.Series(keys).value_counts()
-        complete = [y for y in present if counts[y] >= 365]
-        year = complete[-1] if complete else present[-1]
-    sections, head, summary = build_sections(run, int(year))
+    chosen: dict[str, Any] = {}
+
+    def choose() -> None:  # inside run_steps: the year, then where the outlook starts
+        keys = water_year_of(run.records.daily.index, site.site.water_year_start)
+        present = sorted(set(np.asarray(keys).tolist()))
+        if year is not None and year not in present:
+            raise LakebalanceError(
+                f"water year {year} is not in the record ({present[0]} to {present[-1]})",
+                file=site.path,
+            )
+        if year is None:
+            counts = pd.Series(keys).value_counts()
+            complete = [y for y in present if counts[y] >= 365]
+            chosen["year"] = complete[-1] if complete else present[-1]
+        else:
+            chosen["year"] = int(year)
+        days = run.records.daily.index[np.asarray(keys) == chosen["year"]]
+        plan = plan_outlook(run, days, explicit_year=year is not None)
+        if plan["start"] is not None:
+            run.forecast_start = plan["start"]
+        if plan["start_stage_m"] is not None:
+            run.forecast_start_stage = plan["start_stage_m"]
+        chosen["outlook"] = plan
+
+    caught = run_steps(run, before_forecast=choose)
+    year = chosen["year"]
+    sections, head, summary = build_sections(run, int(year), chosen["outlook"])
     prov = _provenance_dict(run)
 
     tables = [t for s in sections for t in s.tables]

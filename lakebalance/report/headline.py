@@ -1,0 +1,198 @@
+"""What the report's first page must say so that every part of one report speaks of one stage.
+
+* A gauge datum shift that the flags found but the site file has not accepted (or that the field
+  checks do not confirm) is named beside the residual it affects, with its size and what the
+  field checks say of it (:func:`open_shifts`).
+* The drawdown outlook starts from the corrected stage when the field checks confirm a shift
+  still in force at its start, else from the recorded stage with the reason (:func:`plan_outlook`).
+* A report of a chosen year (``--year``) starts its outlook at the end of that year, or leaves it
+  out with the reason (no stage that day).
+* The year's totals are given measured-only and infilled, with the share estimated
+  (:func:`graded_sentence`).
+
+The functions read a :class:`~lakebalance.analysis.Lake` and return plain data and sentences; the
+report's layout is :mod:`lakebalance.report.build`'s.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+import pandas as pd
+
+if TYPE_CHECKING:  # pragma: no cover
+    from ..analysis import Lake
+
+__all__ = ["open_shifts", "plan_outlook", "shift_sentences", "graded_sentence", "graded_numbers"]
+
+_STATUS_WORDS = {
+    "confirmed": "confirmed by the field checks",
+    "contradicted": "contradicted by the field checks (they show no change of the datum)",
+    "different": "seen by the field checks with another size",
+    "unchecked": "not checked: no field check on one side of it",
+    None: "not checked: no field checks in the record",
+}
+
+
+def open_shifts(run: Lake, last_day: str) -> list[dict[str, Any]]:
+    """Datum shifts flagged on or before ``last_day`` (ISO) and not accepted in the site file.
+
+    Each: ``day``, ``step_m`` (the record's jump, m), ``volume_m3`` (the storage jump it puts in
+    the residual that day), ``status`` (the field checks' judgment, or None without checks),
+    ``correction_m`` (the ``[[correction]]`` value that undoes it).
+    """
+    flags = run.get("flags")
+    if flags is None:
+        return []
+    checks = run.get("field_checks")
+    out = []
+    for f in flags.of_kind("datum_shift"):
+        if f.accepted or f.start > last_day or f.magnitude_m is None:
+            continue
+        judgment = checks.judgment(f.start) if checks is not None else None
+        out.append(
+            {
+                "day": f.start,
+                "step_m": round(float(f.magnitude_m), 4),
+                "volume_m3": round(float(f.volume_m3), 0),
+                "status": None if judgment is None else judgment.status,
+                "correction_m": None if f.correction is None else round(f.correction.value, 4),
+            }
+        )
+    return out
+
+
+def shift_sentences(shifts: list[dict[str, Any]], first_day: str) -> list[str]:
+    """The first page's words on the open shifts: those of the year beside its residual, those
+    before it as still in the record."""
+    out = []
+    for s in shifts:
+        status = _STATUS_WORDS.get(s["status"], s["status"])
+        accept = (
+            f' If it is real, add [[correction]] series = "stage", start = {s["day"]}, value = '
+            f"{s['correction_m']:+.3f}."
+            if s["correction_m"] is not None and s["status"] != "contradicted"
+            else ""
+        )
+        if s["day"] >= first_day:
+            out.append(
+                f"This residual includes a gauge datum shift of {s['step_m']:+.3f} m flagged on "
+                f"{s['day']} and not accepted in the site file, {status}: its storage jump alone "
+                f"is {s['volume_m3'] / 1e3:+,.1f} thousand m³ of the residual, and it biases the "
+                f"outflow of every later day.{accept}"
+            )
+        else:
+            out.append(
+                f"The stage record still carries a gauge datum shift of {s['step_m']:+.3f} m "
+                f"flagged on {s['day']}, not accepted and {status}; it biases this year's stage "
+                f"and outflow.{accept}"
+            )
+    return out
+
+
+def plan_outlook(run: Lake, days: pd.DatetimeIndex, explicit_year: bool) -> dict[str, Any]:
+    """Where the outlook starts and why.
+
+    Parameters
+    ----------
+    run : Lake
+    days : pandas.DatetimeIndex
+        The reported year's days.
+    explicit_year : bool
+        The year was asked for (``--year``): the outlook starts at its last day.
+
+    Returns
+    -------
+    dict
+        ``start`` (ISO or None = the last recorded stage), ``start_stage_m`` (m or None = the
+        record's), ``sentence`` (the first page's words).
+    """
+    records = run.records
+    stage = records.daily["stage"] if "stage" in records.daily.columns else None
+    if stage is None or not stage.notna().any():
+        return {"start": None, "start_stage_m": None, "sentence": ""}
+    start_ts = days[-1] if explicit_year else pd.Timestamp(stage.last_valid_index())
+    start = start_ts.strftime("%Y-%m-%d")
+    recorded = float(stage.get(start_ts, np.nan))
+    plan: dict[str, Any] = {"start": start if explicit_year else None, "start_stage_m": None}
+    if run.site.drawdown.start is not None and not explicit_year:
+        plan["sentence"] = f"The outlook starts on {run.site.drawdown.start} ([drawdown] start)."
+        return plan
+    if not math.isfinite(recorded):
+        plan["sentence"] = (
+            f"The drawdown outlook is left out: there is no recorded stage on {start}, the last "
+            "day of the reported year, to start it from."
+        )
+        return plan
+    shifts = [s for s in open_shifts(run, start) if s["correction_m"] is not None]
+    confirmed = [s for s in shifts if s["status"] == "confirmed"]
+    doubtful = [s for s in shifts if s["status"] not in ("confirmed", "contradicted")]
+    where = "the end of the reported year" if explicit_year else "the last recorded day"
+    if confirmed and not doubtful:
+        h0 = recorded + sum(s["correction_m"] for s in confirmed)
+        plan["start_stage_m"] = round(h0, 4)
+        days_text = ", ".join(s["day"] for s in confirmed)
+        plan["sentence"] = (
+            f"The drawdown outlook starts on {start} ({where}) from {h0:.3f} m: the recorded "
+            f"{recorded:.3f} m corrected for the datum shift of {days_text} that the field checks "
+            "confirm."
+        )
+    elif doubtful:
+        total = sum(s["correction_m"] for s in doubtful)
+        days_text = ", ".join(s["day"] for s in doubtful)
+        plan["sentence"] = (
+            f"The drawdown outlook starts on {start} ({where}) from the recorded {recorded:.3f} m, "
+            f"not corrected: the datum shift flagged on {days_text} is not confirmed; if it is "
+            f"real, the true start is {recorded + total:.3f} m."
+        )
+    else:
+        plan["sentence"] = (
+            f"The drawdown outlook starts on {start} ({where}) from the recorded {recorded:.3f} m."
+        )
+    return plan
+
+
+def graded_numbers(run: Lake, year: int) -> dict[str, Any]:
+    """The year's infilled totals, the days with an estimate and the share estimated."""
+    balance = run.get("balance")
+    if balance is None or balance.grades is None:
+        return {}
+    g = balance.graded_water_years()
+    if year not in g.index:
+        return {}
+    row = g.loc[year]
+
+    def r(x: Any, d: int) -> float | None:
+        v = float(x)
+        return round(v, d) if math.isfinite(v) else None
+
+    return {
+        "days_with_estimate": int(row["residual_estimated_days"]),
+        "days_missing": int(row["residual_missing_days"]),
+        "inflow_infilled_m3": r(row["inflow_infilled_m3"], 0),
+        "inflow_estimated_share": r(row["inflow_estimated_share"], 3),
+        "residual_infilled_m3": r(row["residual_infilled_m3"], 0),
+        "residual_estimated_share": r(row["residual_estimated_share"], 3),
+    }
+
+
+def graded_sentence(numbers: dict[str, Any], days: int) -> str:
+    """The first page's words on the infilled totals."""
+    if not numbers or not numbers.get("days_with_estimate"):
+        return ""
+    text = (
+        f"With the {numbers['days_with_estimate']} days that have an estimated term filled in "
+        f"(of {days}; {numbers['days_missing']} still missing), the residual is "
+        f"{numbers['residual_infilled_m3'] / 1e3:,.1f} thousand m³"
+        if numbers.get("residual_infilled_m3") is not None
+        else ""
+    )
+    if text and numbers.get("inflow_infilled_m3") is not None:
+        share = numbers.get("inflow_estimated_share") or 0.0
+        text += (
+            f" and gauged inflow {numbers['inflow_infilled_m3'] / 1e3:,.1f} thousand m³, "
+            f"{100 * share:.1f} % of it estimated"
+        )
+    return text + "; the totals above are measured-only." if text else ""
