@@ -299,11 +299,16 @@ def _stage_figure(run: Lake, days: pd.DatetimeIndex) -> Figure:
 
     d = run.get("balance").daily.loc[days[0] : days[-1]]
     sim_v = _simulated_storage(d)
+    storage = run.get("storage")
     with warnings.catch_warnings(record=True) as outside:
         warnings.simplefilter("always")
-        sim_h = pd.Series(
-            np.asarray(run.get("storage").stage(sim_v.to_numpy()), float), index=d.index
-        )
+        v = sim_v.to_numpy()
+        if storage.below == "error" or storage.above == "error":  # drawn at the ends instead
+            off = storage.volume_out_of_range(v) != 0
+            if off.any():
+                warnings.warn("simulated storage outside the relation", UserWarning, stacklevel=1)
+            v = np.clip(v, storage.min_volume_m3, storage.max_volume_m3)
+        sim_h = pd.Series(np.asarray(storage.stage(v), float), index=d.index)
     note = (
         " The simulated storage left the storage relation's range on some days; there its stage "
         f"follows the relation's '{run.get('storage').below}'/'{run.get('storage').above}' policy."
@@ -826,7 +831,9 @@ def _year_in_words(
                 if lo > 0 or hi < 0
                 else ", so it cannot be told from zero"
             )
-        if any(x["day"] >= head["first_day"] for x in shifts or []):
+        if any(
+            x["day"] >= head["first_day"] and x["status"] != "contradicted" for x in shifts or []
+        ):
             text += " (but see the datum shift below)"
         out.append(text + ".")
     out += shift_sentences(shifts or [], head["first_day"])

@@ -32,6 +32,7 @@ _STATUS_WORDS = {
     "contradicted": "contradicted by the field checks (they show no change of the datum)",
     "different": "seen by the field checks with another size",
     "unchecked": "not checked: no field check on one side of it",
+    "found by the field checks": "found by the field checks (the residual flags did not see it)",
     None: "not checked: no field checks in the record",
 }
 
@@ -44,11 +45,9 @@ def open_shifts(run: Lake, last_day: str) -> list[dict[str, Any]]:
     ``correction_m`` (the ``[[correction]]`` value that undoes it).
     """
     flags = run.get("flags")
-    if flags is None:
-        return []
     checks = run.get("field_checks")
     out = []
-    for f in flags.of_kind("datum_shift"):
+    for f in flags.of_kind("datum_shift") if flags is not None else ():
         if f.accepted or f.start > last_day or f.magnitude_m is None:
             continue
         judgment = checks.judgment(f.start) if checks is not None else None
@@ -61,14 +60,40 @@ def open_shifts(run: Lake, last_day: str) -> list[dict[str, Any]]:
                 "correction_m": None if f.correction is None else round(f.correction.value, 4),
             }
         )
-    return out
+    # steps the field checks find where the flags saw none
+    flagged = {x["day"] for x in out}
+    balance = run.get("balance")
+    for p in checks.proposals if checks is not None else ():
+        if p.shape != "step" or p.accepted or p.step_day is None or p.step_day > last_day:
+            continue
+        if p.step_day in flagged:
+            continue
+        after = p.corrections[-1].value
+        before = p.corrections[0].value if len(p.corrections) > 1 else 0.0
+        step = -(after - before)
+        area = np.nan
+        if balance is not None and pd.Timestamp(p.step_day) in balance.daily.index:
+            area = float(balance.daily.loc[pd.Timestamp(p.step_day), "area_m2"])
+        out.append(
+            {
+                "day": p.step_day,
+                "step_m": round(step, 4),
+                "volume_m3": round(step * area, 0) if math.isfinite(area) else 0.0,
+                "status": "found by the field checks",
+                "correction_m": round(-step, 4),
+            }
+        )
+    return sorted(out, key=lambda x: x["day"])
 
 
 def shift_sentences(shifts: list[dict[str, Any]], first_day: str) -> list[str]:
     """The first page's words on the open shifts: those of the year beside its residual, those
-    before it as still in the record."""
-    out = []
+    before it as still in the record; those the field checks contradict last, not proposed."""
+    out, contradicted = [], []
     for s in shifts:
+        if s["status"] == "contradicted":
+            contradicted.append(s["day"])
+            continue
         status = _STATUS_WORDS.get(s["status"], s["status"])
         accept = (
             f' If it is real, add [[correction]] series = "stage", start = {s["day"]}, value = '
@@ -89,6 +114,13 @@ def shift_sentences(shifts: list[dict[str, Any]], first_day: str) -> list[str]:
                 f"flagged on {s['day']}, not accepted and {status}; it biases this year's stage "
                 f"and outflow.{accept}"
             )
+    if contradicted:
+        out.append(
+            f"The datum shift{'s' if len(contradicted) > 1 else ''} flagged on "
+            f"{', '.join(contradicted)} {'are' if len(contradicted) > 1 else 'is'} contradicted by "
+            "the field checks (the logger kept its datum) and not proposed as a correction; the "
+            "residual there has another cause."
+        )
     return out
 
 
@@ -126,10 +158,13 @@ def plan_outlook(run: Lake, days: pd.DatetimeIndex, explicit_year: bool) -> dict
             "day of the reported year, to start it from."
         )
         return plan
+    where = "the end of the reported year" if explicit_year else "the last recorded day"
+    checks = run.get("field_checks")
+    if checks is not None and len(checks.comparison):
+        return {**plan, **_from_checks(checks, start_ts, recorded, where)}
     shifts = [s for s in open_shifts(run, start) if s["correction_m"] is not None]
     confirmed = [s for s in shifts if s["status"] == "confirmed"]
     doubtful = [s for s in shifts if s["status"] not in ("confirmed", "contradicted")]
-    where = "the end of the reported year" if explicit_year else "the last recorded day"
     if confirmed and not doubtful:
         h0 = recorded + sum(s["correction_m"] for s in confirmed)
         plan["start_stage_m"] = round(h0, 4)
@@ -152,6 +187,41 @@ def plan_outlook(run: Lake, days: pd.DatetimeIndex, explicit_year: bool) -> dict
             f"The drawdown outlook starts on {start} ({where}) from the recorded {recorded:.3f} m."
         )
     return plan
+
+
+def _from_checks(checks: Any, start: pd.Timestamp, recorded: float, where: str) -> dict:
+    """The outlook's start stage from the field checks' proposed corrections not yet accepted:
+    the correction in force on the start day, or the last stretch's held after the last check."""
+    from ..records import correction_values
+
+    day = start.strftime("%Y-%m-%d")
+    open_props = [p for p in checks.proposals if not p.accepted]
+    total = sum(
+        float(correction_values(c, pd.DatetimeIndex([start]))[0])
+        for p in open_props
+        for c in p.corrections
+    )
+    last_check = pd.Timestamp(checks.comparison["time"].max())
+    held = ""
+    if total == 0.0 and open_props and start > last_check:
+        last = open_props[-1]
+        if pd.Timestamp(last.last_check) >= last_check:
+            c = last.corrections[-1]
+            total = float(c.end_value if c.end_value is not None else c.value)
+            held = f", held from the last field check ({last_check.date()})"
+    if abs(total) < 1e-9:
+        return {
+            "start_stage_m": None,
+            "sentence": f"The drawdown outlook starts on {day} ({where}) from the recorded "
+            f"{recorded:.3f} m, which the field checks leave uncorrected.",
+        }
+    h0 = recorded + total
+    return {
+        "start_stage_m": round(h0, 4),
+        "sentence": f"The drawdown outlook starts on {day} ({where}) from {h0:.3f} m: the "
+        f"recorded {recorded:.3f} m corrected by {total * 1000:+.0f} mm as the field checks "
+        f"propose{held} (not yet accepted in the site file).",
+    }
 
 
 def graded_numbers(run: Lake, year: int) -> dict[str, Any]:
