@@ -101,9 +101,10 @@ def shift_sentences(shifts: list[dict[str, Any]], first_day: str) -> list[str]:
             if s["correction_m"] is not None and s["status"] != "contradicted"
             else ""
         )
+        seen = "found" if s["status"] == "found by the field checks" else "flagged"
         if s["day"] >= first_day:
             out.append(
-                f"This residual includes a gauge datum shift of {s['step_m']:+.3f} m flagged on "
+                f"This residual includes a gauge datum shift of {s['step_m']:+.3f} m {seen} on "
                 f"{s['day']} and not accepted in the site file, {status}: its storage jump alone "
                 f"is {s['volume_m3'] / 1e3:+,.1f} thousand m³ of the residual, and it biases the "
                 f"outflow of every later day.{accept}"
@@ -111,7 +112,7 @@ def shift_sentences(shifts: list[dict[str, Any]], first_day: str) -> list[str]:
         else:
             out.append(
                 f"The stage record still carries a gauge datum shift of {s['step_m']:+.3f} m "
-                f"flagged on {s['day']}, not accepted and {status}; it biases this year's stage "
+                f"{seen} on {s['day']}, not accepted and {status}; it biases this year's stage "
                 f"and outflow.{accept}"
             )
     if contradicted:
