@@ -22,7 +22,16 @@ from ..errors import LakebalanceError
 from ..stats import water_year_of
 from ..units import SECONDS_PER_DAY, from_si
 from ..vocabulary import TERMS
-from .headline import graded_numbers, graded_sentence, open_shifts, plan_outlook, shift_sentences
+from .headline import (
+    confirmed_corrections,
+    confirmed_sentence,
+    graded_numbers,
+    graded_sentence,
+    open_shifts,
+    plan_outlook,
+    residual_with,
+    shift_sentences,
+)
 
 if TYPE_CHECKING:  # pragma: no cover
     from ..analysis import Lake
@@ -837,6 +846,11 @@ def _year_in_words(
             text += " (but see the datum shift below)"
         out.append(text + ".")
     out += shift_sentences(shifts or [], head["first_day"])
+    confirmed = confirmed_sentence(
+        head, sum(1 for x in shifts or [] if x["status"] != "contradicted")
+    )
+    if confirmed:
+        out.append(confirmed)
     if head.get("complete_days") is not None:
         out.append(
             f"{head['complete_days']} days had every term measured; the others are left "
@@ -942,6 +956,8 @@ def build_sections(
         or None
     )
     head.update(graded_numbers(run, year))
+    confirmed = confirmed_corrections(run, head["last_day"]) if shifts else []
+    head.update(residual_with(run, confirmed, year))
     if outlook is not None:
         head["outlook_start"] = outlook.get("start")
         head["outlook_start_stage_m"] = outlook.get("start_stage_m")

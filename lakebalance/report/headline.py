@@ -25,7 +25,16 @@ import pandas as pd
 if TYPE_CHECKING:  # pragma: no cover
     from ..analysis import Lake
 
-__all__ = ["open_shifts", "plan_outlook", "shift_sentences", "graded_sentence", "graded_numbers"]
+__all__ = [
+    "open_shifts",
+    "plan_outlook",
+    "shift_sentences",
+    "graded_sentence",
+    "graded_numbers",
+    "confirmed_corrections",
+    "residual_with",
+    "confirmed_sentence",
+]
 
 _STATUS_WORDS = {
     "confirmed": "confirmed by the field checks",
@@ -223,6 +232,67 @@ def _from_checks(checks: Any, start: pd.Timestamp, recorded: float, where: str) 
         f"recorded {recorded:.3f} m corrected by {total * 1000:+.0f} mm as the field checks "
         f"propose{held} (not yet accepted in the site file).",
     }
+
+
+def confirmed_corrections(run: Lake, last_day: str) -> list:
+    """The corrections of the datum shifts the field checks confirm (or find) up to ``last_day``
+    (ISO) that the site file has not accepted: each step the checks propose, and each flagged
+    shift they confirm that no such step covers."""
+    checks = run.get("field_checks")
+    flags = run.get("flags")
+    out, days = [], set()
+    for p in checks.proposals if checks is not None else ():
+        if p.shape == "step" and not p.accepted and p.step_day and p.step_day <= last_day:
+            out += list(p.corrections)
+            days.add(p.step_day)
+    for f in flags.of_kind("datum_shift") if flags is not None else ():
+        if f.accepted or f.correction is None or f.start > last_day or f.start in days:
+            continue
+        judgment = checks.judgment(f.start) if checks is not None else None
+        if judgment is not None and judgment.status == "confirmed":
+            out.append(f.correction)
+    return out
+
+
+def residual_with(run: Lake, corrections: list, year: int) -> dict[str, Any]:
+    """The year's residual (m³) and closure (% of gains) with ``corrections`` applied to the
+    records as if accepted: the balance closed again (no bands) on the corrected records."""
+    import dataclasses
+
+    from ..analysis import Lake
+
+    if not corrections:
+        return {}
+    site = dataclasses.replace(run.site, correction=(*run.site.correction, *corrections))
+    other = Lake(site, seed=run.seed, draws=0)
+    balance = other.get("balance")
+    if balance is None:
+        return {}
+    wy = balance.water_years()
+    if year not in wy.index:
+        return {}
+    row = wy.loc[year]
+    res, pct = float(row["residual_m3"]), float(row["closure_error_pct"])
+    return {
+        "residual_confirmed_m3": round(res, 0) if math.isfinite(res) else None,
+        "closure_confirmed_percent": round(pct, 1) if math.isfinite(pct) else None,
+    }
+
+
+def confirmed_sentence(numbers: dict[str, Any], n: int) -> str:
+    """The first page's words on the residual with the confirmed shifts applied."""
+    res = numbers.get("residual_confirmed_m3")
+    if res is None:
+        return ""
+    pct = numbers.get("closure_confirmed_percent")
+    text = (
+        f"With the datum shift{'s' if n > 1 else ''} the field checks confirm applied (as the "
+        f"[[correction]] above would, not yet accepted in the site file), the residual of the "
+        f"year is {res / 1e3:+,.1f} thousand m³"
+    )
+    if pct is not None:
+        text += f" ({abs(pct):.1f} % of the measured gains)"
+    return text + "."
 
 
 def graded_numbers(run: Lake, year: int) -> dict[str, Any]:
