@@ -136,3 +136,14 @@ def test_lake_with_a_rating_period(tmp_path):
     err1 = np.nanmedian(np.abs(out - q1)[before & ok] / q1[before & ok])
     assert err0 < err1 or np.allclose(q0, q1, rtol=1e-3)
     assert any("rating periods" in n for n in lake.balance.notes)
+
+
+def test_keep_holds_parameters_of_the_previous_period():
+    """A parameter named in 'keep' is held at the previous period's estimate (not refitted)."""
+    rng = np.random.default_rng(3)
+    h, q, d = _gaugings(rng)
+    dated = fit_rating_periods(power_law(), h, q, d, [RatingPeriod(WORKS, keep=["b"])])
+    assert dated.fits[1].params["b"] == dated.fits[0].params["b"]
+    assert dict(zip(dated.fits[1].param_names, dated.fits[1].free))["b"] is False
+    with pytest.raises(FitError, match="not parameters"):
+        fit_rating_periods(power_law(), h, q, d, [RatingPeriod(WORKS, keep=["Cw"])])

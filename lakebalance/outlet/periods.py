@@ -20,8 +20,9 @@ Whether a new period is needed is the shift test of the rating fit (``[outlet] s
 
 from __future__ import annotations
 
+import dataclasses
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -66,10 +67,15 @@ class RatingPeriod(Options):
     shift_from, shift_to : str, optional
         ISO dates of two gaugings of this period between which a stage shift varies linearly
         in time (both or neither).
+    keep : list of str
+        Parameters the change did not touch (e.g. ``"spillway.Cw"`` after works on the sill
+        only), held at the previous period's estimates: a control the period's gaugings do not
+        reach is not refitted from nothing.
     """
 
     start: str = setting(rule=_iso_rule)
     reason: str = ""
+    keep: list[str] = field(default_factory=list)
     shift_from: str | None = setting(None, rule=_iso_rule)
     shift_to: str | None = setting(None, rule=_iso_rule)
 
@@ -282,10 +288,25 @@ def fit_rating_periods(
             base &= t <= pd.Timestamp(p.shift_from)
         if not base.any():
             raise FitError(f"{label} has no gauging")
+        opts = options
+        if p is not None and p.keep:
+            if not fits:
+                raise FitError(f"{label}: 'keep' needs an earlier period to keep parameters from")
+            unknown = [k for k in p.keep if k not in fits[-1].params]
+            if unknown:
+                raise FitError(
+                    f"{label}: 'keep' names {', '.join(unknown)}, not parameters of the rating "
+                    f"({', '.join(fits[-1].param_names)})"
+                )
+            from .fit import FitOptions
+
+            base_opts = options or FitOptions()
+            held = {k: float(fits[-1].params[k]) for k in p.keep}
+            opts = dataclasses.replace(base_opts, fixed={**dict(base_opts.fixed), **held})
         try:
             fit = fit_rating_curve(
                 law, h[base], q[base], dates=np.asarray(t[base]),
-                weights=None if w is None else w[base], options=options, rng=rng,
+                weights=None if w is None else w[base], options=opts, rng=rng,
             )  # fmt: skip
         except FitError as exc:
             raise FitError(f"{label}: {exc.message}") from None
