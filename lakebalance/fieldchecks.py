@@ -221,13 +221,15 @@ def compare_checks(
         The logger's daily mean stage, m (daily index).
     logger_subdaily_m : pandas.Series, optional
         The logger's readings, m, by time: when given, the logger is interpolated linearly to the
-        check's time (within 6 h of a reading); else the check's day's mean is used.
+        check's time (within 6 h of a reading); else the check day's mean is used, and
+        ``within_day_m`` (half the day's change, the mean of the changes from the day before
+        and to the day after) says how far a reading at one time of the day may lie from it.
 
     Returns
     -------
     pandas.DataFrame
         Columns ``time``, ``check_m``, ``logger_m``, ``difference_m`` (logger − check),
-        ``logger_from``.
+        ``logger_from``, ``within_day_m`` (m; 0 when read at the check's time).
     """
     import pandas as pd
 
@@ -235,6 +237,7 @@ def compare_checks(
     check = checks_m.to_numpy(dtype=float)
     logger = np.full(len(times), np.nan)
     how = np.array(["daily mean"] * len(times), dtype=object)
+    within = np.zeros(len(times))
     if logger_subdaily_m is not None and len(logger_subdaily_m):
         sub = logger_subdaily_m.dropna().sort_index()
         t = pd.DatetimeIndex(sub.index).as_unit("ns").asi8.astype(float)
@@ -252,6 +255,15 @@ def compare_checks(
     if rest.any():
         days = times[rest].normalize()
         logger[rest] = logger_daily_m.reindex(days).to_numpy(dtype=float)
+        # a reading at one time of the day against the day's mean: they may differ by up to
+        # about half the day's change (the mean change of the days around it)
+        around = logger_daily_m.reindex(
+            pd.date_range(days.min() - pd.Timedelta(days=1), days.max() + pd.Timedelta(days=1))
+        )
+        before = around.reindex(days - pd.Timedelta(days=1)).to_numpy(dtype=float)
+        after = around.reindex(days + pd.Timedelta(days=1)).to_numpy(dtype=float)
+        change = np.abs(after - before) / 2.0
+        within[rest] = np.where(np.isfinite(change), 0.5 * change, 0.0)
     return pd.DataFrame(
         {
             "time": times,
@@ -259,6 +271,7 @@ def compare_checks(
             "logger_m": logger,
             "difference_m": logger - check,
             "logger_from": how,
+            "within_day_m": within,
         }
     )
 
@@ -386,10 +399,12 @@ def size_corrections(
     Notes
     -----
     With c_i = −(logger − check) at check i, the stretch from check i to check i+1 is corrected
-    by the constant (c_i + c_{i+1})/2 when |c_{i+1} − c_i| ≤ 2ε (ε = ``reading_error``), by a
-    step (c_i before the step day, c_{i+1} from it) when the logger shows a step of that size
-    between the two checks, else by a drift linear in time from c_i to c_{i+1}. Stretches whose
-    two ends are both within 2ε of zero are left. The corrected stage then differs from the
+    by the constant (c_i + c_{i+1})/2 when |c_{i+1} − c_i| ≤ ε_i + ε_{i+1} (ε_i =
+    ``reading_error`` plus the check's ``within_day_m`` when it was compared with a daily mean),
+    by a step (c_i before the step day, c_{i+1} from it) when the logger shows a step of that
+    size between the two checks, else by a drift linear in time from c_i to c_{i+1}. Stretches
+    whose two ends are both within 2ε_i of zero are left; consecutive offsets that agree within
+    2 ``reading_error`` are one. The corrected stage then differs from the
     truth by a weighted mean of two check errors (weights ≥ 0 that sum to 1), so by at most ε
     when each check is within ±ε of the true stage and the fault has the shape used.
     """
@@ -402,6 +417,9 @@ def size_corrections(
     index = pd.DatetimeIndex(logger_daily_m.index)
     stage = logger_daily_m.to_numpy(dtype=float)
     tol = 2.0 * options.reading_error
+    eps = options.reading_error + (
+        comp["within_day_m"].to_numpy(dtype=float) if "within_day_m" in comp else 0.0
+    ) * np.ones(len(comp))
     days = pd.DatetimeIndex(comp["time"]).normalize()
     k = index.get_indexer(days)
     c = -comp["difference_m"].to_numpy(dtype=float)
@@ -411,7 +429,8 @@ def size_corrections(
     for i in range(n - 1):
         if k[i] < 0 or k[i + 1] < 0 or k[i + 1] <= k[i]:
             continue
-        if max(abs(c[i]), abs(c[i + 1])) <= tol:
+        tol = eps[i] + eps[i + 1]  # the largest difference of the two checks' errors
+        if abs(c[i]) <= 2 * eps[i] and abs(c[i + 1]) <= 2 * eps[i + 1]:
             continue
         t0, t1 = str(comp["time"].iloc[i]), str(comp["time"].iloc[i + 1])
         last = k[i + 1] if i == n - 2 else k[i + 1] - 1  # the last stretch ends on its check
@@ -435,16 +454,18 @@ def size_corrections(
         if abs(change) <= tol:
             shape: Shape = "offset"
             value = 0.5 * (c[i] + c[i + 1])
-            corrs = (Correction(series, "offset", d0, d1, round(value, 6), reason=why),)
+            corrs = (Correction(series, "offset", d0, d1, round(float(value), 6), reason=why),)
             evidence.append(f"constant difference: correction {value * 1000:+.1f} mm")
         elif step is not None:
             shape = "step"
             s = index[step].date().isoformat()
             before = index[step - 1].date().isoformat()
             parts = []
-            if abs(c[i]) > tol and step - 1 >= k[i]:
-                parts.append(Correction(series, "offset", d0, before, round(c[i], 6), reason=why))
-            parts.append(Correction(series, "offset", s, d1, round(c[i + 1], 6), reason=why))
+            if abs(c[i]) > 2 * eps[i] and step - 1 >= k[i]:
+                parts.append(
+                    Correction(series, "offset", d0, before, round(float(c[i]), 6), reason=why)
+                )
+            parts.append(Correction(series, "offset", s, d1, round(float(c[i + 1]), 6), reason=why))
             corrs = tuple(parts)
             jump = stage[step] - stage[step - 1]
             evidence.append(
@@ -458,7 +479,7 @@ def size_corrections(
             end_value = c[i] + change * (last - k[i]) / span
             corrs = (
                 Correction(
-                    series, "drift", d0, d1, round(c[i], 6), end_value=round(end_value, 6),
+                    series, "drift", d0, d1, round(float(c[i]), 6), end_value=round(float(end_value), 6),
                     reason=why,
                 ),
             )  # fmt: skip
@@ -480,6 +501,43 @@ def size_corrections(
                 index[step].date().isoformat() if step is not None else None,
             )  # fmt: skip
         )
+    return _merge_offsets(tuple(out), 2.0 * options.reading_error)
+
+
+def _merge_offsets(props: tuple[Proposal, ...], tol: float) -> tuple[Proposal, ...]:
+    """Consecutive constant offsets whose values agree within ``tol`` (m) as one offset (the
+    mean of their values, weighted by their days): one ``[[correction]]`` for one state of the
+    logger."""
+    import pandas as pd
+
+    out: list[Proposal] = []
+    for p in props:
+        prev = out[-1] if out else None
+        if (
+            prev is not None
+            and p.shape == "offset"
+            and prev.shape == "offset"
+            and prev.corrections[-1].end is not None
+            and pd.Timestamp(prev.corrections[-1].end) + pd.Timedelta(days=1)
+            == pd.Timestamp(p.corrections[0].start)
+            and abs(prev.corrections[0].value - p.corrections[0].value) <= tol
+        ):
+            a, b = prev.corrections[0], p.corrections[0]
+            na = (pd.Timestamp(a.end) - pd.Timestamp(a.start)).days + 1
+            nb = (pd.Timestamp(b.end) - pd.Timestamp(b.start)).days + 1
+            value = round((a.value * na + b.value * nb) / (na + nb), 6)
+            merged = Correction(
+                a.series, "offset", a.start, b.end, value,
+                reason=f"field checks {prev.first_check[:10]} to {p.last_check[:10]}",
+            )  # fmt: skip
+            evidence = (*prev.evidence[:-1], *p.evidence[1:-1], f"constant difference over "
+                        f"the checks: correction {value * 1000:+.1f} mm")  # fmt: skip
+            out[-1] = Proposal(
+                "offset", prev.first_check, p.last_check, (merged,), evidence,
+                prev.accepted and p.accepted,
+            )  # fmt: skip
+        else:
+            out.append(p)
     return tuple(out)
 
 
@@ -501,9 +559,10 @@ def judge_shifts(
     Notes
     -----
     With the last check before the day and the first from it, the change of logger − check is
-    Δ. A real step of s gives Δ = s ± 2ε. The shift is *confirmed* when |Δ − s| ≤ 2ε + |s|/4
-    and |Δ| > 2ε, *contradicted* when |Δ| ≤ 2ε (the logger kept its datum, as far as the checks
-    can tell) and |s| > 2ε, *different* otherwise; *unchecked* with no check on one side.
+    Δ. A real step of s gives Δ = s ± (ε_i + ε_j) (each check's error, see
+    :func:`size_corrections`); with τ = ε_i + ε_j the shift is *confirmed* when |Δ − s| ≤
+    τ + |s|/4 and |Δ| > τ, *contradicted* when |Δ| ≤ τ (the logger kept its datum, as far as the
+    checks can tell) and |s| > τ, *different* otherwise; *unchecked* with no check on one side.
     """
     import pandas as pd
 
@@ -511,7 +570,9 @@ def judge_shifts(
     comp = comp.sort_values("time")
     t = pd.DatetimeIndex(comp["time"])
     d = comp["difference_m"].to_numpy(dtype=float)
-    tol = 2.0 * options.reading_error
+    eps = options.reading_error + (
+        comp["within_day_m"].to_numpy(dtype=float) if "within_day_m" in comp else 0.0
+    ) * np.ones(len(comp))
     out = []
     for day, s in shifts:
         ts = pd.Timestamp(day)
@@ -523,6 +584,7 @@ def judge_shifts(
             )
             continue
         i, j = before[-1], after[0]
+        tol = float(eps[i] + eps[j])
         delta = float(d[j] - d[i])
         span = f"checks {t[i].date()} and {t[j].date()}"
         if abs(delta) > tol and abs(delta - s) <= tol + 0.25 * abs(s):
