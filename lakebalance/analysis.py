@@ -632,10 +632,17 @@ class Lake:
         if self.draws > 0:
             outlet = None
             if dated is not None:
-                notes.append(
-                    "rating parameter error left out of the bands: the ratings are dated "
-                    "(each period's own intervals are in the rating step)"
-                )
+                cov = dated.cov
+                if np.all(np.isfinite(cov)):
+                    outlet = OutletParameters(
+                        values=dated.vector,
+                        discharge_with=dated.discharge_with,
+                        cov=cov,
+                        names=dated.param_names,
+                        dated=True,
+                    )
+                else:
+                    notes.append("rating covariance not finite: rating parameter error left out")
             elif rating is not None:
                 cov = np.asarray(rating.cov, dtype=float)
                 if np.all(np.isfinite(cov)):

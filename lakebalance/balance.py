@@ -321,6 +321,8 @@ class OutletParameters:
         ``sample(rng, n) -> ndarray (n, k)`` drawing parameter sets (e.g. from a bootstrap).
     names : tuple of str
         Parameter names (for notes).
+    dated : bool
+        ``discharge_with`` also takes ``days=`` (the days of the stage rows): dated ratings.
     """
 
     values: Array
@@ -328,6 +330,7 @@ class OutletParameters:
     cov: Array | None = None
     sample: Callable[[np.random.Generator, int], Array] | None = None
     names: tuple[str, ...] = ()
+    dated: bool = False  # discharge_with takes days= (a rating that changes in time)
 
     def draw(self, rng: np.random.Generator, n: int) -> Array:
         """Parameter deviations from ``values``, ndarray (n, k)."""
@@ -1163,7 +1166,10 @@ def residual_errors(
     if outlet is not None and outflow_fn is not None and rating_variants > 1:
         values = np.asarray(outlet.values, dtype=float)
         params = values + outlet.draw(rng, int(rating_variants))
-        rating_m3 = rating_variant_volumes(outlet.discharge_with, params, values, path, w, ok)
+        rating_m3 = rating_variant_volumes(
+            outlet.discharge_with, params, values, path, w, ok,
+            dates=pd.DatetimeIndex(d.index) if outlet.dated else None,
+        )  # fmt: skip
 
     a_s = np.nan_to_num(_at(area_fn, hs, d.index))
     a_e = np.nan_to_num(_at(area_fn, he, d.index))

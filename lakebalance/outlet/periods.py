@@ -173,6 +173,49 @@ class DatedRating:
             out[m] = fit.discharge(h[m] + s)
         return out
 
+    # ---- the error model's view: one parameter vector over all periods ---------------------
+    @property
+    def param_names(self) -> tuple[str, ...]:
+        """Every period's parameters, ``"<start>:<name>"`` (``"first:<name>"`` for the first)."""
+        return tuple(
+            f"{s or 'first'}:{n}" for s, f in zip(self.starts, self.fits, strict=True)
+            for n in f.param_names
+        )  # fmt: skip
+
+    @property
+    def vector(self) -> Array:
+        """The periods' parameter vectors end to end (SI)."""
+        return np.concatenate([np.asarray(f.vector, dtype=float) for f in self.fits])
+
+    @property
+    def cov(self) -> Array:
+        """Block-diagonal covariance: periods are fitted from disjoint gaugings (independent)."""
+        sizes = [len(f.param_names) for f in self.fits]
+        out = np.zeros((sum(sizes), sum(sizes)))
+        a = 0
+        for f, k in zip(self.fits, sizes, strict=True):
+            out[a : a + k, a : a + k] = np.asarray(f.cov, dtype=float)
+            a += k
+        return out
+
+    def discharge_with(self, params: Array, stage_m: Array, *, days: pd.DatetimeIndex) -> Array:
+        """Ensemble discharge (m³/s): row i of ``params`` (n, K: :attr:`vector`'s layout) on
+        ``stage_m[i, j, ...]`` (m), day j of ``days`` by its own period's part of the row."""
+        h = np.asarray(stage_m, dtype=float)
+        period = self.period_of(days)
+        out = np.zeros(h.shape)
+        a = 0
+        for k, fit in enumerate(self.fits):
+            n = len(fit.param_names)
+            m = period == k
+            if m.any():
+                shift = self.shifts[k]
+                s = 0.0 if shift is None else shift.at(days[m])
+                hk = h[:, m] + (np.reshape(s, (1, -1) + (1,) * (h.ndim - 2)) if shift else 0.0)
+                out[:, m] = fit.discharge_with(params[:, a : a + n], hk)
+            a += n
+        return out
+
     def to_dict(self) -> dict[str, Any]:
         """Each period: its start, the fit's dictionary and its shift (SI)."""
         return {
