@@ -46,6 +46,31 @@ _STATUS_WORDS = {
 }
 
 
+def _step_value(checks: Any, day: str) -> float | None:
+    """The correction (m) the field checks give from a step on ``day`` on: the step's value
+    after it and the offsets that continue it (consecutive, agreeing within their tolerance),
+    weighted by their days; None when the checks propose no step there."""
+    props = list(checks.proposals) if checks is not None else []
+    at = next((i for i, p in enumerate(props) if p.shape == "step" and p.step_day == day), None)
+    if at is None:
+        return None
+    first = props[at].corrections[-1]
+    parts = [first]
+    end = first.end
+    for p in props[at + 1 :]:
+        c = p.corrections[0]
+        if p.shape != "offset" or end is None:
+            break
+        if pd.Timestamp(c.start) != pd.Timestamp(end) + pd.Timedelta(days=1):
+            break
+        if abs(c.value - first.value) > checks.tolerance_m:
+            break
+        parts.append(c)
+        end = c.end
+    days = [(pd.Timestamp(c.end) - pd.Timestamp(c.start)).days + 1 for c in parts]
+    return float(np.average([c.value for c in parts], weights=days))
+
+
 def open_shifts(run: Lake, last_day: str) -> list[dict[str, Any]]:
     """Datum shifts flagged on or before ``last_day`` (ISO) and not accepted in the site file.
 
@@ -60,13 +85,19 @@ def open_shifts(run: Lake, last_day: str) -> list[dict[str, Any]]:
         if f.accepted or f.start > last_day or f.magnitude_m is None:
             continue
         judgment = checks.judgment(f.start) if checks is not None else None
+        status = None if judgment is None else judgment.status
+        value = None if f.correction is None else float(f.correction.value)
+        measured = _step_value(checks, f.start) if status == "confirmed" else None
         out.append(
             {
                 "day": f.start,
-                "step_m": round(float(f.magnitude_m), 4),
+                # confirmed: the size the field checks measure, else the flag's own
+                "step_m": round(-measured if measured is not None else float(f.magnitude_m), 4),
                 "volume_m3": round(float(f.volume_m3), 0),
-                "status": None if judgment is None else judgment.status,
-                "correction_m": None if f.correction is None else round(f.correction.value, 4),
+                "status": status,
+                "correction_m": None
+                if value is None
+                else round(measured if measured is not None else value, 4),
             }
         )
     # steps the field checks find where the flags saw none
@@ -77,7 +108,7 @@ def open_shifts(run: Lake, last_day: str) -> list[dict[str, Any]]:
             continue
         if p.step_day in flagged:
             continue
-        after = p.corrections[-1].value
+        after = _step_value(checks, p.step_day)
         before = p.corrections[0].value if len(p.corrections) > 1 else 0.0
         step = -(after - before)
         area = np.nan
@@ -236,21 +267,23 @@ def _from_checks(checks: Any, start: pd.Timestamp, recorded: float, where: str) 
 
 def confirmed_corrections(run: Lake, last_day: str) -> list:
     """The corrections of the datum shifts the field checks confirm (or find) up to ``last_day``
-    (ISO) that the site file has not accepted: each step the checks propose, and each flagged
-    shift they confirm that no such step covers."""
-    checks = run.get("field_checks")
-    flags = run.get("flags")
-    out, days = [], set()
-    for p in checks.proposals if checks is not None else ():
-        if p.shape == "step" and not p.accepted and p.step_day and p.step_day <= last_day:
-            out += list(p.corrections)
-            days.add(p.step_day)
-    for f in flags.of_kind("datum_shift") if flags is not None else ():
-        if f.accepted or f.correction is None or f.start > last_day or f.start in days:
-            continue
-        judgment = checks.judgment(f.start) if checks is not None else None
-        if judgment is not None and judgment.status == "confirmed":
-            out.append(f.correction)
+    (ISO) that the site file has not accepted: from the step's day on (as the first page's
+    ``[[correction]]`` would apply it), by the size the checks measure."""
+    from ..records import Correction
+
+    out = []
+    for s in open_shifts(run, last_day):
+        if s["status"] in ("confirmed", "found by the field checks") and s["correction_m"]:
+            out.append(
+                Correction(
+                    "stage",
+                    "offset",
+                    s["day"],
+                    None,
+                    float(s["correction_m"]),
+                    reason="datum shift confirmed by the field checks",
+                )  # fmt: skip
+            )
     return out
 
 
