@@ -399,10 +399,11 @@ def size_corrections(
     Notes
     -----
     With c_i = −(logger − check) at check i, the stretch from check i to check i+1 is corrected
-    by the constant (c_i + c_{i+1})/2 when |c_{i+1} − c_i| ≤ ε_i + ε_{i+1} (ε_i =
-    ``reading_error`` plus the check's ``within_day_m`` when it was compared with a daily mean),
-    by a step (c_i before the step day, c_{i+1} from it) when the logger shows a step of that
-    size between the two checks, else by a drift linear in time from c_i to c_{i+1}. Stretches
+    by the constant (c_i + c_{i+1})/2 when |c_{i+1} − c_i| ≤ 2 ``reading_error``; when the
+    change exceeds ε_i + ε_{i+1} (ε_i = ``reading_error`` plus the check's ``within_day_m`` when
+    it was compared with a daily mean) and the logger shows a step of that size between the two
+    checks, by a step (c_i before the step day, c_{i+1} from it); else by a drift linear in time
+    from c_i to c_{i+1}. Stretches
     whose two ends are both within 2ε_i of zero are left; consecutive offsets that agree within
     2 ``reading_error`` are one. The corrected stage then differs from the
     truth by a weighted mean of two check errors (weights ≥ 0 that sum to 1), so by at most ε
@@ -451,7 +452,7 @@ def size_corrections(
                 )
             else:
                 step = _located_step(stage, int(k[i]), int(k[i + 1]), -change, options.step_z, cand)
-        if abs(change) <= tol:
+        if abs(change) <= 2.0 * options.reading_error:  # the two readings' own error: constant
             shape: Shape = "offset"
             value = 0.5 * (c[i] + c[i + 1])
             corrs = (Correction(series, "offset", d0, d1, round(float(value), 6), reason=why),)
