@@ -105,3 +105,21 @@ def test_lake_with_a_second_survey(tmp_path):
     assert gap.iloc[-1] == pytest.approx(lost, rel=1e-6)  # after the second survey: all of it
     assert gap.loc["2002-04-01"] == pytest.approx(lost * 182 / 365, rel=1e-6)
     assert any("surveys" in n for n in lake.balance.notes)
+
+
+def test_first_page_states_the_capacity_lost():
+    """The report's first page states the capacity lost between the last two surveys at the
+    spill level (the cone of the tests above: exact frustum volume of the deposit)."""
+    from types import SimpleNamespace
+
+    from lakebalance.report.headline import survey_sentence
+
+    dated = DatedStorage(("2010-01-01", "2020-01-01"), (survey(0.0), survey(0.8)))
+    run = SimpleNamespace(
+        get=lambda step: dated if step == "surveys" else None,
+        site=SimpleNamespace(levels={"spill": 11.0}),
+    )
+    text, numbers = survey_sentence(run)
+    lost = exact_volume(0.0, 0.8)
+    assert numbers["capacity_lost_m3"] == pytest.approx(lost, abs=1.0)
+    assert f"{lost:,.0f} m³ less below the spill level (11.00 m)" in text

@@ -31,6 +31,7 @@ from .headline import (
     plan_outlook,
     residual_with,
     shift_sentences,
+    survey_sentence,
 )
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -958,6 +959,8 @@ def build_sections(
     head.update(graded_numbers(run, year))
     confirmed = confirmed_corrections(run, head["last_day"]) if shifts else []
     head.update(residual_with(run, confirmed, year))
+    surveyed, survey_numbers = survey_sentence(run)
+    head.update(survey_numbers)
     if outlook is not None:
         head["outlook_start"] = outlook.get("start")
         head["outlook_start_stage_m"] = outlook.get("start_stage_m")
@@ -969,6 +972,8 @@ def build_sections(
     if run.get("dynamics") is not None:
         head.update(_dynamics_headline(run))
     summary = _year_in_words(run, head, previous, outlook, shifts)
+    if surveyed:
+        summary.insert(len(summary) - (1 if outlook and outlook.get("sentence") else 0), surveyed)
     if run.get("forecast") is not None:
         summary += list(_forecast_sentences(run))[:3]
     return sections, head, summary

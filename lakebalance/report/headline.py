@@ -34,6 +34,7 @@ __all__ = [
     "confirmed_corrections",
     "residual_with",
     "confirmed_sentence",
+    "survey_sentence",
 ]
 
 _STATUS_WORDS = {
@@ -326,6 +327,28 @@ def confirmed_sentence(numbers: dict[str, Any], n: int) -> str:
     if pct is not None:
         text += f" ({abs(pct):.1f} % of the measured gains)"
     return text + "."
+
+
+def survey_sentence(run: Lake) -> tuple[str, dict[str, Any]]:
+    """The first page's words on the capacity lost between the last two surveys, at the spill
+    level (the ``[levels]`` entry ``spill``, else the top of the last survey), and its numbers."""
+    surveys = run.get("surveys")
+    if surveys is None or len(surveys.dates) < 2:
+        return "", {}
+    level = run.site.levels.get("spill", surveys.latest.max_stage_m)
+    name = "the spill level" if "spill" in run.site.levels else "the top of the survey"
+    row = surveys.capacity_lost(float(level))[-1]
+    numbers = {
+        "capacity_lost_m3": round(row["lost_m3"], 0),
+        "capacity_lost_share": round(row["lost_share"], 4),
+    }
+    text = (
+        f"The survey of {row['to']} holds {row['lost_m3']:,.0f} m³ less below {name} "
+        f"({float(level):.2f} m) than that of {row['from']} ({100 * row['lost_share']:.2f} %, "
+        f"{row['lost_m3_per_year']:,.0f} m³ a year); the balance closes each day with the "
+        "relation interpolated in time between the surveys."
+    )
+    return text, numbers
 
 
 def graded_numbers(run: Lake, year: int) -> dict[str, Any]:
