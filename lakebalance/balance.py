@@ -1077,12 +1077,15 @@ def subdaily_outflow_m3(
     keep = np.r_[True, np.diff(t) > 0]
     t, h = t[keep], h[keep]
     on_days = getattr(outflow_fn, "on_days", None)  # a rating that changes in time
-    if on_days is not None:
-        q = np.asarray(on_days(h, pd.DatetimeIndex(t).normalize()), dtype=float)
+    dt = np.diff(t) / 1e9  # s
+    if on_days is not None:  # both ends of a span by the rating of the day the span starts in
+        seg_day = pd.DatetimeIndex(t[:-1]).normalize()
+        q_a = np.asarray(on_days(h[:-1], seg_day), dtype=float)
+        q_b = np.asarray(on_days(h[1:], seg_day), dtype=float)
+        vol = 0.5 * (q_a + q_b) * dt
     else:
         q = np.asarray(outflow_fn(h), dtype=float)
-    dt = np.diff(t) / 1e9  # s
-    vol = 0.5 * (q[:-1] + q[1:]) * dt
+        vol = 0.5 * (q[:-1] + q[1:]) * dt
     ok = dt <= max_gap_hours * 3600.0
     day0 = days[0].normalize().as_unit("ns").asm8.astype(np.int64)
     k = (t[:-1] - day0) // (86400 * 10**9)

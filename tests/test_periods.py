@@ -98,3 +98,41 @@ def test_period_naming_an_unknown_series(tmp_path):
     extra = '[[period]]\nkind = "offset"\nseries = "stages"\nstart = 2002-05-01\nend = 2002-05-09\n'
     with pytest.raises(ConfigError, match="names series 'stages'.*'stage'"):
         _lake(tmp_path, extra)
+
+
+def test_offset_period_sized_from_the_field_checks_inside_it():
+    """With field checks inside an offset period, the offset is their mean logger − check
+    difference, removed from the period's days only (analytic)."""
+    from lakebalance.periods import correct_offset_periods
+
+    idx = pd.date_range("2022-01-01", periods=60, freq="D")
+    truth = np.linspace(5.0, 5.3, 60)
+    logger = truth + np.where((np.arange(60) >= 20) & (np.arange(60) < 40), 0.035, 0.0)
+    p = Period("fouled", "2022-01-21", "2022-02-09")
+    times = pd.DatetimeIndex(["2022-01-10 10:00", "2022-01-25 10:00", "2022-02-05 10:00"])
+    diffs = np.array([0.001, 0.036, 0.034])  # logger − check at each visit (m)
+    stage, method, applied = correct_offset_periods(logger, idx, [p], times, diffs)
+    assert applied[0][1] == pytest.approx(0.035)
+    assert "2 field checks" in applied[0][2]
+    np.testing.assert_allclose(stage, truth, atol=1e-12)
+    assert (method[20:40] != "").all() and (method[:20] == "").all() and (method[40:] == "").all()
+
+
+def test_subdaily_outflow_applies_each_days_rating():
+    """Sub-daily readings on two days with different ratings: each day's volume is its own
+    rating's (an object with on_days, as dated ratings are; analytic: constant stage)."""
+    from lakebalance.balance import subdaily_outflow_m3
+
+    class TwoRatings:
+        def __call__(self, h):
+            return 2.0 * np.asarray(h)
+
+        def on_days(self, h, days):
+            factor = np.where(pd.DatetimeIndex(days) >= pd.Timestamp("2022-03-02"), 2.0, 1.0)
+            return factor * np.asarray(h)
+
+    times = pd.date_range("2022-03-01", "2022-03-03", freq="15min", inclusive="left")
+    readings = pd.Series(1.5, index=times)
+    days = pd.date_range("2022-03-01", periods=2, freq="D")
+    out = subdaily_outflow_m3(readings, days, TwoRatings())
+    assert out == pytest.approx([1.5 * 86400.0, 3.0 * 86400.0])
