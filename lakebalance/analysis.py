@@ -1040,6 +1040,7 @@ def _persistent_errors(balance: Balance, chosen: Any, used: pd.Series) -> Callab
 
 def _ice_outflow(balance: Balance, periods: Any) -> Balance:
     """The balance with the outflow of each declared ice period estimated as declared."""
+    import numpy as np
     import pandas as pd
 
     from .balance import replace_outflow
@@ -1058,8 +1059,13 @@ def _ice_outflow(balance: Balance, periods: Any) -> Balance:
             if p.how_outflow == "fraction"
             else "interpolated in time between the open-water days around it"
         )
+        sd = np.where(mask, p.outflow_error * np.abs(q), 0.0)
         balance = replace_outflow(
-            balance, q, f"outflow of {p.describe()} ({int(mask.sum())} days): {how}"
+            balance,
+            q,
+            f"outflow of {p.describe()} ({int(mask.sum())} days): {how}, with a "
+            f"{100 * p.outflow_error:.0f} % error (1 σ) in the bands",
+            error_sd_m3=sd,
         )
     return balance
 

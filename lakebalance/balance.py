@@ -974,13 +974,22 @@ def grade_balance(
     return replace(balance, grades=grades, infilled=infilled, notes=(*balance.notes, note))
 
 
-def replace_outflow(balance: Balance, outflow_m3: Array, note: str) -> Balance:
+def replace_outflow(
+    balance: Balance, outflow_m3: Array, note: str, error_sd_m3: Array | None = None
+) -> Balance:
     """``balance`` with its daily outflow replaced (m³/d) and the residual and ``complete``
     recomputed from it (e.g. the outflow of a declared ice period, :mod:`lakebalance.periods`).
 
-    Call it before :func:`add_uncertainty`, so that the error model sees the outflow used.
+    ``error_sd_m3`` (m³/d, 1 σ) is the error of the estimate on each day: kept in the column
+    ``outflow_estimate_sd_m3`` and added to the residual's random error by
+    :func:`residual_errors`. Call it before :func:`add_uncertainty`, so that the error model
+    sees the outflow used.
     """
     d = balance.daily.copy()
+    if error_sd_m3 is not None:
+        sd = np.nan_to_num(np.asarray(error_sd_m3, dtype=float))
+        old_sd = d["outflow_estimate_sd_m3"].to_numpy() if "outflow_estimate_sd_m3" in d else 0.0
+        d["outflow_estimate_sd_m3"] = np.sqrt(old_sd**2 + sd**2)
     new = np.asarray(outflow_m3, dtype=float)
     old = d["outflow_m3"].to_numpy(dtype=float)
     residual = d["residual_m3"].to_numpy(dtype=float) + (new - old)
@@ -1153,6 +1162,9 @@ def residual_errors(
     tv = np.vstack([np.where(ok, v, 0.0) for _, v in term_cols]) if term_cols else np.zeros((0, n))
     scaled = tv * sig[:, None]  # (K, days) residual change per unit z
     random_sd = np.sqrt((1.0 - rho) * np.sum(scaled**2, axis=0))
+    if "outflow_estimate_sd_m3" in d.columns:  # an outflow estimated otherwise (ice)
+        extra = np.nan_to_num(d["outflow_estimate_sd_m3"].to_numpy(dtype=float))
+        random_sd = np.sqrt(random_sd**2 + extra**2)
     if errors.systematic_period == "record":
         period = np.zeros(n, dtype=np.int64)
     else:

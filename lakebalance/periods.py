@@ -91,6 +91,10 @@ class Period(Options):
         mark from the daily balance residual (``balance``, the default otherwise:
         :func:`offset_from_balance`), or the stage steps at the period's two ends (``steps``,
         for a record with no balance).
+    outflow_error : float
+        Relative 1-σ error of an estimated outflow (-), added to the residual's random error on
+        the period's days (default 0.25: estimates of discharge under ice are usually rated
+        poor, from memory).
     reason : str
         Words for the report.
     """
@@ -103,6 +107,7 @@ class Period(Options):
     fraction: float | None = setting(None, unit="-", low=0.0, high=1.0)
     offset: float | None = setting(None, unit="m", low=-10.0, high=10.0)
     offset_from: Literal["checks", "balance", "steps"] | None = None
+    outflow_error: float = setting(0.25, unit="-", low=0.0, high=2.0)
     reason: str = ""
 
     def __post_init__(self) -> None:

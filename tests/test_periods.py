@@ -136,3 +136,24 @@ def test_subdaily_outflow_applies_each_days_rating():
     days = pd.date_range("2022-03-01", periods=2, freq="D")
     out = subdaily_outflow_m3(readings, days, TwoRatings())
     assert out == pytest.approx([1.5 * 86400.0, 3.0 * 86400.0])
+
+
+def test_ice_outflow_error_widens_the_bands(tmp_path):
+    """The estimated outflow's error (outflow_error, 1 σ relative) widens the residual's band on
+    the ice days only."""
+    extra = (
+        '[[period]]\nkind = "ice"\nstart = 2002-01-10\nend = 2002-02-10\n'
+        'outflow = "fraction"\nfraction = 0.5\noutflow_error = 0.4\n'
+    )
+    sim, _ = _lake(tmp_path, extra)
+    wide = open_site(sim.site_file, draws=200).balance.daily
+    text = sim.site_file.read_text(encoding="utf-8").replace(
+        "outflow_error = 0.4", "outflow_error = 0.0"
+    )
+    sim.site_file.write_text(text, encoding="utf-8")
+    narrow = open_site(sim.site_file, draws=200).balance.daily
+    width = lambda d: (d["residual_p95_m3"] - d["residual_p05_m3"]).to_numpy()  # noqa: E731
+    days = (wide.index >= "2002-01-10") & (wide.index <= "2002-02-10")
+    assert np.all(width(wide)[days] > width(narrow)[days])
+    expected = 0.4 * np.abs(wide["outflow_m3"].to_numpy()[days])
+    assert wide["outflow_estimate_sd_m3"].to_numpy()[days] == pytest.approx(expected)
