@@ -74,6 +74,16 @@ CENTRE_E, CENTRE_N = 528_740.0, 5_141_260.0  # m, UTM 33N lake centre (invented 
 SILL_C, SILL_E, SILL_B = 1.6, 10.0, 1.7  # m^(3-b)/s, m, (-)
 SPILL_CW, SPILL_CREST, SPILL_LENGTH = 1.70, 12.9, 25.0  # m^0.5/s, m, m
 SEEP_K, SEEP_H0 = 0.0045, 1.5  # m^2/s, m: seepage loss = k (h - h0) in m^3/s
+# outlet works: the sill rebuilt, a new rating from this day on (the spillway untouched)
+OUTLET_WORKS = {"date": "2021-05-03", "C": 1.9, "e": 10.15, "b": 1.65}
+# ice on the sill: its outflow is this share of the open-water law over these days
+ICE = ("2021-01-11", "2021-02-14")
+ICE_FRACTION = 0.55
+# field checks: the staff gauge read at quarterly visits, within +-3 mm of the true stage
+FIELD_CHECK_ERROR_M = 0.003
+# repeat survey: a flat deposit of silt over the deepest part of the bed, nothing above it
+FIRST_SURVEY_DATE = "2004-08-24"
+SECOND_SURVEY = {"date": "2021-09-14", "deposit_m": 2.0}
 
 LEVELS = {
     "dead": 4.0,
@@ -356,12 +366,15 @@ def simulate_lake(
     demand_day_m3s: np.ndarray,
     unmetered_day_m3s: np.ndarray,
     h_start: float,
+    sill_day: np.ndarray,
+    ice_day: np.ndarray,
 ) -> dict:
     """Hourly RK4 of the lake stage with every term integrated over each step.
 
     Returns daily arrays: metered withdrawal (m3, rounded to 1 m3 as the meter reads), stage at
     each day's end (m), daily mean stage (m), and daily volumes (m3) of each term; plus the
-    hourly stage path (m, at the start of each hour).
+    hourly stage path (m, at the start of each hour). ``sill_day`` holds the sill's (C, e, b) of
+    each day (the works change them) and ``ice_day`` the share of its open-water outflow.
     """
     st = storage["stage_m"].to_numpy()
     ar = storage["area_m2"].to_numpy()
@@ -372,8 +385,9 @@ def simulate_lake(
         j = min(max(int((h - z0) / dz), 0), last)
         return ar[j] + (ar[j + 1] - ar[j]) * (h - st[j]) / dz
 
-    def losses(h: float) -> tuple[float, float, float]:
-        q_sill = SILL_C * (h - SILL_E) ** SILL_B if h > SILL_E else 0.0
+    def losses(h: float, d: int) -> tuple[float, float, float]:
+        c, e, b = sill_day[d]
+        q_sill = ice_day[d] * c * (h - e) ** b if h > e else 0.0
         q_spill = SPILL_CW * SPILL_LENGTH * (h - SPILL_CREST) ** 1.5 if h > SPILL_CREST else 0.0
         return q_sill, q_spill, SEEP_K * (h - SEEP_H0)
 
@@ -417,7 +431,7 @@ def simulate_lake(
             for stage_k, frac in ((h, 0.0), (None, 0.5), (None, 0.5), (None, 1.0)):
                 hk = h if stage_k is not None else h + frac * dt * ks[-1][0]
                 a = area(hk)
-                qs, qw, qg = losses(hk)
+                qs, qw, qg = losses(hk, d)
                 net = qin - w - wu - qs - qw - qg + (p - e) * a
                 ks.append((net / a, hk, p * a, e * a, qs, qw, qg))
             del hs
@@ -538,8 +552,13 @@ def sha256(path: Path) -> str:
 # =============================================================================================
 # Main
 # =============================================================================================
-def generate(out: Path) -> dict:
-    """Write every demo file into ``out`` and return the truth (also written to truth.json)."""
+def generate(out: Path, changes: bool = False) -> dict:
+    """Write every demo file into ``out`` and return the truth (also written to truth.json).
+
+    With ``changes`` the outlet is rebuilt (:data:`OUTLET_WORKS`, with a re-rating campaign) and
+    ice sits on the sill (:data:`ICE`): a variant for trying dated ratings and ice periods (see
+    README.md), not the shipped demo, whose other files it changes from the works on.
+    """
     rng = np.random.default_rng(SEED)
     out.mkdir(parents=True, exist_ok=True)
     days = pd.date_range(START, END, freq="D", name="date")
@@ -576,7 +595,15 @@ def generate(out: Path) -> dict:
         (days >= UNMETERED["start"]) & (days <= UNMETERED["end"]), UNMETERED["rate_m3s"], 0.0
     )
 
-    # -- the lake
+    # -- the lake (the sill's law changes with the works; ice reduces its outflow)
+    works = (days >= OUTLET_WORKS["date"]) & changes
+    sill_day = np.where(
+        works[:, None],
+        [OUTLET_WORKS["C"], OUTLET_WORKS["e"], OUTLET_WORKS["b"]],
+        [SILL_C, SILL_E, SILL_B],
+    )
+    ice_mask = (days >= ICE[0]) & (days <= ICE[1]) & changes
+    ice_day = np.where(ice_mask, ICE_FRACTION, 1.0)
     sim = simulate_lake(
         storage,
         q1_h + q2_h,
@@ -585,6 +612,8 @@ def generate(out: Path) -> dict:
         demand,
         unmet,
         h_start=10.55,
+        sill_day=sill_day,
+        ice_day=ice_day,
     )
     stage_mean = sim["stage_mean"]
 
@@ -668,14 +697,47 @@ def generate(out: Path) -> dict:
     )
 
     # ---------------------------------------------------------------- gaugings
-    gaugings, gauging_info = make_gaugings(rng, days, sim["stage_hourly"], stuck_mask | gap_mask)
+    if changes:
+        # the hydrographer's visits before the ice and the works are those of the lake as it
+        # was (the same path up to then), chosen on the open-water path of the whole record; the
+        # works are followed by a re-rating campaign of their own
+        sim_open = simulate_lake(
+            storage, q1_h + q2_h, wx["rain_hourly_mm"].ravel(), evap_mm, demand, unmet,
+            h_start=10.55, sill_day=np.tile([SILL_C, SILL_E, SILL_B], (n, 1)), ice_day=np.ones(n),
+        )  # fmt: skip
+        before, _ = make_gaugings(
+            rng, days, sim_open["stage_hourly"], stuck_mask | gap_mask, sill_day, "record"
+        )
+        kept = pd.to_datetime(before["date"], format="%d/%m/%Y %H:%M") < pd.Timestamp(ICE[0])
+        after, _ = make_gaugings(
+            np.random.default_rng([SEED, 5]), days, sim["stage_hourly"],
+            stuck_mask | gap_mask | ice_mask, sill_day, "rerating",
+        )  # fmt: skip
+        gaugings = pd.concat([before[kept], after], ignore_index=True)
+    else:
+        gaugings, _ = make_gaugings(
+            rng, days, sim["stage_hourly"], stuck_mask | gap_mask, sill_day, "record"
+        )
+    gauging_info = gauging_summary(gaugings)
     gaugings.to_csv(out / "gaugings.csv", index=False)
+
+    # ---------------------------------------------------------------- field checks
+    # a stream of its own, so that the other files do not depend on the visits
+    staff, staff_info = make_field_checks(np.random.default_rng([SEED, 7]), days, sim)
+    staff.to_csv(gauges / "staff_readings.csv", index=False)
 
     # ---------------------------------------------------------------- survey
     tab_stage = np.round(np.arange(0.0, 17.0 + 1e-9, 0.5), 2)
     tab_area = np.interp(tab_stage, storage["stage_m"], storage["area_m2"])
     pd.DataFrame({"stage_m": tab_stage, "area_ha": np.round(tab_area / 1e4, 1)}).to_csv(
         survey / "stage_area.csv", index=False, float_format="%.2f"
+    )
+    # the resurvey: the bed is silted flat up to the deposit's top, the basin above unchanged
+    bed2 = BED_STAGE + SECOND_SURVEY["deposit_m"]
+    tab2 = np.r_[bed2, tab_stage[tab_stage > bed2]]
+    area2 = np.interp(tab2, storage["stage_m"], storage["area_m2"])
+    pd.DataFrame({"stage_m": tab2, "area_ha": np.round(area2 / 1e4, 1)}).to_csv(
+        survey / "stage_area_2021.csv", index=False, float_format="%.2f"
     )
     contour_elev = np.round(np.arange(402.5, 419.5 + 1e-9, 0.5), 2)
     write_contours(survey / "bathymetry.gpkg", contour_elev)
@@ -712,6 +774,29 @@ def generate(out: Path) -> dict:
         t: [d.strftime("%Y-%m-%d") for d in days[(tokens == t).to_numpy()]] for t in ("n/a",)
     }
     truth = build_truth(days, sim, storage, evap_mm, gauging_info, token_count, stuck_value)
+    truth["field_checks"] = staff_info
+    if changes:
+        truth["outlet"]["works"] = {
+            **OUTLET_WORKS,
+            "meaning": "the sill law Q = C (h - e)^b from this day on; the spillway is unchanged",
+        }
+        truth["ice"] = {
+            "start": ICE[0],
+            "end": ICE[1],
+            "sill_outflow_fraction": ICE_FRACTION,
+            "days": int(ice_mask.sum()),
+            "sill_outflow_m3": float(sim["sill"][ice_mask].sum()),
+        }
+    truth["storage"]["surveys"] = {
+        "first": {"date": FIRST_SURVEY_DATE, "file": "survey/stage_area.csv"},
+        "second": {
+            "date": SECOND_SURVEY["date"],
+            "file": "survey/stage_area_2021.csv",
+            "deposit_m": SECOND_SURVEY["deposit_m"],
+            "how": "a flat deposit over the bed up to its top; areas above it unchanged",
+            "capacity_lost_m3": float(volume_of(storage, np.array([bed2]))[0]),
+        },
+    }
     truth["problems"]["non_numeric"]["dates"] = token_dates
     truth["daily_mean_timing"] = timing_error(storage, truth_daily)
     truth["files"] = {
@@ -769,11 +854,14 @@ def make_gaugings(
     days: pd.DatetimeIndex,
     stage_hourly: np.ndarray,
     bad_days: np.ndarray,
+    sill_day: np.ndarray,
+    campaign: str = "record",
 ) -> tuple[pd.DataFrame, dict]:
-    """Spot gaugings at daytime hours, stratified over the stage range, 5 % lognormal noise.
+    """Spot gaugings at daytime hours, stratified over the stage range, 5 % lognormal noise;
+    after the outlet works a re-rating campaign over the new sill's range.
 
     The hydrographer reads the staff gauge (true stage, to the mm), so gaugings carry neither the
-    logger's noise nor its datum shift.
+    logger's noise nor its datum shift. Each gauging follows the sill law of its day.
     """
     hours = np.arange(len(stage_hourly))
     hour_of_day = hours % 24
@@ -791,13 +879,17 @@ def make_gaugings(
         (SPILL_CREST + 0.10, 20.0, 5),  # on the spillway: flood gaugings at the day's peak
     ]
     anytime = ~np.repeat(bad_days, 24) & (hour_of_day >= 6) & (hour_of_day <= 20)
+    after_works = np.repeat(days >= OUTLET_WORKS["date"], 24)
+    e2 = OUTLET_WORKS["e"]
+    rerating = [(e2 - 1.0, e2 - 0.05, 1, True), (e2 + 0.05, e2 + 0.3, 3, True),
+                (e2 + 0.3, e2 + 0.6, 3, True), (e2 + 0.6, SPILL_CREST, 3, True)]  # fmt: skip
     rows = []
     used_days: set[int] = set()
-    for lo, hi, count in bins:
+    chosen = [(*b, False) for b in bins] if campaign == "record" else rerating
+    for lo, hi, count, *late in chosen:
         flood = lo > SPILL_CREST
-        cand = np.flatnonzero(
-            (anytime if flood else daytime) & (stage_hourly > lo) & (stage_hourly <= hi)
-        )
+        when = (anytime if flood else daytime) & (after_works if late[0] else True)
+        cand = np.flatnonzero(when & (stage_hourly > lo) & (stage_hourly <= hi))
         cand = np.array([c for c in cand if c // 24 not in used_days])
         if len(cand) == 0:
             continue
@@ -816,7 +908,8 @@ def make_gaugings(
             hh = that_day[np.argmax(stage_hourly[that_day])] if flood else rng.choice(that_day)
             used_days.add(int(dd))
             h = float(stage_hourly[hh])
-            q = SILL_C * max(h - SILL_E, 0.0) ** SILL_B
+            c, e, b = sill_day[hh // 24]
+            q = c * max(h - e, 0.0) ** b
             q += SPILL_CW * SPILL_LENGTH * max(h - SPILL_CREST, 0.0) ** 1.5
             q_obs = q * math.exp(rng.normal(0, 0.05)) if q > 0 else 0.0
             ts = days[hh // 24] + pd.Timedelta(hours=int(hh % 24), minutes=int(rng.integers(0, 60)))
@@ -829,14 +922,55 @@ def make_gaugings(
             "discharge_ls": [r[2] for r in rows],
         }
     )
-    stages = np.array([r[1] for r in rows])
-    info = {
-        "count": len(rows),
+    return df, gauging_summary(df)
+
+
+def gauging_summary(df: pd.DataFrame) -> dict:
+    """What the gaugings file holds, for truth.json."""
+    stages = df["stage_m"].astype(float).to_numpy()
+    return {
+        "count": len(df),
         "zero_flow": int((stages <= SILL_E).sum()),
         "on_spillway": int((stages > SPILL_CREST).sum()),
         "stage_range_m": [float(stages.min()), float(stages.max())],
         "noise": "lognormal, sigma 0.05 of ln(Q) (about 5 %)",
         "stage_source": "staff gauge (true stage, to the mm): no logger noise, no datum shift",
+    }
+
+
+def make_field_checks(
+    rng: np.random.Generator, days: pd.DatetimeIndex, sim: dict
+) -> tuple[pd.DataFrame, dict]:
+    """Quarterly staff-gauge readings: a visit early in January, April, July and October, in the
+    morning, reading the true stage within +-FIELD_CHECK_ERROR_M (uniform), to the mm.
+
+    The staff gauge is on the gauge datum, so its readings carry neither the logger's noise nor
+    its datum shift.
+    """
+    hourly = sim["stage_hourly"]
+    rows = []
+    for year in range(days[0].year, days[-1].year + 1):
+        for month in (1, 4, 7, 10):
+            day = pd.Timestamp(year, month, 1) + pd.Timedelta(days=int(rng.integers(3, 12)))
+            if day < days[0] or day > days[-1]:
+                continue
+            hour = int(rng.integers(9, 12))
+            minute = int(rng.integers(0, 60))
+            k = int(days.get_loc(day)) * 24 + hour
+            true = hourly[k] + (hourly[k + 1] - hourly[k]) * minute / 60.0
+            error = rng.uniform(-FIELD_CHECK_ERROR_M, FIELD_CHECK_ERROR_M)
+            rows.append((day + pd.Timedelta(hours=hour, minutes=minute), round(true + error, 3)))
+    df = pd.DataFrame(
+        {
+            "date": [r[0].strftime("%Y-%m-%d %H:%M") for r in rows],
+            "staff_m": [f"{r[1]:.3f}" for r in rows],
+        }
+    )
+    info = {
+        "file": "gauges/staff_readings.csv",
+        "count": len(rows),
+        "error": f"uniform within +-{FIELD_CHECK_ERROR_M} m of the true stage, then to the mm",
+        "visits": "quarterly, early January, April, July and October, 09:00-12:00 local",
     }
     return df, info
 
@@ -1020,8 +1154,14 @@ def build_truth(days, sim, storage, evap_mm, gauging_info, tokens, stuck_value) 
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--out", type=Path, default=Path(__file__).resolve().parent)
+    parser.add_argument(
+        "--outlet-works-and-ice",
+        action="store_true",
+        help="write the variant with the sill rebuilt in 2021 and ice on it that winter "
+        "(not the shipped demo; use another --out)",
+    )
     args = parser.parse_args(argv)
-    truth = generate(args.out)
+    truth = generate(args.out, changes=args.outlet_works_and_ice)
     p = truth["problems"]["drought"]
     print(
         f"wrote {args.out}: {truth['period']['days']} days, lowest stage "

@@ -29,18 +29,21 @@ from .errors import ConfigError, LakebalanceError
 if TYPE_CHECKING:  # pragma: no cover
     import pandas as pd
 
-    from .balance import Balance, TermErrors
+    from .balance import Balance, ClosureOptions, DailyTerms, TermErrors
     from .drawdown import Forecast
     from .drawdown.hindcast import Hindcast
     from .drawdown.yield_ import YieldStudy
     from .dynamics import Dynamics, WhatIfRequest
     from .evaporation.lake import EvaporationResult
+    from .fieldchecks import FieldChecks
     from .flags import Flags
     from .laws import LakeLaws
     from .outlet.fit import RatingFit
+    from .outlet.periods import DatedRating
     from .records import Records
     from .seepage import SeepageFit
     from .storage import StorageCurve
+    from .surveys import DatedStorage
 
 __all__ = ["Lake", "open_site", "STEPS"]
 
@@ -57,6 +60,9 @@ STEPS = {
     "forecast": "the drawdown forecast",
     "yield": "the yield study",
     "hindcast": "the hindcast",
+    "field_checks": "the field checks",
+    "surveys": "the dated surveys",
+    "ratings": "the dated ratings",
 }
 
 
@@ -136,6 +142,9 @@ class Lake:
         self.draws = int(site.uncertainty.draws if draws is None else draws)
         self.members = members
         self.forecast_start = forecast_start
+        #: stage (m) the default forecast starts from, when not the record's that day (e.g. the
+        #: record corrected for a datum shift the field checks confirm)
+        self.forecast_start_stage: float | None = None
         self.progress = progress
         self._results: dict[Any, Any] = {}
         self._failures: dict[Any, LakebalanceError] = {}
@@ -242,9 +251,51 @@ class Lake:
         def compute() -> Records:
             from .io import read_records
 
-            return read_records(self.site, progress=self.progress)
+            return _with_offset_periods(self, read_records(self.site, progress=self.progress))
 
         return self._step("records", compute)
+
+    @property
+    def field_checks(self) -> FieldChecks | None:
+        """The staff-gauge checks against the logger (records as corrected), the corrections
+        they propose and their judgment of the flagged datum shifts; None without checks."""
+
+        def compute() -> FieldChecks | None:
+            from .fieldchecks import FieldChecks, compare_checks, judge_shifts, size_corrections
+
+            records = self.records
+            if records.check_readings is None or "stage" not in records.daily.columns:
+                return None
+            options = self.site.field_checks
+            comp = compare_checks(
+                records.check_readings, records.daily["stage"], records.subdaily_stage
+            )
+            flags = self.get("flags")
+            shifts = [
+                (f.start, float(f.magnitude_m))
+                for f in (flags.of_kind("datum_shift") if flags is not None else ())
+                if f.magnitude_m is not None and not f.accepted
+            ]
+            proposals = size_corrections(
+                comp,
+                records.daily["stage"],
+                options,
+                step_days=[d for d, _ in shifts],
+                accepted=self.site.correction,
+                residual_with=_preliminary_residual(self, records),
+            )
+            notes = []
+            if flags is None and self.reason("flags"):
+                notes.append(f"no flags to judge: {self.reason('flags')}")
+            return FieldChecks(
+                comparison=comp,
+                proposals=proposals,
+                judgments=judge_shifts(comp, shifts, options),
+                tolerance_m=2.0 * options.reading_error,
+                notes=tuple(notes),
+            )
+
+        return self._step("field_checks", compute)
 
     @property
     def storage(self) -> StorageCurve:
@@ -255,9 +306,27 @@ class Lake:
 
             if self.site.storage is None:
                 raise ConfigError("the site file has no [storage] section", file=self.site.path)
+            surveys = self.surveys
+            if surveys is not None:
+                return surveys.latest
             return read_storage(self.site.storage, site_file=self.site.path)
 
         return self._step("storage", compute)
+
+    @property
+    def surveys(self) -> DatedStorage | None:
+        """The dated surveys (``[storage] date`` and ``[[storage.survey]]``), interpolated in time;
+        None with one survey. :attr:`storage` is then the latest, and the balance uses each
+        day's relation."""
+
+        def compute() -> DatedStorage | None:
+            from .io.storage import read_surveys
+
+            if self.site.storage is None:
+                return None
+            return read_surveys(self.site.storage, site_file=self.site.path)
+
+        return self._step("surveys", compute)
 
     def survey(self, file: Path) -> StorageCurve:
         """Another survey read with the ``[storage]`` settings (e.g. ``--compare``)."""
@@ -283,7 +352,8 @@ class Lake:
     @property
     def rating(self) -> RatingFit | None:
         """The outlet rating fitted to the spot gaugings, or None when the site has no
-        ``[outlet]``."""
+        ``[outlet]``. With dated rating periods (``[[outlet.period]]``) it is the rating in force
+        now (the last period's); :attr:`ratings` holds them all."""
 
         def compute() -> RatingFit | None:
             import numpy as np
@@ -296,6 +366,9 @@ class Lake:
             outlet = self.site.outlet
             if outlet is None:
                 return None
+            if outlet.period:
+                dated = self.ratings
+                return None if dated is None else dated.latest
             options = outlet.fit_options()
             law = law_from_options(outlet)
             gaugings = read_gaugings(outlet)
@@ -321,6 +394,42 @@ class Lake:
                 raise
 
         return self._step("rating", compute)
+
+    @property
+    def ratings(self) -> DatedRating | None:
+        """The dated ratings of ``[[outlet.period]]``, each fitted from its own period's gaugings
+        (:mod:`lakebalance.outlet.periods`); None without periods. The balance applies each
+        day's rating."""
+
+        def compute() -> DatedRating | None:
+            import numpy as np
+
+            from .errors import FitError
+            from .io.gaugings import read_gaugings
+            from .outlet.laws import law_from_options
+            from .outlet.periods import fit_rating_periods
+
+            outlet = self.site.outlet
+            if outlet is None or not outlet.period:
+                return None
+            options = outlet.fit_options()
+            gaugings = read_gaugings(outlet)
+            rng = np.random.default_rng(self.seed) if options.bootstrap > 0 else None
+            try:
+                return fit_rating_periods(
+                    law_from_options(outlet),
+                    gaugings.stage_m,
+                    gaugings.discharge_m3s,
+                    gaugings.date,
+                    outlet.period,
+                    weights=gaugings.weight,
+                    options=options,
+                    rng=rng,
+                )
+            except FitError as exc:
+                raise _with_file(exc, gaugings.file) from None
+
+        return self._step("ratings", compute)
 
     @property
     def evaporation(self) -> EvaporationResult:
@@ -449,28 +558,20 @@ class Lake:
         """The daily water balance with Monte Carlo bands (``draws`` of them)."""
         return self._step("balance", self._balance)
 
-    def _balance(self) -> Balance:
-        import numpy as np
+    def _terms(
+        self,
+        records: Records,
+        evaporation_m: pd.Series | None,
+        notes: list[str] | None = None,
+    ) -> DailyTerms:
+        """The balance's daily terms from ``records`` (stage, flows, depths; SI); what was
+        decided on the way is appended to ``notes``."""
         import pandas as pd
 
-        from .balance import (
-            ClosureOptions,
-            DailyTerms,
-            OutletParameters,
-            add_uncertainty,
-            boundary_stage_from_readings,
-            close_daily,
-        )
+        from .balance import DailyTerms, boundary_stage_from_readings
 
-        site, records = self.site, self.records
+        notes = [] if notes is None else notes
         daily = records.daily
-        if "stage" not in daily.columns:
-            raise ConfigError("the water balance needs a stage series ([series.stage])")
-        storage, rating = self.storage, self.rating
-        notes: list[str] = []
-        evaporation_m = self._evaporation_depth()
-        if evaporation_m is not None:
-            notes.append(f"lake evaporation by the {self.evaporation.method} method")
         info = {s.key: s for s in records.series}
         inflows = {info[k].name if k in info else k: daily[k] for k in records.keys("inflow")}
         rain_keys = records.keys("rain")
@@ -479,7 +580,7 @@ class Lake:
         rain_m = records.mean("rain")
         if rain_m is not None and evaporation_m is not None:
             rain_m = self._precipitation_on_ice(rain_m, notes)
-        terms = DailyTerms(
+        return DailyTerms(
             stage_m=daily["stage"],
             inflow_m3s=inflows,
             rain_m=rain_m,
@@ -493,25 +594,122 @@ class Lake:
             ),
             subdaily_stage_m=records.subdaily_stage,
         )
+
+    def _closure_options(self) -> ClosureOptions:
+        from .balance import ClosureOptions
+
+        site = self.site
         stage_spec = next(iter(site.series_of("stage")), None)
-        options = ClosureOptions(
+        return ClosureOptions(
             boundary_rule=site.uncertainty.boundary_rule,
             water_year_start=site.site.water_year_start,
             subdaily_coverage=stage_spec.coverage if stage_spec is not None else 0.8,
         )
+
+    def _graded(
+        self, balance: Balance, terms: DailyTerms, laws: Any, outflow: Any, options: Any
+    ) -> Balance:
+        """The balance with the grade of every term on every day and the infilled table."""
+        import pandas as pd
+
+        from .balance import grade_balance
+        from .periods import days_of, periods_of_kind
+
+        records = self.records
+        stage_est = None
+        if records.estimated is not None and "stage" in records.estimated.columns:
+            stage_est = records.estimated["stage"].reindex(records.daily.index).fillna("")
+            stage_est = stage_est.to_numpy(dtype=object)
+        index = pd.DatetimeIndex(balance.daily.index)
+        ice = {}
+        for p in periods_of_kind(self.site.period, "ice"):
+            if p.how_outflow != "rating":
+                how = (
+                    f"{p.fraction:g} of the open-water rating under ice"
+                    if p.how_outflow == "fraction"
+                    else "interpolated across the ice period"
+                )
+                ice[how] = ice.get(how, False) | days_of(p, index)
+        return grade_balance(
+            balance,
+            terms,
+            volume_fn=laws.volume,
+            area_fn=laws.area,
+            outflow_fn=outflow,
+            options=options,
+            stage_estimated=stage_est,
+            after_closure=lambda b: _ice_outflow(b, self.site.period),
+            outflow_estimated=ice,
+        )
+
+    def _balance(self) -> Balance:
+        import numpy as np
+
+        from .balance import (
+            OutletParameters,
+            add_uncertainty,
+            close_daily,
+        )
+
+        site, records = self.site, self.records
+        daily = records.daily
+        if "stage" not in daily.columns:
+            raise ConfigError("the water balance needs a stage series ([series.stage])")
+        storage, rating = self.storage, self.rating
+        notes: list[str] = []
+        evaporation_m = self._evaporation_depth()
+        if evaporation_m is not None:
+            notes.append(f"lake evaporation by the {self.evaporation.method} method")
+        terms = self._terms(records, evaporation_m, notes)
+        options = self._closure_options()
         try:
             storage.check_record(daily["stage"].to_numpy(dtype=float), daily.index)
         except LakebalanceError as exc:
             where = site.storage.file if site.storage is not None else None
             raise _with_file(exc, where or site.path) from None
         laws = self.laws_without_seepage
+        surveys = self.surveys
+        if surveys is not None:  # each day's relation, interpolated between the surveys
+            lo = storage.min_stage_m if storage.below == "error" else -np.inf
+            hi = storage.max_stage_m if storage.above == "error" else np.inf
+            laws = dataclasses.replace(
+                laws,
+                volume=surveys.volume_relation((lo, hi)),
+                area=surveys.area_relation((lo, hi)),
+            )
+            notes.append(
+                f"storage: {len(surveys.dates)} surveys ({', '.join(surveys.dates)}), each day's "
+                "relation interpolated linearly in time between them"
+            )
         outflow = None if rating is None else rating.discharge
+        dated = self.ratings
+        if dated is not None:
+            outflow = dated
+            notes.append(
+                f"outflow: {len(dated.fits)} rating periods (from "
+                + ", ".join(s or "the start" for s in dated.starts)
+                + "), each day by its own"
+            )
         balance = close_daily(
             terms, volume_fn=laws.volume, area_fn=laws.area, outflow_fn=outflow, options=options
         )
+        balance = _ice_outflow(balance, site.period)
+        balance = self._graded(balance, terms, laws, outflow, options)
         if self.draws > 0:
             outlet = None
-            if rating is not None:
+            if dated is not None:
+                cov = dated.cov
+                if np.all(np.isfinite(cov)):
+                    outlet = OutletParameters(
+                        values=dated.vector,
+                        discharge_with=dated.discharge_with,
+                        cov=cov,
+                        names=dated.param_names,
+                        dated=True,
+                    )
+                else:
+                    notes.append("rating covariance not finite: rating parameter error left out")
+            elif rating is not None:
                 cov = np.asarray(rating.cov, dtype=float)
                 if np.all(np.isfinite(cov)):
                     outlet = OutletParameters(
@@ -765,7 +963,9 @@ class Lake:
                 "scenario": scenario,
                 "members": members if members is not None else self.members,
                 "start": start if start is not None else self.forecast_start,
-                "start_stage": start_stage_m,
+                "start_stage": start_stage_m
+                if start_stage_m is not None
+                else self.forecast_start_stage,
                 "compare_methods": compare_methods,
             }.items()
             if v is not None
@@ -1277,6 +1477,135 @@ def _persistent_errors(balance: Balance, chosen: Any, used: pd.Series) -> Callab
         return model.covariance_of_sums(full, ("systematic", "area", "rating"))
 
     return cov
+
+
+def _ice_outflow(balance: Balance, periods: Any) -> Balance:
+    """The balance with the outflow of each declared ice period estimated as declared."""
+    import numpy as np
+    import pandas as pd
+
+    from .balance import replace_outflow
+    from .periods import days_of, period_outflow, periods_of_kind
+
+    for p in periods_of_kind(periods, "ice"):
+        if p.how_outflow == "rating" or "outflow" in balance.absent_terms:
+            continue
+        index = pd.DatetimeIndex(balance.daily.index)
+        mask = days_of(p, index)
+        if not mask.any():
+            continue
+        q = period_outflow(balance.daily["outflow_m3"].to_numpy(), mask, p.how_outflow, p.fraction)
+        how = (
+            f"{p.fraction:g} of the open-water rating"
+            if p.how_outflow == "fraction"
+            else "interpolated in time between the open-water days around it"
+        )
+        sd = np.where(mask, p.outflow_error * np.abs(q), 0.0)
+        balance = replace_outflow(
+            balance,
+            q,
+            f"outflow of {p.describe()} ({int(mask.sum())} days): {how}, with a "
+            f"{100 * p.outflow_error:.0f} % error (1 σ) in the bands",
+            error_sd_m3=sd,
+        )
+    return balance
+
+
+def _preliminary_residual(lake: Lake, records: Records) -> Callable | None:
+    """Corrected stage (m) → the daily residual (m³/d) of a balance closed on ``records`` with it
+    (no evaporation, no bands: what sizes an offset period), or None without a storage
+    relation."""
+    import numpy as np
+    import pandas as pd
+
+    from .balance import close_daily
+
+    storage = lake.get("storage")
+    if storage is None:
+        return None
+    rating = lake.get("rating")
+    outflow = lake.get("ratings") or (None if rating is None else rating.discharge)
+    terms = lake._terms(records, None)
+    index = pd.DatetimeIndex(records.daily.index)
+    options = lake._closure_options()
+
+    def residual(stage_m: np.ndarray) -> np.ndarray:
+        t = dataclasses.replace(
+            terms,
+            stage_m=pd.Series(stage_m, index=index),
+            boundary_stage_m=None,
+            subdaily_stage_m=None,
+        )
+        b = close_daily(
+            t,
+            volume_fn=storage.volume,
+            area_fn=storage.area,
+            outflow_fn=outflow,
+            options=options,
+        )
+        return b.daily["residual_m3"].reindex(index).to_numpy(dtype=float)
+
+    return residual
+
+
+def _with_offset_periods(lake: Lake, records: Records) -> Records:
+    """``records`` with the stage offset of each declared offset period removed (sized from the
+    field checks inside it, from the balance residual or from its end steps), the days marked
+    estimated, and a finding."""
+    import numpy as np
+    import pandas as pd
+
+    from .periods import correct_offset_periods, periods_of_kind
+    from .records import Finding
+
+    site = records.site
+    periods = periods_of_kind(site.period, "offset", "fouled")
+    daily = records.daily
+    if not periods or "stage" not in daily.columns:
+        return records
+    times = diffs = None
+    if records.check_readings is not None:
+        from .fieldchecks import compare_checks
+
+        comp = compare_checks(records.check_readings, daily["stage"], records.subdaily_stage)
+        times, diffs = pd.DatetimeIndex(comp["time"]), comp["difference_m"].to_numpy()
+    index = pd.DatetimeIndex(daily.index)
+    stage, method, applied = correct_offset_periods(
+        daily["stage"].to_numpy(dtype=float), index, periods, times, diffs,
+        residual_with=_preliminary_residual(lake, records),
+    )  # fmt: skip
+    findings = list(records.findings)
+    sub = records.subdaily_stage
+    for p, delta, words in applied:
+        sized = np.isfinite(delta)
+        findings.append(
+            Finding(
+                "stage",
+                "offset_period",
+                p.first.isoformat(),
+                p.last.isoformat(),
+                int(((index >= pd.Timestamp(p.first)) & (index <= pd.Timestamp(p.last))).sum()),
+                "corrected, estimated" if sized else "left, could not be sized",
+                f"{p.describe()}: {words}" + (f", {delta * 1000:+.0f} mm removed" if sized else ""),
+            )  # fmt: skip
+        )
+        if sized and sub is not None:
+            t = pd.DatetimeIndex(sub.index)
+            inside = (t >= pd.Timestamp(p.first)) & (
+                t < pd.Timestamp(p.last) + pd.Timedelta(days=1)
+            )
+            sub = sub.where(~inside, sub - delta)
+    new_daily = daily.copy()
+    new_daily["stage"] = stage
+    estimated = (
+        records.estimated.copy()
+        if records.estimated is not None
+        else pd.DataFrame(index=daily.index)
+    )
+    estimated["stage"] = method
+    return dataclasses.replace(
+        records, daily=new_daily, findings=tuple(findings), subdaily_stage=sub, estimated=estimated
+    )
 
 
 def _name(key: Any) -> str:

@@ -333,6 +333,8 @@ class OutletParameters:
         ``sample(rng, n) -> ndarray (n, k)`` drawing parameter sets (e.g. from a bootstrap).
     names : tuple of str
         Parameter names (for notes).
+    dated : bool
+        ``discharge_with`` also takes ``days=`` (the days of the stage rows): dated ratings.
     """
 
     values: Array
@@ -340,6 +342,7 @@ class OutletParameters:
     cov: Array | None = None
     sample: Callable[[np.random.Generator, int], Array] | None = None
     names: tuple[str, ...] = ()
+    dated: bool = False  # discharge_with takes days= (a rating that changes in time)
 
     def draw(self, rng: np.random.Generator, n: int) -> Array:
         """Parameter deviations from ``values``, ndarray (n, k)."""
@@ -458,14 +461,23 @@ def _boundaries(
     return b, from_given
 
 
-def _at(fn: StageFn, stage_m: Array) -> Array:
+def _at(fn: StageFn, stage_m: Array, days: pd.DatetimeIndex | None = None) -> Array:
     """``fn`` evaluated where the stage is known (NaN elsewhere), so that a missing day never
-    reaches a relation whose policy raises outside its range."""
+    reaches a relation whose policy raises outside its range.
+
+    A relation that changes in time (an object with ``on_days(stage_m, days)``, e.g. dated
+    surveys or dated ratings) is evaluated with the day of each row of ``stage_m`` (shape (n,)
+    or (n, k) for n ``days``)."""
     h = np.asarray(stage_m, dtype=float)
     out = np.full(h.shape, np.nan)
     ok = np.isfinite(h)
     if ok.any():
-        out[ok] = np.asarray(fn(h[ok]), dtype=float)
+        on_days = getattr(fn, "on_days", None)
+        if on_days is not None and days is not None:
+            rows = np.nonzero(ok)[0]
+            out[ok] = np.asarray(on_days(h[ok], pd.DatetimeIndex(days)[rows]), dtype=float)
+        else:
+            out[ok] = np.asarray(fn(h[ok]), dtype=float)
     return out
 
 
@@ -533,6 +545,11 @@ class Balance:
     error_model : ResidualErrors or None
         The error model of the residual (:mod:`lakebalance.errormodel`), after
         :func:`add_uncertainty`: what the flags' significance and the seepage interval use.
+    grades : pandas.DataFrame or None
+        After :func:`grade_balance`: the grade of every term on every day (``measured``,
+        ``estimated: <method>``, ``missing``; :mod:`lakebalance.grades`).
+    infilled : pandas.DataFrame or None
+        After :func:`grade_balance`: the daily table closed with the missing days estimated.
     """
 
     daily: pd.DataFrame
@@ -547,6 +564,8 @@ class Balance:
     errors: TermErrors | None = None
     nodes: int = 3
     error_model: ResidualErrors | None = field(default=None, repr=False)
+    grades: pd.DataFrame | None = field(default=None, repr=False)
+    infilled: pd.DataFrame | None = field(default=None, repr=False)
 
     # -- properties ----------------------------------------------------------------------
     @property
@@ -636,6 +655,35 @@ class Balance:
             out = out.join(self.annual_bands)
         return out
 
+    @property
+    def graded_terms(self) -> list[str]:
+        """The terms that carry grades: storage change, inflow (and each tributary), rain,
+        evaporation, outflow, withdrawal, release, residual."""
+        return ["storage_change", "inflow", *[f"inflow:{n}" for n in self.inflow_names]] + [
+            *_TERMS[1:],
+            "residual",
+        ]
+
+    def _graded(self, keys: Array, label: str) -> pd.DataFrame:
+        from .grades import graded_totals
+
+        if self.grades is None or self.infilled is None:
+            raise ValueError("no grades: the balance was not graded (grade_balance)")
+        return graded_totals(self.daily, self.infilled, self.grades, keys, label, self.graded_terms)
+
+    def graded_monthly(self) -> pd.DataFrame:
+        """Monthly totals of each term measured-only and infilled, with the share estimated and
+        the days measured, estimated and missing (:func:`lakebalance.grades.graded_totals`)."""
+        keys = np.asarray(self.daily.index.to_period("M").to_timestamp())
+        out = self._graded(keys, "month")
+        out.index = pd.DatetimeIndex(out.index, name="month")
+        return out
+
+    def graded_water_years(self) -> pd.DataFrame:
+        """Water-year totals of each term measured-only and infilled, with the share estimated
+        (see :meth:`graded_monthly`)."""
+        return self._graded(water_year_of(self.daily.index, self.water_year_start), "water_year")
+
     def to_frame(self) -> pd.DataFrame:
         """The daily table (:attr:`daily`)."""
         return self.daily
@@ -654,6 +702,11 @@ class Balance:
             "totals_m3": self.totals,
             "water_years": self.water_years().reset_index().to_dict(orient="records"),
             "monthly": self.monthly().reset_index().to_dict(orient="records"),
+            "water_years_graded": (
+                self.graded_water_years().reset_index().to_dict(orient="records")
+                if self.grades is not None
+                else None
+            ),
             "notes": list(self.notes),
             "caution": CAUTION,
         }
@@ -768,9 +821,10 @@ def close_daily(
     tau, w = gauss_legendre(options.nodes, (0.0, 1.0))
     path = day_path(hs, he, stage, tau)
     ok_stage = np.isfinite(path).all(axis=1)
-    area_nodes = _at(area_fn, path)
+    area_nodes = _at(area_fn, path, index)
     area = np.where(ok_stage, area_nodes @ w, np.nan)
-    vs, ve, vmean = _at(volume_fn, hs), _at(volume_fn, he), _at(volume_fn, stage)
+    vs, ve = _at(volume_fn, hs, index), _at(volume_fn, he, index)
+    vmean = _at(volume_fn, stage, index)
     dv = ve - vs
     outflow, n_readings = _outflow_volumes(terms, index, path, w, ok_stage, outflow_fn, options)
 
@@ -863,6 +917,111 @@ def close_daily(
     )
 
 
+def grade_balance(
+    balance: Balance,
+    terms: DailyTerms,
+    *,
+    volume_fn: StageFn,
+    area_fn: StageFn,
+    outflow_fn: StageFn | None = None,
+    options: ClosureOptions = ClosureOptions(),
+    stage_estimated: Array | None = None,
+    after_closure: Callable[[Balance], Balance] | None = None,
+    outflow_estimated: Mapping[str, Array] | None = None,
+    max_gap_days: int = 31,
+) -> Balance:
+    """``balance`` with the grade of every term on every day and the infilled daily table.
+
+    Parameters
+    ----------
+    balance : Balance
+        From :func:`close_daily` on ``terms``.
+    terms : DailyTerms
+        The measured terms it was closed from.
+    volume_fn, area_fn, outflow_fn, options
+        As for :func:`close_daily`.
+    stage_estimated : ndarray of str, optional
+        Per day of ``terms.stage_m``, the method of a stage already estimated ('' = measured).
+    after_closure : callable, optional
+        Applied to the infilled closure as to the measured one (e.g. an ice period's outflow).
+    outflow_estimated : mapping of str to ndarray of bool, optional
+        Method → days (of the balance) whose outflow is estimated otherwise.
+    max_gap_days : int
+        Longest stage, withdrawal or release gap interpolated in time, days.
+
+    Notes
+    -----
+    The missing days are estimated by :func:`lakebalance.grades.infill_terms` and the balance is
+    closed again on them (daily path, no sub-daily stage); the measured balance is unchanged.
+    """
+    from .grades import infill_terms, term_grades
+
+    filled, input_grades = infill_terms(
+        terms, stage_estimated=stage_estimated, max_gap_days=max_gap_days
+    )
+    closed = close_daily(
+        filled, volume_fn=volume_fn, area_fn=area_fn, outflow_fn=outflow_fn, options=options
+    )
+    if after_closure is not None:
+        closed = after_closure(closed)
+    index = pd.DatetimeIndex(balance.daily.index)
+    grades = term_grades(
+        index,
+        input_grades,
+        pd.DatetimeIndex(pd.Series(terms.stage_m).index),
+        absent=balance.absent_terms,
+        outflow_estimated=outflow_estimated,
+    )
+    infilled = closed.daily.reindex(index)
+    # the grades agree with the volumes: no volume, no measurement; no estimate, missing
+    for t in balance.graded_terms:
+        col = f"{t}_m3"
+        g = grades[t].to_numpy(dtype=object).copy()
+        have_m = np.isfinite(balance.daily[col].to_numpy(dtype=float))
+        have_i = np.isfinite(infilled[col].to_numpy(dtype=float))
+        g[(g == "measured") & ~have_m] = "estimated: from the estimated stage around the day"
+        g[~have_i] = "missing"
+        grades[t] = g
+    n_est = int(grades["residual"].astype(str).str.startswith("estimated").sum())
+    note = (
+        f"grades: {n_est} of {len(index)} days have an estimated term; totals are given "
+        "measured-only and infilled"
+    )
+    return replace(balance, grades=grades, infilled=infilled, notes=(*balance.notes, note))
+
+
+def replace_outflow(
+    balance: Balance, outflow_m3: Array, note: str, error_sd_m3: Array | None = None
+) -> Balance:
+    """``balance`` with its daily outflow replaced (m³/d) and the residual and ``complete``
+    recomputed from it (e.g. the outflow of a declared ice period, :mod:`lakebalance.periods`).
+
+    ``error_sd_m3`` (m³/d, 1 σ) is the error of the estimate on each day: kept in the column
+    ``outflow_estimate_sd_m3`` and added to the residual's random error by
+    :func:`residual_errors`. Call it before :func:`add_uncertainty`, so that the error model
+    sees the outflow used.
+    """
+    d = balance.daily.copy()
+    if error_sd_m3 is not None:
+        sd = np.nan_to_num(np.asarray(error_sd_m3, dtype=float))
+        old_sd = d["outflow_estimate_sd_m3"].to_numpy() if "outflow_estimate_sd_m3" in d else 0.0
+        d["outflow_estimate_sd_m3"] = np.sqrt(old_sd**2 + sd**2)
+    new = np.asarray(outflow_m3, dtype=float)
+    old = d["outflow_m3"].to_numpy(dtype=float)
+    residual = d["residual_m3"].to_numpy(dtype=float) + (new - old)
+    # where the old outflow was missing, the residual is rebuilt from the other columns
+    rebuild = ~np.isfinite(old)
+    if rebuild.any():
+        gains = d["inflow_m3"] + d["rain_m3"] - d["evaporation_m3"]
+        losses = d["withdrawal_m3"] + d["release_m3"]
+        full = (d["storage_change_m3"] - (gains - new - losses)).to_numpy(dtype=float)
+        residual = np.where(rebuild, full, residual)
+    d["outflow_m3"] = new
+    d["residual_m3"] = residual
+    d["complete"] = np.isfinite(residual)
+    return replace(balance, daily=d, notes=(*balance.notes, note))
+
+
 def _outflow_volumes(
     terms: DailyTerms,
     index: pd.DatetimeIndex,
@@ -877,7 +1036,7 @@ def _outflow_volumes(
     n = len(index)
     if outflow_fn is None:
         return np.zeros(n), 0
-    q_nodes = _at(outflow_fn, path)
+    q_nodes = _at(outflow_fn, path, index)
     outflow = np.where(ok_stage, (q_nodes @ w) * SECONDS_PER_DAY, np.nan)
     if terms.subdaily_stage_m is None:
         return outflow, 0
@@ -942,9 +1101,16 @@ def subdaily_outflow_m3(
     t, h = t[order], h[order]
     keep = np.r_[True, np.diff(t) > 0]
     t, h = t[keep], h[keep]
-    q = np.asarray(outflow_fn(h), dtype=float)
+    on_days = getattr(outflow_fn, "on_days", None)  # a rating that changes in time
     dt = np.diff(t) / 1e9  # s
-    vol = 0.5 * (q[:-1] + q[1:]) * dt
+    if on_days is not None:  # both ends of a span by the rating of the day the span starts in
+        seg_day = pd.DatetimeIndex(t[:-1]).normalize()
+        q_a = np.asarray(on_days(h[:-1], seg_day), dtype=float)
+        q_b = np.asarray(on_days(h[1:], seg_day), dtype=float)
+        vol = 0.5 * (q_a + q_b) * dt
+    else:
+        q = np.asarray(outflow_fn(h), dtype=float)
+        vol = 0.5 * (q[:-1] + q[1:]) * dt
     ok = dt <= max_gap_hours * 3600.0
     day0 = days[0].normalize().as_unit("ns").asm8.astype(np.int64)
     k = (t[:-1] - day0) // (86400 * 10**9)
@@ -1012,6 +1178,9 @@ def residual_errors(
     tv = np.vstack([np.where(ok, v, 0.0) for _, v in term_cols]) if term_cols else np.zeros((0, n))
     scaled = tv * sig[:, None]  # (K, days) residual change per unit z
     random_sd = np.sqrt((1.0 - rho) * np.sum(scaled**2, axis=0))
+    if "outflow_estimate_sd_m3" in d.columns:  # an outflow estimated otherwise (ice)
+        extra = np.nan_to_num(d["outflow_estimate_sd_m3"].to_numpy(dtype=float))
+        random_sd = np.sqrt(random_sd**2 + extra**2)
     if errors.systematic_period == "record":
         period = np.zeros(n, dtype=np.int64)
     else:
@@ -1028,13 +1197,19 @@ def residual_errors(
     if outlet is not None and outflow_fn is not None and rating_variants > 1:
         values = np.asarray(outlet.values, dtype=float)
         params = values + outlet.draw(rng, int(rating_variants))
-        rating_m3 = rating_variant_volumes(outlet.discharge_with, params, values, path, w, ok)
+        rating_m3 = rating_variant_volumes(
+            outlet.discharge_with, params, values, path, w, ok,
+            dates=pd.DatetimeIndex(d.index) if outlet.dated else None,
+        )  # fmt: skip
 
-    a_s = np.nan_to_num(_at(area_fn, hs))
-    a_e = np.nan_to_num(_at(area_fn, he))
+    a_s = np.nan_to_num(_at(area_fn, hs, d.index))
+    a_e = np.nan_to_num(_at(area_fn, he, d.index))
     if outflow_fn is not None:
         eps = 1e-4  # m, central-difference step for dQ/dh
-        dq = np.nan_to_num((_at(outflow_fn, path + eps) - _at(outflow_fn, path - eps)) / (2 * eps))
+        dq = np.nan_to_num(
+            (_at(outflow_fn, path + eps, d.index) - _at(outflow_fn, path - eps, d.index))
+            / (2 * eps)
+        )
         g_s = (dq * (1 - tau)[None, :]) @ w * SECONDS_PER_DAY
         g_e = (dq * tau[None, :]) @ w * SECONDS_PER_DAY
     else:

@@ -27,22 +27,27 @@ from .balance import UncertaintyOptions
 from .drawdown.options import DemandRule, DrawdownOptions
 from .errors import ConfigError, OptionError, UnitError, suggest
 from .evaporation.options import EvaporationOptions
+from .fieldchecks import FieldCheckOptions
 from .flags import FlagOptions
 from .options import Options, setting
 from .outlet.options import OutletComponent, OutletOptions
+from .outlet.periods import RatingPeriod
+from .periods import Period
 from .qa import QAOptions
 from .records import Correction
 from .report.options import ReportOptions
 from .seepage import SeepageOptions
-from .storage import StorageOptions
+from .storage import DatedSurvey, StorageOptions
 from .vocabulary import SERIES_ROLES
 
 __all__ = [
     "SiteInfo",
     "SeriesSpec",
     "StorageOptions",
+    "DatedSurvey",
     "OutletComponent",
     "OutletOptions",
+    "RatingPeriod",
     "UncertaintyOptions",
     "EvaporationOptions",
     "QAOptions",
@@ -51,6 +56,8 @@ __all__ = [
     "DemandRule",
     "DrawdownOptions",
     "Correction",
+    "Period",
+    "FieldCheckOptions",
     "ReportOptions",
     "Site",
     "SERIES_ROLES",
@@ -142,6 +149,8 @@ class Site:
     seepage: SeepageOptions = field(default_factory=SeepageOptions)
     drawdown: DrawdownOptions = field(default_factory=DrawdownOptions)
     correction: tuple[Correction, ...] = ()
+    period: tuple[Period, ...] = ()  # [[period]]: ice and offset periods (lakebalance.periods)
+    field_checks: FieldCheckOptions = field(default_factory=FieldCheckOptions)
     report: ReportOptions = field(default_factory=ReportOptions)
 
     @property
@@ -167,6 +176,7 @@ _TOP_SECTIONS = {
     "flags": FlagOptions,
     "seepage": SeepageOptions,
     "drawdown": DrawdownOptions,
+    "field_checks": FieldCheckOptions,
     "report": ReportOptions,
 }
 _INTERNAL_FIELDS = {"role", "key"}
@@ -361,7 +371,7 @@ def quantity(value: float | str, unit: str, kind: str, what: str) -> float:
 def parse_site(data: dict[str, Any], path: Path, text: str = "") -> Site:
     """Validate a parsed site-file table and build the :class:`Site` (paths resolved against ``path``)."""
     ctx = _Ctx(path, text)
-    valid = [*_TOP_SECTIONS, "series", "levels", "correction"]
+    valid = [*_TOP_SECTIONS, "series", "levels", "correction", "period"]
     for key in data:
         if key not in valid:
             raise ctx.error(f"unknown section [{key}]{suggest(key, valid)}", key)
@@ -418,6 +428,17 @@ def parse_site(data: dict[str, Any], path: Path, text: str = "") -> Site:
         kwargs["correction"] = _coerce(
             tuple[Correction, ...], data["correction"], ctx, "", "correction"
         )
+    if "period" in data:
+        kwargs["period"] = _coerce(tuple[Period, ...], data["period"], ctx, "", "period")
+        keys = [s.key for s in series]
+        for i, p in enumerate(kwargs["period"]):
+            if p.series not in keys:
+                raise ctx.error(
+                    f"[[period]] {p.describe()} names series {p.series!r}, which the site file "
+                    f"does not declare{suggest(p.series, keys)}",
+                    f"period[{i}]",
+                    "series",
+                )
     return Site(path=path, series=tuple(series), levels=levels, **kwargs)
 
 

@@ -32,6 +32,7 @@ from __future__ import annotations
 
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 
@@ -190,6 +191,7 @@ def rating_variant_volumes(
     weights: Array,
     ok: Array,
     chunk_days: int = 4096,
+    dates: Any = None,
 ) -> Array:
     """Daily outflow volume (m³) of each rating variant minus the fitted rating's, float32.
 
@@ -209,6 +211,9 @@ def rating_variant_volumes(
         Days with a known path.
     chunk_days : int
         Days evaluated at once (memory).
+    dates : pandas.DatetimeIndex, optional
+        The days of ``path_m``: when given, ``discharge_with`` is called with ``days=`` the
+        chunk's days (a rating that changes in time, e.g. dated rating periods).
     """
     from .units import SECONDS_PER_DAY
 
@@ -220,7 +225,10 @@ def rating_variant_volumes(
     for a in range(0, days, chunk_days):
         h = h_all[a : a + chunk_days]
         grid = np.broadcast_to(h, (v + 1, *h.shape))
-        q = np.asarray(discharge_with(rows, grid), dtype=float)  # (V+1, m, nodes)
+        if dates is None:
+            q = np.asarray(discharge_with(rows, grid), dtype=float)  # (V+1, m, nodes)
+        else:
+            q = np.asarray(discharge_with(rows, grid, days=dates[a : a + chunk_days]), dtype=float)
         vol = (q @ weights) * SECONDS_PER_DAY  # (V+1, m)
         out[:, a : a + chunk_days] = (vol[1:] - vol[0][None, :]).astype(np.float32)
     out[:, ~ok] = 0.0

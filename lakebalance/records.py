@@ -19,19 +19,57 @@ if TYPE_CHECKING:  # pragma: no cover
 
     from .config import Site
 
-__all__ = ["Correction", "Finding", "RowAccount", "SeriesInfo", "Records"]
+__all__ = ["Correction", "Finding", "RowAccount", "SeriesInfo", "Records", "correction_values"]
 
 
 @dataclass(frozen=True)
 class Correction:
-    """``[[correction]]``: a user-accepted correction of a series (e.g. a gauge datum shift)."""
+    """``[[correction]]``: a user-accepted correction of a series (e.g. a gauge datum shift).
+
+    ``kind = "offset"`` adds ``value`` to every reading from ``start`` to ``end``; ``kind =
+    "drift"`` adds an amount that goes linearly in time from ``value`` on ``start`` to
+    ``end_value`` on ``end`` (a sensor drifting between two field checks; both dates needed).
+    """
 
     series: str  # series key, e.g. "stage"
-    kind: Literal["offset"] = "offset"
+    kind: Literal["offset", "drift"] = "offset"
     start: str = ""  # ISO date of the first corrected day
     end: str | None = None  # ISO date of the last corrected day (open when absent)
     value: float = 0.0  # in the series' internal unit (m for stage) added to the record
+    end_value: float | None = None  # drift: the amount added on 'end'
     reason: str = ""
+
+    def __post_init__(self) -> None:
+        from .errors import OptionError
+
+        if self.kind == "drift" and (self.end_value is None or not self.start or not self.end):
+            raise OptionError(
+                "end_value", "a correction of kind 'drift' needs 'start', 'end' and 'end_value'"
+            )
+        if self.kind == "offset" and self.end_value is not None:
+            raise OptionError("end_value", "'end_value' applies only to kind = 'drift'")
+
+
+def correction_values(corr: Correction, times: pd.DatetimeIndex) -> np.ndarray:
+    """The amount ``corr`` adds at each of ``times`` (series' internal unit), zero outside it.
+
+    For a drift, linear in time from ``value`` at 00:00 of ``start`` to ``end_value`` at 00:00
+    of ``end`` (days of a daily index are stamped at 00:00, so day ``end`` gets ``end_value``),
+    held at ``end_value`` through the rest of the day ``end``.
+    """
+    import numpy as np
+    import pandas as pd
+
+    times = pd.DatetimeIndex(times)
+    start = pd.Timestamp(corr.start) if corr.start else times.min()
+    end = pd.Timestamp(corr.end) if corr.end else times.max()
+    inside = (times >= start) & (times < end.normalize() + pd.Timedelta(days=1))
+    if corr.kind == "offset":
+        return np.where(inside, float(corr.value), 0.0)
+    span = (end - start).total_seconds()
+    w = np.clip((times - start).total_seconds() / span, 0.0, 1.0) if span > 0 else 1.0
+    v = float(corr.value) + (float(corr.end_value) - float(corr.value)) * np.asarray(w)
+    return np.where(inside, v, 0.0)
 
 
 FindingKind = Literal[
@@ -115,7 +153,11 @@ class Records:
     ``flags`` has the same index and columns as ``daily``: True where the daily value is kept but
     doubtful (a spike, a flat-line, low coverage). ``subdaily_stage`` holds the raw stage readings
     (m, timestamps in the site's zone) when stage came sub-daily, for balance terms that need the
-    stage at day boundaries; None otherwise.
+    stage at day boundaries; None otherwise. ``check_readings`` holds the field-check readings
+    (role ``staff_gauge``, m on the gauge datum, with their times) when there are any.
+    ``estimated`` has columns of series keys whose values were estimated (e.g. the stage of a
+    declared offset period, :mod:`lakebalance.periods`): the method in words on those days,
+    ``""`` elsewhere; None when nothing was estimated.
     """
 
     site: Site
@@ -125,6 +167,8 @@ class Records:
     findings: tuple[Finding, ...] = ()
     accounting: tuple[RowAccount, ...] = ()
     subdaily_stage: pd.Series | None = field(default=None, repr=False)
+    check_readings: pd.Series | None = field(default=None, repr=False)
+    estimated: pd.DataFrame | None = field(default=None, repr=False)
 
     def keys(self, role: str) -> list[str]:
         """Series keys of ``role`` in the order of the site file."""

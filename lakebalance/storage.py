@@ -60,6 +60,7 @@ if TYPE_CHECKING:  # pragma: no cover
 
 __all__ = [
     "StorageOptions",
+    "DatedSurvey",
     "Policy",
     "Integration",
     "VolumeCheck",
@@ -71,6 +72,29 @@ __all__ = [
     "storage_from_outline",
     "compare_curves",
 ]
+
+
+def _iso_date_rule(value: str | None) -> str | None:
+    import datetime as _dt
+
+    if value is None:
+        return None
+    try:
+        _dt.date.fromisoformat(str(value)[:10])
+    except ValueError:
+        return "be an ISO date (YYYY-MM-DD)"
+    return None
+
+
+@dataclass(frozen=True)
+class DatedSurvey(Options):
+    """``[[storage.survey]]``: another survey of the basin, on its date, read with the settings
+    of ``[storage]`` (columns, units, datum); see :mod:`lakebalance.surveys`."""
+
+    date: str = setting(rule=_iso_date_rule)  # ISO date of the survey
+    file: Path | None = None  # its table or contour layer
+    sheet: str | None = None
+    layer: str | None = None
 
 
 @dataclass(frozen=True)
@@ -107,9 +131,24 @@ class StorageOptions(Options):
     # relation always integrates the areas)
     accept_volume_mismatch: bool = False
     compare: Path | None = None  # a second survey (table or contour layer) to compare against
+    # date of the survey in 'file' (needed with [[storage.survey]]: relations dated in time)
+    date: str | None = setting(None, rule=_iso_date_rule)
+    survey: tuple[DatedSurvey, ...] = ()  # further dated surveys, interpolated in time
     delimiter: str | None = None  # CSV field delimiter of a table (sniffed when absent)
     decimal: str = "."  # decimal mark of a CSV table
     encoding: str | None = None  # text encoding of a CSV table (UTF-8 when absent)
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        from .errors import OptionError
+
+        if self.survey and self.date is None:
+            raise OptionError(
+                "date", "'date' (of the survey in 'file') is needed with [[storage.survey]]"
+            )
+        dates = [str(self.date)[:10]] + [str(s.date)[:10] for s in self.survey]
+        if len(set(dates)) != len(dates):
+            raise OptionError("survey", f"two surveys share a date: {', '.join(dates)}")
 
 
 Policy = Literal["error", "clamp", "extend"]

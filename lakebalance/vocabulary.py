@@ -24,6 +24,7 @@ __all__ = [
     "Term",
     "ROLES",
     "SERIES_ROLES",
+    "SPARSE_ROLES",
     "TERMS",
     "TERM_BY_NAME",
     "MEASURED_TERMS",
@@ -62,6 +63,9 @@ class Role:
         non-negative role (a dry creek or a rainless day says nothing of the unit), of every day
         otherwise. A series wholly beyond it was probably read in the wrong unit
         (:mod:`lakebalance.unitcheck` names the likely intended one).
+    sparse : bool
+        A few readings a year by design (field checks): no gap findings, no warning that the
+        readings are coarse, and the readings are kept with their times.
     """
 
     name: str
@@ -73,6 +77,7 @@ class Role:
     state: bool = False
     smooth: bool = False
     typical: tuple[float, float] = (-INF, INF)
+    sparse: bool = False
 
 
 # Typical daily values (common practice, no source; the limits are generous on purpose): a flow
@@ -90,6 +95,8 @@ ROLES: dict[str, Role] = {
     r.name: r
     for r in (
         Role("stage", "length", "lake stage", state=True, smooth=True),  # any datum: no range
+        # staff-gauge (or surveyed) readings of the same stage on the gauge datum, made at visits
+        Role("staff_gauge", "length", "staff-gauge check reading", sparse=True),
         # 3e5 m³/s: above the largest rivers' mean daily flow (from memory)
         Role("inflow", "flow", "gauged inflow", True, plausible=(0.0, 3.0e5), typical=FLOW),
         Role(
@@ -166,6 +173,9 @@ ROLES: dict[str, Role] = {
 
 #: The role names, in order.
 SERIES_ROLES: tuple[str, ...] = tuple(ROLES)
+
+#: Roles read a few times a year by design (field checks), kept with their reading times.
+SPARSE_ROLES: frozenset[str] = frozenset(r for r, v in ROLES.items() if v.sparse)
 
 
 @dataclass(frozen=True)

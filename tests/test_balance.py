@@ -238,6 +238,10 @@ def test_balance_command_writes_tables(write, tmp_path, capsys):
     daily = pd.read_parquet(out / "balance_daily.parquet")
     assert len(daily) == 90 and "residual_p05_m3" in daily
     assert (out / "balance_daily.csv").exists() and (out / "balance_monthly.csv").exists()
+    grades = pd.read_csv(out / "balance_daily_grades.csv")
+    assert len(grades) == 90 and {"inflow", "outflow", "residual"} <= set(grades.columns)
+    graded = pd.read_csv(out / "balance_water_years_graded.csv")
+    assert {"inflow_measured_m3", "inflow_infilled_m3", "inflow_estimated_share"} <= set(graded)
     assert main(["balance", str(path), "--draws", "0"]) == 0
     text = capsys.readouterr().out
     assert "water years" in text and "no bands" in text

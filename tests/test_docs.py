@@ -24,6 +24,10 @@ SECTIONS = {
     "[drawdown]": config.DrawdownOptions,
     "[[drawdown.restriction]]": config.DemandRule,
     "[[correction]]": config.Correction,
+    "[[period]]": config.Period,
+    "[[storage.survey]]": config.DatedSurvey,
+    "[[outlet.period]]": config.RatingPeriod,
+    "[field_checks]": config.FieldCheckOptions,
     "[report]": config.ReportOptions,
 }
 

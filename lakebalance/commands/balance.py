@@ -134,6 +134,12 @@ def _write_outputs(out, balance, annual, monthly, seed) -> list:
         write_csv(out / "balance_monthly.csv", monthly),
         write_csv(out / "balance_water_years.csv", annual),
     ]
+    if balance.grades is not None:  # each day's grade of each term; totals measured and infilled
+        files += [
+            write_csv(out / "balance_daily_grades.csv", balance.grades),
+            write_csv(out / "balance_monthly_graded.csv", balance.graded_monthly()),
+            write_csv(out / "balance_water_years_graded.csv", balance.graded_water_years()),
+        ]
     from ..balance import CAUTION
 
     about = [

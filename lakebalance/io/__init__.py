@@ -12,6 +12,8 @@ import sys
 from typing import TYPE_CHECKING
 
 if TYPE_CHECKING:  # pragma: no cover
+    import pandas as pd
+
     from ..config import Site
     from ..records import Records
 
@@ -92,4 +94,16 @@ def read_records(site: Site, progress: bool = False) -> Records:
         findings=tuple(f for ls in loaded for f in ls.findings),
         accounting=tuple(ls.account for ls in loaded),
         subdaily_stage=stage[0] if stage else None,
+        check_readings=_checks(loaded),
     )
+
+
+def _checks(loaded: list) -> pd.Series | None:
+    """The field-check readings of every ``staff_gauge`` series, in time order (m)."""
+    import pandas as pd
+
+    parts = [ls.subdaily for ls in loaded if ls.info.role == "staff_gauge"]
+    parts = [p for p in parts if p is not None and len(p)]
+    if not parts:
+        return None
+    return pd.concat(parts).sort_index().rename("staff_gauge")

@@ -31,8 +31,9 @@ import numpy as np
 from .. import qa
 from ..config import SeriesSpec, Site
 from ..errors import ConfigError, InputError, UnitError
-from ..records import Finding, RowAccount, SeriesInfo
+from ..records import Finding, RowAccount, SeriesInfo, correction_values
 from ..units import INTERNAL_UNITS, ROLE_KINDS, SECONDS_PER_DAY, Conversion, conversion
+from ..vocabulary import SPARSE_ROLES
 from ._raw import RawSeries
 from .tables import ambiguity_error, ambiguous_numbers, to_numbers
 
@@ -458,7 +459,8 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
     steps = steps[steps > 0]
     interval_s = float(np.median(steps)) / 1e9 if steps.size else SECONDS_PER_DAY
     subdaily = interval_s < 0.9 * SECONDS_PER_DAY
-    if interval_s >= 1.9 * SECONDS_PER_DAY and steps.size >= 10:  # a record, not a few rows
+    sparse = role in SPARSE_ROLES  # field checks: a few readings a year by design
+    if interval_s >= 1.9 * SECONDS_PER_DAY and steps.size >= 10 and not sparse:
         _warn_coarse(what, file, interval_s / SECONDS_PER_DAY, conv.amount)
     resolution = None
     if spec.resolution is not None:
@@ -559,7 +561,7 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
     row_days = row_days[(row_days >= 0) & (row_days < len(index))]
     gap_mask = np.ones(len(index), dtype=bool)
     gap_mask[row_days] = False
-    for a, b in qa.runs(gap_mask):
+    for a, b in qa.runs(gap_mask & (not sparse)):
         add(
             "gap",
             index[a].date().isoformat(),
@@ -611,7 +613,7 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
     # 9. corrections --------------------------------------------------------------------------
     sub = (
         pd.Series(r_val, index=pd.DatetimeIndex(r_ns), name=key)
-        if (role == "stage" and subdaily)
+        if (role == "stage" and subdaily) or sparse
         else None
     )
     for corr in site.correction:
@@ -620,17 +622,19 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
         start = pd.Timestamp(corr.start) if corr.start else index[0]
         end = pd.Timestamp(corr.end) if corr.end else index[-1]
         span = (index >= start) & (index <= end)
-        full = np.where(span & np.isfinite(full), full + corr.value, full)
-        if sub is not None:
+        full = np.where(span & np.isfinite(full), full + correction_values(corr, index), full)
+        if sub is not None and not sparse:
             in_span = (sub.index >= start) & (sub.index < end + pd.Timedelta(days=1))
-            sub = sub.where(~in_span, sub + corr.value)
+            sub = sub.where(~in_span, sub + correction_values(corr, sub.index))
         add(
             "correction",
             start.date().isoformat(),
             end.date().isoformat(),
             int((span & np.isfinite(full)).sum()),
             "applied",
-            f"{corr.kind} {corr.value:+.6g} {INTERNAL_UNITS[kind]}"
+            f"{corr.kind} {corr.value:+.6g}"
+            + (f" to {corr.end_value:+.6g}" if corr.kind == "drift" else "")
+            + f" {INTERNAL_UNITS[kind]}"
             + (f": {corr.reason}" if corr.reason else ""),
         )
     daily = pd.Series(full, index=index, name=key)

@@ -204,3 +204,25 @@ def storage_location(options: StorageOptions) -> tuple[float, float] | None:
     from .vector import layer_centroid
 
     return layer_centroid(options.file, layer=options.layer)
+
+
+def read_surveys(options: StorageOptions, *, site_file: Path | None = None):
+    """The dated surveys of ``[storage]`` (its own ``file`` on ``date`` and each
+    ``[[storage.survey]]``) as a :class:`~lakebalance.surveys.DatedStorage`, or None when there is
+    only one survey."""
+    from ..surveys import DatedStorage
+
+    if not options.survey:
+        return None
+    items = [(str(options.date)[:10], read_storage(options, site_file=site_file))]
+    for s in options.survey:
+        if s.file is None:
+            raise ConfigError(f"[[storage.survey]] of {s.date} needs 'file'", file=site_file)
+        opts = dataclasses.replace(
+            options,
+            sheet=s.sheet if s.sheet is not None else options.sheet,
+            layer=s.layer if s.layer is not None else options.layer,
+        )
+        items.append((str(s.date)[:10], read_storage(opts, site_file=site_file, file=s.file)))
+    items.sort(key=lambda x: x[0])
+    return DatedStorage(tuple(d for d, _ in items), tuple(c for _, c in items))

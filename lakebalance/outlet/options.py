@@ -7,6 +7,7 @@ from pathlib import Path
 from typing import Literal
 
 from ..options import Options, setting
+from .periods import RatingPeriod
 
 __all__ = ["OutletComponent", "OutletOptions"]
 
@@ -103,6 +104,8 @@ class OutletOptions(Options):
     # parameter -> [value, standard error] (SI), from a handbook or the drawings
     priors: dict[str, list[float]] = _priors()
     shift_date: str | None = None  # ISO date for a before/after rating-shift test
+    # [[outlet.period]]: dated ratings, each fitted from its own gaugings (outlet/periods.py)
+    period: tuple[RatingPeriod, ...] = ()
     bootstrap: int = setting(0, unit="refits", low=0, high=MAX_BOOTSTRAP)  # 0 = delta method only
 
     def fit_options(self):

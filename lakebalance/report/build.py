@@ -23,6 +23,17 @@ from ..errors import LakebalanceError
 from ..stats import water_year_of
 from ..units import SECONDS_PER_DAY
 from ..vocabulary import TERMS
+from .headline import (
+    confirmed_corrections,
+    confirmed_sentence,
+    graded_numbers,
+    graded_sentence,
+    open_shifts,
+    plan_outlook,
+    residual_with,
+    shift_sentences,
+    survey_sentence,
+)
 
 if TYPE_CHECKING:  # pragma: no cover
     from ..analysis import Lake
@@ -226,14 +237,17 @@ REPORT_STEPS = (
 )
 
 
-def run_steps(lake: Lake) -> list[str]:
+def run_steps(lake: Lake, before_forecast: Any = None) -> list[str]:
     """Run every step of ``lake`` once (a step that cannot run keeps its reason) and return the
-    warnings raised on the way, each once, as ``"Category: message"``."""
+    warnings raised on the way, each once, as ``"Category: message"``. ``before_forecast`` (no
+    arguments) is called before the forecast runs (e.g. to set where it starts)."""
     caught: list[str] = []
     with warnings.catch_warnings(record=True) as seen:
         warnings.simplefilter("always")
         lake.records  # noqa: B018 - the report cannot start without them
         for step in REPORT_STEPS:
+            if step == "forecast" and before_forecast is not None:
+                before_forecast()
             lake.get(step)
     for w in seen:
         text = f"{w.category.__name__}: {w.message}"
@@ -370,11 +384,16 @@ def _stage_figure(run: Lake, days: pd.DatetimeIndex) -> Figure:
     u = formatter(run).units
     d = run.get("balance").daily.loc[days[0] : days[-1]]
     sim_v = _simulated_storage(d)
+    storage = run.get("storage")
     with warnings.catch_warnings(record=True) as outside:
         warnings.simplefilter("always")
-        sim_h = pd.Series(
-            np.asarray(run.get("storage").stage(sim_v.to_numpy()), float), index=d.index
-        )
+        v = sim_v.to_numpy()
+        if storage.below == "error" or storage.above == "error":  # drawn at the ends instead
+            off = storage.volume_out_of_range(v) != 0
+            if off.any():
+                warnings.warn("simulated storage outside the relation", UserWarning, stacklevel=1)
+            v = np.clip(v, storage.min_volume_m3, storage.max_volume_m3)
+        sim_h = pd.Series(np.asarray(storage.stage(v), float), index=d.index)
     note = (
         " The simulated storage left the storage relation's range on some days; there its stage "
         f"follows the relation's '{run.get('storage').below}'/'{run.get('storage').above}' policy."
@@ -903,7 +922,13 @@ def _r(value: Any) -> float | None:
     return v if math.isfinite(v) else None
 
 
-def _year_in_words(run: Lake, head: dict[str, Any], previous: dict[str, Any]) -> list[str]:
+def _year_in_words(
+    run: Lake,
+    head: dict[str, Any],
+    previous: dict[str, Any],
+    outlook: dict[str, Any] | None = None,
+    shifts: list[dict[str, Any]] | None = None,
+) -> list[str]:
     name = run.site.site.name
     out = [
         f"This report covers water year {head['water_year']} of {name}, "
@@ -937,12 +962,27 @@ def _year_in_words(run: Lake, head: dict[str, Any], previous: dict[str, Any]) ->
                 if lo > 0 or hi < 0
                 else ", so it cannot be told from zero"
             )
+        if any(
+            x["day"] >= head["first_day"] and x["status"] != "contradicted" for x in shifts or []
+        ):
+            text += " (but see the datum shift below)"
         out.append(text + ".")
+    out += shift_sentences(shifts or [], head["first_day"])
+    confirmed = confirmed_sentence(
+        head, sum(1 for x in shifts or [] if x["status"] != "contradicted")
+    )
+    if confirmed:
+        out.append(confirmed)
     if head.get("complete_days") is not None:
         out.append(
             f"{head['complete_days']} days had every term measured; the others are left "
             "out of the totals, never counted as zero."
         )
+        graded = graded_sentence(
+            head, len(run.records.daily.loc[head["first_day"] : head["last_day"]])
+        )
+        if graded:
+            out.append(graded)
     wy = run.get("balance").water_years()
     full = wy[wy["complete_days"] >= 300]
     if head.get("inflow_m3") is not None and len(full) > 1:
@@ -969,6 +1009,8 @@ def _year_in_words(run: Lake, head: dict[str, Any], previous: dict[str, Any]) ->
             f"Estimated seepage at the mean stage: {fmt.value('seepage_m3s', head['seepage_m3s'])}"
             " (net loss to the ground)."
         )
+    if outlook and outlook.get("sentence"):
+        out.append(outlook["sentence"])
     return out
 
 
@@ -1028,8 +1070,11 @@ def _safe_name(text: str) -> str:
     return re.sub(r"[^A-Za-z0-9_.-]+", "_", text).strip("_") or "site"
 
 
-def build_sections(run: Lake, year: int) -> tuple[list[Section], dict[str, Any], list[str]]:
-    """The sections, the headline numbers and the plain-words summary of ``year``."""
+def build_sections(
+    run: Lake, year: int, outlook: dict[str, Any] | None = None
+) -> tuple[list[Section], dict[str, Any], list[str]]:
+    """The sections, the headline numbers and the plain-words summary of ``year`` (``outlook``:
+    where the drawdown outlook starts and why, :func:`~lakebalance.report.headline.plan_outlook`)."""
     index = run.records.daily.index
     keys = water_year_of(index, run.site.site.water_year_start)
     days = index[keys == year]
@@ -1051,6 +1096,21 @@ def build_sections(run: Lake, year: int) -> tuple[list[Section], dict[str, Any],
         _qa_section(run, days),
     ]
     head = _headline(run, year, days)
+    shifts = open_shifts(run, head["last_day"])
+    head["unaccepted_shifts"] = (
+        "; ".join(
+            f"{x['day']} {x['step_m']:+.3f} m ({x['status'] or 'no field checks'})" for x in shifts
+        )
+        or None
+    )
+    head.update(graded_numbers(run, year))
+    confirmed = confirmed_corrections(run, head["last_day"]) if shifts else []
+    head.update(residual_with(run, confirmed, year))
+    surveyed, survey_numbers = survey_sentence(run)
+    head.update(survey_numbers)
+    if outlook is not None:
+        head["outlook_start"] = outlook.get("start")
+        head["outlook_start_stage_m"] = outlook.get("start_stage_m")
     previous: dict[str, Any] = {}
     if run.get("balance") is not None:
         earlier = index[keys == year - 1]
@@ -1058,7 +1118,9 @@ def build_sections(run: Lake, year: int) -> tuple[list[Section], dict[str, Any],
             previous = _headline(run, year - 1, earlier)
     if run.get("dynamics") is not None:
         head.update(_dynamics_headline(run))
-    summary = _year_in_words(run, head, previous)
+    summary = _year_in_words(run, head, previous, outlook, shifts)
+    if surveyed:
+        summary.insert(len(summary) - (1 if outlook and outlook.get("sentence") else 0), surveyed)
     if run.get("forecast") is not None:
         summary += run.get("forecast").key_sentences(3)
     return sections, head, summary
@@ -1132,19 +1194,33 @@ def _write_report(
     # the outlook draws from seed + 1, so that its streams are not the balance's
     run = Lake(site, seed=seed, forecast_seed=seed + 1, draws=draws, members=members,
                progress=progress)  # fmt: skip
-    caught = run_steps(run)
-    keys = water_year_of(run.records.daily.index, site.site.water_year_start)
-    present = sorted(set(np.asarray(keys).tolist()))
-    if year is not None and year not in present:
-        raise LakebalanceError(
-            f"water year {year} is not in the record ({present[0]} to {present[-1]})",
-            file=site.path,
-        )
-    if year is None:
-        counts = pd.Series(keys).value_counts()
-        complete = [y for y in present if counts[y] >= 365]
-        year = complete[-1] if complete else present[-1]
-    sections, head, summary = build_sections(run, int(year))
+    chosen: dict[str, Any] = {}
+
+    def choose() -> None:  # inside run_steps: the year, then where the outlook starts
+        keys = water_year_of(run.records.daily.index, site.site.water_year_start)
+        present = sorted(set(np.asarray(keys).tolist()))
+        if year is not None and year not in present:
+            raise LakebalanceError(
+                f"water year {year} is not in the record ({present[0]} to {present[-1]})",
+                file=site.path,
+            )
+        if year is None:
+            counts = pd.Series(keys).value_counts()
+            complete = [y for y in present if counts[y] >= 365]
+            chosen["year"] = complete[-1] if complete else present[-1]
+        else:
+            chosen["year"] = int(year)
+        days = run.records.daily.index[np.asarray(keys) == chosen["year"]]
+        plan = plan_outlook(run, days, explicit_year=year is not None)
+        if plan["start"] is not None:
+            run.forecast_start = plan["start"]
+        if plan["start_stage_m"] is not None:
+            run.forecast_start_stage = plan["start_stage_m"]
+        chosen["outlook"] = plan
+
+    caught = run_steps(run, before_forecast=choose)
+    year = chosen["year"]
+    sections, head, summary = build_sections(run, int(year), chosen["outlook"])
     prov = _provenance_dict(run)
     fmt = formatter(run)
     archive = file_to if file_to is not None else site.report.archive
