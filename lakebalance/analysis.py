@@ -473,8 +473,27 @@ class Lake:
                 volume = storage.volume(stage, warn=False)
                 with np.errstate(invalid="ignore", divide="ignore"):
                     depth_m = np.where(area_m2.to_numpy() > 0, volume / area_m2.to_numpy(), 0.0)
-        # Declared ice periods of the site ([[period]], lakebalance.periods) plug in here as
-        # ice_mask=...; until then [evaporation] ice says where the ice days come from.
+        # Ice periods declared for the record ([[period]] kind = "ice") are ice for the
+        # evaporation too, with those of [evaporation] ice_periods; inferring ice from the air
+        # temperature (ice = "from_air_temperature") is the evaporation's own rule.
+        ice_mask = None
+        from .periods import days_of, periods_of_kind
+
+        declared = periods_of_kind(site.period, "ice")
+        if declared and opts.ice != "from_air_temperature":
+            from .evaporation import ice_mask_from_periods
+
+            index = pd.DatetimeIndex(frame.index)
+            ice_mask = days_of(declared, index)
+            if opts.ice == "declared":
+                ice_mask = ice_mask | np.asarray(
+                    ice_mask_from_periods(index, opts.ice_periods, site_file=str(site.path)),
+                    dtype=bool,
+                )
+            averaged.append(
+                f"{int(ice_mask.sum())} days under ice from the declared periods ([[period]] "
+                'kind = "ice"): evaporation is the sublimation rate there'
+            )
         result = estimate_lake_evaporation(
             frame,
             opts,
@@ -484,6 +503,7 @@ class Lake:
             mean_depth_m=depth_m,
             area_m2=None if area_m2 is None else area_m2.to_numpy(),
             water_year_start=site.site.water_year_start,
+            ice_mask=ice_mask,
         )
         changes: dict[str, Any] = {}
         frozen_pan = sum(

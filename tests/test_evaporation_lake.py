@@ -105,3 +105,31 @@ def test_command_lists_water_years_and_the_spread(capsys):
     assert years == list(range(2005, 2023))
     assert "equilibrium_temperature" in doc["available"]
     assert doc["spread"]["relative_sd"] > 0
+
+
+def test_declared_ice_periods_of_the_record_are_ice_for_the_evaporation(tmp_path):
+    """A ``[[period]] kind = "ice"`` of the record puts the lake under ice for the evaporation
+    too: the lake evaporates at the sublimation rate on those days (common practice, no source:
+    an ice cover stops open-water evaporation), and only there."""
+    import shutil
+
+    import numpy as np
+    from conftest import ROOT
+
+    import lakebalance as lb
+
+    data = tmp_path / "demo"
+    shutil.copytree(ROOT / "data_demo", data)
+    site_file = data / "site.toml"
+    text = site_file.read_text(encoding="utf-8")
+    text += '\n[[period]]\nkind = "ice"\nstart = 2010-01-05\nend = 2010-02-10\n'
+    site_file.write_text(text, encoding="utf-8")
+    lake = lb.open_site(site_file)
+    evap = lake.evaporation
+    daily_mm = 1000.0 * evap.depth_m
+    inside = daily_mm.loc["2010-01-05":"2010-02-10"].to_numpy()
+    assert np.allclose(inside, 0.1)  # the default ice_sublimation, mm/d
+    outside = daily_mm.loc["2010-03-01":"2010-03-31"].to_numpy()
+    assert not np.allclose(outside, 0.1)
+    assert evap.ice.loc["2010-01-05":"2010-02-10"].all()
+    assert any("declared periods" in n for n in evap.notes)
