@@ -59,7 +59,6 @@ LONG_FUNCTIONS: dict[str, str] = {
     # being split in this round (remove each entry as its module is split)
     "lakebalance.drawdown.engine._day_step": "the engine's slow path is being reworked",
     "lakebalance.drawdown.engine._table_path": "the engine's slow path is being reworked",
-    "lakebalance.io.series.load_series": "reader hardening in progress",
 }
 MAX_LINES = 150
 MAX_POSITIONAL = 8

@@ -282,18 +282,100 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
             file=site.path,
             line=_site_line(site, spec, "statistic"),
         )
-    file = raw.file
-    n = len(raw.lines)
-    lines = raw.lines
-    status = np.zeros(n, dtype=np.int8)
-    findings: list[Finding] = []
+    rows = _Rows(key, raw.file, raw.lines, np.zeros(len(raw.lines), dtype=np.int8), [])
+    stamps = _parse_dates(rows, raw, spec, site, what)
+    values, bad_num = _parse_values(rows, raw, spec, stamps, what)
+    si = conv.apply(values)
+    _reject_impossible(rows, role, si, stamps.t_ns)
+    keep = _ordered_readings(rows, stamps, si)
+    readings = _Readings(stamps.t_ns[keep], si[keep], keep)
+    steps = np.diff(stamps.a_ns[keep])
+    steps = steps[steps > 0]
+    interval_s = float(np.median(steps)) / 1e9 if steps.size else SECONDS_PER_DAY
+    subdaily = interval_s < 0.9 * SECONDS_PER_DAY
+    sparse = role in SPARSE_ROLES  # field checks: a few readings a year by design
+    if interval_s >= 1.9 * SECONDS_PER_DAY and steps.size >= 10 and not sparse:
+        _warn_coarse(what, rows.file, interval_s / SECONDS_PER_DAY, conv.amount)
+    resolution = None
+    if spec.resolution is not None:
+        resolution = abs(float(conv.scale)) * float(spec.resolution)
+    check_spikes = role in qa.SPIKE_ROLES
+    spike_days = np.zeros(0, dtype=np.int64)
+    if check_spikes and subdaily:
+        readings, spike_days = _subdaily_spikes(rows, readings, site, resolution)
+    day = _daily_values(
+        rows, readings, stamps, spec, statistic, conv, interval_s if subdaily else None
+    )
+    if day is None:
+        example = str(raw.values[bad_num].iloc[0]).strip() if bad_num.any() else None
+        raise InputError(
+            f"{what}: no usable reading in the file{_why_none(rows.findings, example)}",
+            file=rows.file,
+        )
+    if spike_days.size:
+        day.flags[spike_days[np.isin(spike_days, day.days)] - day.days.min()] = True
+    if check_spikes and not subdaily:
+        _daily_spikes(rows, readings, day, site, resolution)
+    _daily_checks(rows, stamps, readings, day, site, role=role, units=units, sparse=sparse)
+    sub = (
+        pd.Series(readings.r_val, index=pd.DatetimeIndex(readings.r_ns), name=key)
+        if (role == "stage" and subdaily) or sparse
+        else None
+    )
+    sub = _apply_corrections(rows, day, site, sub, sparse=sparse, kind=kind)
+    return _loaded(rows, day, spec, role=role, units=units, statistic=statistic, sub=sub)
 
-    def add(kind_: str, first, last, count: int, action: str, detail: str = "") -> None:
-        findings.append(Finding(key, kind_, first, last, int(count), action, detail))
 
-    # 2. timestamps --------------------------------------------------------------------------
+@dataclass
+class _Rows:
+    """The rows of one file while it is read: each row's status (used, flagged, rejected) and
+    the findings so far (module-private working state of :func:`load_series`)."""
+
+    key: str
+    file: str
+    lines: np.ndarray
+    status: np.ndarray
+    findings: list[Finding]
+
+    def add(self, kind_: str, first, last, count: int, action: str, detail: str = "") -> None:
+        self.findings.append(Finding(self.key, kind_, first, last, int(count), action, detail))
+
+
+@dataclass(frozen=True)
+class _Stamps:
+    """Each row's time: ``t_ns`` on the site's local clock (days and dates in messages),
+    ``a_ns`` without daylight-saving jumps (order, repeats, intervals), ``nat`` no date."""
+
+    t_ns: np.ndarray
+    a_ns: np.ndarray
+    nat: np.ndarray
+
+
+@dataclass(frozen=True)
+class _Readings:
+    """The readings kept, in time order: local times (ns), SI values, and their row indices."""
+
+    r_ns: np.ndarray
+    r_val: np.ndarray
+    keep: np.ndarray
+
+
+@dataclass
+class _Days:
+    """The daily series being built: first day, day numbers with readings, values and flags."""
+
+    index: pd.DatetimeIndex
+    days: np.ndarray
+    full: np.ndarray
+    flags: np.ndarray
+
+
+def _parse_dates(rows: _Rows, raw: RawSeries, spec: SeriesSpec, site: Site, what: str) -> _Stamps:
+    """Step 2: timestamps on the site's clock; rows without a parsable date are rejected."""
     from .dates import parse_timestamps
 
+    role, file, lines, n = spec.role, rows.file, rows.lines, len(rows.lines)
+    add, status = rows.add, rows.status
     check_zone(site.site.timezone, site)
     if spec.source_timezone:
         check_zone(spec.source_timezone, site, spec)
@@ -359,7 +441,16 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
             f"rows without a date at {_lines_text(file, lines[no_date])}",
         )
 
-    # 3. numbers -----------------------------------------------------------------------------
+    return _Stamps(t_ns, a_ns, nat)
+
+
+def _parse_values(
+    rows: _Rows, raw: RawSeries, spec: SeriesSpec, stamps: _Stamps, what: str
+) -> tuple[np.ndarray, np.ndarray]:
+    """Step 3: numbers (a value the delimiter settings leave ambiguous stops the reading);
+    non-numeric and empty cells are rejected, counted by token."""
+    role, file, lines, add, status = spec.role, rows.file, rows.lines, rows.add, rows.status
+    t_ns, nat = stamps.t_ns, stamps.nat
     unclear = ambiguous_numbers(raw.values, raw.decimal, spec.thousands)
     if unclear.any():
         i = int(np.flatnonzero(unclear)[0])
@@ -401,8 +492,12 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
             "rows without a value",
         )
 
-    # 4. SI and impossible values ------------------------------------------------------------
-    si = conv.apply(values)
+    return values, bad_num
+
+
+def _reject_impossible(rows: _Rows, role: str, si: np.ndarray, t_ns: np.ndarray) -> None:
+    """Step 4: values impossible for the role (negative flows, humidity above 100 %)."""
+    add, status = rows.add, rows.status
     negative, out_range = qa.out_of_bounds(role, si)
     for mask, kind_, words in (
         (negative, "negative", "negative values are impossible for this role"),
@@ -414,7 +509,12 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
             tn = t_ns[mask]
             add(kind_, _iso(tn.min()), _iso(tn.max()), mask.sum(), "rejected", words)
 
-    # 5. order and duplicates ----------------------------------------------------------------
+
+def _ordered_readings(rows: _Rows, stamps: _Stamps, si: np.ndarray) -> np.ndarray:
+    """Step 5: sort by time, merge repeated equal readings, set conflicting repeats missing;
+    returns the row indices kept, in time order."""
+    add, status, file, lines = rows.add, rows.status, rows.file, rows.lines
+    t_ns, a_ns = stamps.t_ns, stamps.a_ns
     valid = np.flatnonzero(status == _USED)
     dup = qa.order_and_duplicates(a_ns[valid].view("datetime64[ns]"), si[valid])
     if dup.out_of_order:
@@ -451,53 +551,66 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
         )
     keep = valid[dup.order]
     keep = keep[~dup.merged[dup.order] & ~dup.conflict[dup.order]]
-    r_ns = t_ns[keep]
-    r_val = si[keep]
+    return keep
 
-    # 6-7. spikes and days --------------------------------------------------------------------
-    steps = np.diff(a_ns[keep])
-    steps = steps[steps > 0]
-    interval_s = float(np.median(steps)) / 1e9 if steps.size else SECONDS_PER_DAY
-    subdaily = interval_s < 0.9 * SECONDS_PER_DAY
-    sparse = role in SPARSE_ROLES  # field checks: a few readings a year by design
-    if interval_s >= 1.9 * SECONDS_PER_DAY and steps.size >= 10 and not sparse:
-        _warn_coarse(what, file, interval_s / SECONDS_PER_DAY, conv.amount)
-    resolution = None
-    if spec.resolution is not None:
-        resolution = abs(float(conv.scale)) * float(spec.resolution)
-    check_spikes = role in qa.SPIKE_ROLES
+
+def _subdaily_spikes(
+    rows: _Rows, readings: _Readings, site: Site, resolution: float | None
+) -> tuple[_Readings, np.ndarray]:
+    """Step 6 on sub-daily readings: spikes kept and flagged (their days returned) or removed."""
+    add, status = rows.add, rows.status
+    r_ns, r_val, keep = readings.r_ns, readings.r_val, readings.keep
     spike_days = np.zeros(0, dtype=np.int64)
-    if check_spikes and subdaily:
-        spk = qa.spikes(r_val, site.qa.spike_window, site.qa.spike_threshold, resolution)
-        if spk.any():
-            tn = r_ns[spk]
-            remove = site.qa.spikes == "remove"
-            sday = np.floor_divide(tn, _NS_PER_DAY)
-            uday = np.unique(sday)
-            # one finding per run of consecutive spike days; count = spike readings
-            breaks = np.flatnonzero(np.diff(uday) > 1) + 1
-            for group in np.split(uday, breaks):
-                in_group = (sday >= group[0]) & (sday <= group[-1])
-                add(
-                    "spike",
-                    _iso(tn[in_group].min()),
-                    _iso(tn[in_group].max()),
-                    in_group.sum(),
-                    "removed" if remove else "kept, flagged",
-                    "isolated reading: robust z-score above threshold, back at once",
-                )
-            if remove:
-                status[keep[spk]] = _REJECTED
-                r_ns, r_val, keep = r_ns[~spk], r_val[~spk], keep[~spk]
-            else:
-                status[keep[spk]] = _FLAGGED
-                spike_days = uday
+    spk = qa.spikes(r_val, site.qa.spike_window, site.qa.spike_threshold, resolution)
+    if spk.any():
+        tn = r_ns[spk]
+        remove = site.qa.spikes == "remove"
+        sday = np.floor_divide(tn, _NS_PER_DAY)
+        uday = np.unique(sday)
+        # one finding per run of consecutive spike days; count = spike readings
+        breaks = np.flatnonzero(np.diff(uday) > 1) + 1
+        for group in np.split(uday, breaks):
+            in_group = (sday >= group[0]) & (sday <= group[-1])
+            add(
+                "spike",
+                _iso(tn[in_group].min()),
+                _iso(tn[in_group].max()),
+                in_group.sum(),
+                "removed" if remove else "kept, flagged",
+                "isolated reading: robust z-score above threshold, back at once",
+            )
+        if remove:
+            status[keep[spk]] = _REJECTED
+            r_ns, r_val, keep = r_ns[~spk], r_val[~spk], keep[~spk]
+        else:
+            status[keep[spk]] = _FLAGGED
+            spike_days = uday
+    return _Readings(r_ns, r_val, keep), spike_days
+
+
+def _daily_values(
+    rows: _Rows,
+    readings: _Readings,
+    stamps: _Stamps,
+    spec: SeriesSpec,
+    statistic: str,
+    conv: Conversion,
+    interval_s: float | None,
+) -> _Days | None:
+    """Step 7: the readings made into days (a sub-daily day needs ``coverage`` of its expected
+    readings, ``interval_s`` apart); None when no day has a reading."""
+    import pandas as pd
+
+    add, status = rows.add, rows.status
+    r_ns, r_val, keep, t_ns = readings.r_ns, readings.r_val, readings.keep, stamps.t_ns
+    kind = ROLE_KINDS[spec.role]
+    subdaily = interval_s is not None
     days, daily_vals, counts = aggregate_daily(r_ns, r_val, statistic)
     if conv.amount and kind == "flow":
         daily_vals = daily_vals / SECONDS_PER_DAY  # m³ per day -> m³/s
     low_days = np.zeros(0, dtype=np.int64)
     if subdaily:
-        expected = SECONDS_PER_DAY / interval_s
+        expected = SECONDS_PER_DAY / float(interval_s)
         low = counts < spec.coverage * expected
         if low.any():
             low_days = days[low]
@@ -505,18 +618,12 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
             status[keep[np.isin(row_day, low_days)]] = _REJECTED
             daily_vals = np.where(low, np.nan, daily_vals)
     if days.size == 0:
-        example = str(raw.values[bad_num].iloc[0]).strip() if bad_num.any() else None
-        raise InputError(
-            f"{what}: no usable reading in the file{_why_none(findings, example)}", file=file
-        )
+        return None
     index = pd.date_range(_iso_day(days.min()), _iso_day(days.max()), freq="D", name="date")
     full = np.full(len(index), np.nan)
     pos = days - days.min()
     full[pos] = daily_vals
-    daily = pd.Series(full, index=index, name=key)
     flags = np.zeros(len(index), dtype=bool)
-    if spike_days.size:
-        flags[spike_days[np.isin(spike_days, days)] - days.min()] = True
     if low_days.size:
         low_mask = np.zeros(len(index), dtype=bool)
         low_mask[low_days - days.min()] = True
@@ -529,32 +636,56 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
                 "set missing",
                 f"fewer than {spec.coverage:.0%} of {expected:.4g} expected readings a day",
             )
-    if check_spikes and not subdaily:
-        spk = qa.spikes(full, site.qa.spike_window, site.qa.spike_threshold, resolution)
-        if spk.any():
-            which = np.flatnonzero(spk)
-            row_day = np.floor_divide(r_ns, _NS_PER_DAY) - days.min()
-            rows = keep[np.isin(row_day, which)]
-            if site.qa.spikes == "remove":
-                full[spk] = np.nan
-                status[rows] = _REJECTED
-                action = "removed"
-            else:
-                flags |= spk
-                status[rows] = np.where(status[rows] == _USED, _FLAGGED, status[rows])
-                action = "kept, flagged"
-            for a, b in qa.runs(spk):
-                add(
-                    "spike",
-                    index[a].date().isoformat(),
-                    index[b - 1].date().isoformat(),
-                    b - a,
-                    action,
-                    "isolated reading: robust z-score above threshold, back at once",
-                )
-            daily = pd.Series(full, index=index, name=key)
+    return _Days(index, days, full, flags)
 
-    # 8. daily checks -------------------------------------------------------------------------
+
+def _daily_spikes(
+    rows: _Rows, readings: _Readings, day: _Days, site: Site, resolution: float | None
+) -> None:
+    """Step 6 on daily values: spikes kept and flagged, or removed."""
+    add, status = rows.add, rows.status
+    r_ns, keep = readings.r_ns, readings.keep
+    index, days, full, flags = day.index, day.days, day.full, day.flags
+    spk = qa.spikes(full, site.qa.spike_window, site.qa.spike_threshold, resolution)
+    if spk.any():
+        which = np.flatnonzero(spk)
+        row_day = np.floor_divide(r_ns, _NS_PER_DAY) - days.min()
+        picked = keep[np.isin(row_day, which)]
+        if site.qa.spikes == "remove":
+            full[spk] = np.nan
+            status[picked] = _REJECTED
+            action = "removed"
+        else:
+            flags |= spk
+            status[picked] = np.where(status[picked] == _USED, _FLAGGED, status[picked])
+            action = "kept, flagged"
+        for a, b in qa.runs(spk):
+            add(
+                "spike",
+                index[a].date().isoformat(),
+                index[b - 1].date().isoformat(),
+                b - a,
+                action,
+                "isolated reading: robust z-score above threshold, back at once",
+            )
+
+
+def _daily_checks(
+    rows: _Rows,
+    stamps: _Stamps,
+    readings: _Readings,
+    day: _Days,
+    site: Site,
+    *,
+    role: str,
+    units: str,
+    sparse: bool,
+) -> None:
+    """Step 8: gaps, flat-lines (stuck sensor) on state series, implausible units."""
+    add, status, key, kind = rows.add, rows.status, rows.key, ROLE_KINDS[role]
+    t_ns, nat = stamps.t_ns, stamps.nat
+    r_ns, keep = readings.r_ns, readings.keep
+    index, days, full, flags = day.index, day.days, day.full, day.flags
     # gaps: days without any row in the file (days whose rows were rejected are reported by
     # the rejection findings, low-coverage days by their own)
     row_days = np.floor_divide(t_ns[~nat], _NS_PER_DAY) - days.min()
@@ -610,12 +741,15 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
             f"declared {units!r}: {reason}",
         )
 
-    # 9. corrections --------------------------------------------------------------------------
-    sub = (
-        pd.Series(r_val, index=pd.DatetimeIndex(r_ns), name=key)
-        if (role == "stage" and subdaily) or sparse
-        else None
-    )
+
+def _apply_corrections(
+    rows: _Rows, day: _Days, site: Site, sub: pd.Series | None, *, sparse: bool, kind: str
+) -> pd.Series | None:
+    """Step 9: the site file's accepted corrections of this series; returns the sub-daily
+    readings with them applied (the daily values are corrected in place)."""
+    import pandas as pd
+
+    add, key, index, full = rows.add, rows.key, day.index, day.full
     for corr in site.correction:
         if corr.series != key:
             continue
@@ -637,8 +771,26 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
             + f" {INTERNAL_UNITS[kind]}"
             + (f": {corr.reason}" if corr.reason else ""),
         )
-    daily = pd.Series(full, index=index, name=key)
+    day.full = full
+    return sub
 
+
+def _loaded(
+    rows: _Rows,
+    day: _Days,
+    spec: SeriesSpec,
+    *,
+    role: str,
+    units: str,
+    statistic: str,
+    sub: pd.Series | None,
+) -> LoadedSeries:
+    """The series read: daily values, flags, findings and the row accounting."""
+    import pandas as pd
+
+    key, file, status, n = rows.key, rows.file, rows.status, len(rows.lines)
+    index, full, flags, kind = day.index, day.full, day.flags, ROLE_KINDS[role]
+    daily = pd.Series(full, index=index, name=key)
     used = int(np.count_nonzero(status == _USED))
     flagged_rows = int(np.count_nonzero(status == _FLAGGED))
     rejected = int(np.count_nonzero(status == _REJECTED))
@@ -663,7 +815,7 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
         info=info,
         daily=daily,
         flags=pd.Series(flags, index=index, name=key),
-        findings=tuple(findings),
+        findings=tuple(rows.findings),
         account=account,
         subdaily=sub,
     )

@@ -1188,7 +1188,7 @@ def _write_report(
     from .._json import dumps
     from ..analysis import Lake
     from ..io.output import unique_slugs
-    from .html import CAUTIONS, png_base64, render
+    from .html import CAUTIONS, render
 
     seed = int(site.site.seed if seed is None else seed)
     # the outlook draws from seed + 1, so that its streams are not the balance's
@@ -1270,30 +1270,7 @@ def _write_report(
         summary=summary,
         key_numbers=tiles,
         units_note=_units_note(fmt),
-        sections=[
-            {
-                "id": s.id,
-                "title": s.title,
-                "paragraphs": s.paragraphs,
-                "missing": s.missing,
-                "figures": [
-                    {"id": f.id, "caption": f.caption, "alt": f.alt, "png": png_base64(f.png)}
-                    for f in s.figures
-                ],
-                "tables": [
-                    {
-                        "id": t.id,
-                        "title": t.title,
-                        "columns": t.headers(fmt),
-                        "rows": t.rows(fmt),
-                        "note": t.note,
-                        "wide": t.frame.shape[1] > WIDE_COLUMNS,
-                    }
-                    for t in s.tables
-                ],
-            }
-            for s in sections
-        ],
+        sections=[_section_for_template(s, fmt) for s in sections],
         provenance=prov,
         method_notes=[]
         if run.get("balance") is None
@@ -1337,6 +1314,33 @@ def _write_report(
         messages=tuple(messages),
         filing=None if filing is None else filing.to_dict(),
     )
+
+
+def _section_for_template(s: Section, fmt: Any) -> dict[str, Any]:
+    """One section as the HTML template reads it (numbers already formatted by ``fmt``)."""
+    from .html import png_base64
+
+    return {
+        "id": s.id,
+        "title": s.title,
+        "paragraphs": s.paragraphs,
+        "missing": s.missing,
+        "figures": [
+            {"id": f.id, "caption": f.caption, "alt": f.alt, "png": png_base64(f.png)}
+            for f in s.figures
+        ],
+        "tables": [
+            {
+                "id": t.id,
+                "title": t.title,
+                "columns": t.headers(fmt),
+                "rows": t.rows(fmt),
+                "note": t.note,
+                "wide": t.frame.shape[1] > WIDE_COLUMNS,
+            }
+            for t in s.tables
+        ],
+    }
 
 
 #: A table with more columns than this is printed on a landscape page.
