@@ -57,8 +57,6 @@ FORBIDDEN = (
 #: Functions allowed to be longer than MAX_LINES or to take more positional arguments, and why.
 LONG_FUNCTIONS: dict[str, str] = {
     # being split in this round (remove each entry as its module is split)
-    "lakebalance.drawdown.engine._day_step": "the engine's slow path is being reworked",
-    "lakebalance.drawdown.engine._table_path": "the engine's slow path is being reworked",
     "lakebalance.io._text.read_text_table": "reader hardening in progress",
     "lakebalance.io.series.load_series": "reader hardening in progress",
 }

@@ -198,6 +198,7 @@ class EngineResult:
     cut: np.ndarray
     crossing_day: dict[str, np.ndarray]
     refined_member_days: int = 0  # member-days re-solved from the exact path on the grid
+    corrected_member_days: int = 0  # rough member-days Newton-corrected on the time equation
 
 
 class _Eval:
@@ -219,6 +220,7 @@ class _Eval:
         self.keep_hi = t.stage0_m + 2.0 * (t.size - 1) * t.step_m
         self.inv_ramp = 1.0 / t.ramp_m if t.ramp_m > 0 else 0.0
         self.full_draw_m = t.floor_m + t.ramp_m  # the intake draws in full from here up
+        self.bottom_m = t.bottom_m
 
     def subset(self, idx: np.ndarray) -> _Eval:
         """The same evaluator for the members ``idx``."""
@@ -294,6 +296,76 @@ def _update(
     return new, g + dg * (h0 - c), draw, weight, z
 
 
+def _settle(
+    ev: _Eval,
+    state: list[np.ndarray],
+    idx: np.ndarray,
+    h0: np.ndarray,
+    forcing: tuple[np.ndarray, np.ndarray, np.ndarray],
+    dt: float | np.ndarray,
+    tol_m: float,
+    span_m: float,
+) -> np.ndarray | None:
+    """Go on with plain fixed-point iterations for the members ``idx`` still moving.
+
+    ``state`` is ``[c, lin0, draw, weight, z]`` (updated in place). Returns the members that do
+    not settle within six more iterations (None when all do); their stage is kept within the
+    grid's span of ``h0``.
+    """
+    a, inflow, demand = forcing
+    sub = ev.subset(idx)
+    h0_b, a_b, in_b, dem_b, dt_b = h0[idx], a[idx], inflow[idx], demand[idx], _pick(dt, idx)
+    c_b = state[0][idx]
+    for _ in range(6):
+        new, lin_b, draw_b, w_b, z_b = _update(sub, h0_b, c_b, a_b, in_b, dem_b, dt_b)
+        moved = np.abs(new - c_b)
+        c_b = new
+        for arr, val in zip(state, (c_b, lin_b, draw_b, w_b, z_b)):
+            arr[idx] = val
+        keep = ~(moved <= tol_m)
+        if not keep.any():
+            return None
+        k = np.flatnonzero(keep)
+        idx, sub = idx[keep], sub.subset(k)
+        h0_b, a_b, in_b, dem_b = h0_b[keep], a_b[keep], in_b[keep], dem_b[keep]
+        dt_b, c_b = _pick(dt_b, k), c_b[keep]
+    state[0][idx] = np.clip(np.nan_to_num(c_b, nan=0.0) - h0_b, -span_m, span_m) + h0_b
+    return idx
+
+
+def _step_error(
+    ev: _Eval,
+    h0: np.ndarray,
+    c: np.ndarray,
+    g0: np.ndarray,
+    lin0: np.ndarray,
+    weight: np.ndarray,
+    zc: np.ndarray,
+    forcing: tuple[np.ndarray, np.ndarray, np.ndarray],
+    *,
+    dt: float | np.ndarray,
+) -> np.ndarray:
+    """Error estimate (m) of the collocation step from ``h0`` to ``c``.
+
+    The remainder ``|g(h0) - (g(c) + g'(c)(h0 - c))|`` of the linear model falls off as the
+    square of the distance to ``c`` along the path, so a third of it, weighted by ``E phi`` (how
+    long the path stays away from ``c``), is the first estimate. A path that starts much slower
+    than the linear model (rising from a slow regime into a stiff one) arrives late and has not
+    relaxed by the end: the second estimate is the move times the relative remainder, damped by
+    the relaxation left after the arrival time estimated from the speeds at ``h0`` and halfway
+    (harmonic mean: a path that slows on the way, at the intake ramp or a sill, arrives late).
+    """
+    rem = np.abs(g0 - lin0)
+    est = rem * weight / 3.0
+    move = np.abs(c - h0)
+    speed = np.abs(g0) + np.abs(lin0) + 1e-300
+    gm, _, _ = ev(0.5 * (h0 + c), *forcing)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        arrive = 0.5 * move * (1.0 / np.abs(g0) + 1.0 / np.abs(gm))
+        late = np.fmax(1.0 - arrive / dt, 0.0)  # a member that does not move: 0 (not NaN)
+    return np.maximum(est, move * (rem / speed) * np.exp(np.maximum(zc, -700.0) * late))
+
+
 def _day_step(
     ev: _Eval,
     h0: np.ndarray,
@@ -301,6 +373,7 @@ def _day_step(
     inflow: np.ndarray,
     demand: np.ndarray,
     dt: float | np.ndarray,
+    *,
     iterations: int,
     tol_m: float,
     span_m: float,
@@ -309,9 +382,8 @@ def _day_step(
 
     Returns (stage, draw, error estimate in m). ``iterations`` plain fixed-point iterations run
     on all members after the exponential Euler start; members whose last update still moved more
-    than ``tol_m`` go on with a few more plain iterations; those that still do not settle get an
-    infinite estimate, so that the caller re-solves them (:func:`_table_path`). The error
-    estimate is the remainder of the linear model at ``h0`` times the weight ``E phi``.
+    than ``tol_m`` go on (:func:`_settle`); those that still do not settle get an infinite
+    estimate, so that the caller corrects them. The estimate is :func:`_step_error`.
     """
     c, g0, draw, weight, zc = _update(ev, h0, h0, a, inflow, demand, dt)
     lin0 = g0
@@ -322,45 +394,221 @@ def _day_step(
     bad = ~(np.abs(c - prev) <= tol_m)
     unsettled = None
     if bad.any():
-        idx = np.flatnonzero(bad)
-        c, lin0, draw, weight = c.copy(), lin0.copy(), draw.copy(), weight.copy()
-        zc = zc.copy()
-        sub = ev.subset(idx)
-        h0_b, a_b, in_b, dem_b, dt_b = h0[idx], a[idx], inflow[idx], demand[idx], _pick(dt, idx)
-        c_b = c[idx]
-        for _ in range(6):  # plain iterations go on for the members still moving
-            new, lin_b, draw_b, w_b, z_b = _update(sub, h0_b, c_b, a_b, in_b, dem_b, dt_b)
-            moved = np.abs(new - c_b)
-            c_b = new
-            c[idx], lin0[idx], draw[idx], weight[idx], zc[idx] = c_b, lin_b, draw_b, w_b, z_b
-            keep = ~(moved <= tol_m)
-            if not keep.any():
-                break
-            idx, sub = idx[keep], sub.subset(np.flatnonzero(keep))
-            h0_b, a_b, in_b, dem_b = h0_b[keep], a_b[keep], in_b[keep], dem_b[keep]
-            dt_b, c_b = _pick(dt_b, np.flatnonzero(keep)), c_b[keep]
-        else:
-            # not settled: the caller re-solves these from the day's exact path on the grid
-            unsettled = idx
-            c[idx] = np.clip(np.nan_to_num(c_b, nan=0.0) - h0_b, -span_m, span_m) + h0_b
-    # the remainder falls off as the square of the distance to c along the path: a third of it
-    rem = np.abs(g0 - lin0)
-    est = rem * weight / 3.0
-    # a path that starts much slower than the linear model (rising from a slow regime into a
-    # stiff one) arrives late and has not relaxed by the end: the move times the relative
-    # remainder, damped by the relaxation left after the estimated arrival time
-    move = np.abs(c - h0)
-    speed = np.abs(g0) + np.abs(lin0) + 1e-300
-    # arrival time from the speeds at h0 and halfway to c (harmonic mean): a path that slows down
-    # on the way (a drop of g at the intake ramp or an outlet sill) arrives late or never
-    gm, _, _ = ev(0.5 * (h0 + c), a, inflow, demand)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        arrive = 0.5 * move * (1.0 / np.abs(g0) + 1.0 / np.abs(gm))
-        late = np.fmax(1.0 - arrive / dt, 0.0)  # a member that does not move: 0 (not NaN)
-    est = np.maximum(est, move * (rem / speed) * np.exp(np.maximum(zc, -700.0) * late))
+        state = [c.copy(), lin0.copy(), draw.copy(), weight.copy(), zc.copy()]
+        unsettled = _settle(
+            ev, state, np.flatnonzero(bad), h0, (a, inflow, demand), dt, tol_m, span_m
+        )
+        c, lin0, draw, weight, zc = state
+    est = _step_error(ev, h0, c, g0, lin0, weight, zc, (a, inflow, demand), dt=dt)
     if unsettled is not None:
         est[unsettled] = np.inf
     return c, draw, est
+
+
+#: Gauss-Legendre nodes of the correction's quadrature (:func:`_time_correction`).
+TIME_NODES = 3
+
+
+def _time_correction(
+    ev: _Eval,
+    h0: np.ndarray,
+    c: np.ndarray,
+    forcing: tuple[np.ndarray, np.ndarray, np.ndarray],
+    dt: float,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """One Newton step on the exact time equation ``T(c) = dt`` of the day's path.
+
+    Within a day the forcing is constant, so the path from ``h0`` is monotone and reaches ``c``
+    after ``T(c) = integral_{h0}^{c} ds / g(s)``. The integrand is singular at an equilibrium;
+    its singular part is taken by the tangent model ``l(s) = g(c) + g'(c)(s - c)``, whose time is
+    closed-form, and the rest by Gauss-Legendre quadrature,
+
+    .. math::
+
+        T(c) = \\frac{1}{g'(c)} \\ln\\frac{g(c)}{l(h_0)}
+             + \\int_{h_0}^{c} \\frac{l(s) - g(s)}{g(s)\\,l(s)}\\,ds,
+
+    whose integrand stays bounded (``-g''/(2 g'^2)``) as ``g(c)`` tends to zero. Newton's step on
+    ``T`` (``dT/dc = 1/g(c)``) is ``c + (dt - T(c)) g(c)``; it vanishes at an equilibrium, where
+    the collocation step is already exact. This removes the error of the linear model where
+    ``g`` bends sharply, as a power-law outlet ``C (h - e)^b`` does near its sill (``g''`` grows
+    as ``(h - e)^(b - 2)``), at a cost of ``TIME_NODES + 1`` evaluations.
+
+    Returns (new stage, size of the step in m, draw at the new stage, ``ok``): ``ok`` is False
+    where the correction cannot be trusted (``g`` changes sign on ``[h0, c]``, i.e. ``c`` lies
+    beyond an equilibrium, or the linear model has no path to ``c``).
+    """
+    g, dg, _ = ev(c, *forcing)
+    g0, _, _ = ev(h0, *forcing)
+    x = dg * (h0 - c) / np.where(g != 0.0, g, 1.0)  # l(h0) / g(c) - 1
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        t_lin = np.where(
+            np.abs(x) < 1e-8,
+            (c - h0) / g * (1.0 - 0.5 * x),
+            -np.log1p(x) / np.where(dg != 0.0, dg, 1.0),
+        )
+        ok = (x > -1.0) & (g * g0 > 0.0) & np.isfinite(t_lin)
+        nodes, weights = gauss_legendre(TIME_NODES)
+        half = 0.5 * (c - h0)
+        mid = 0.5 * (c + h0)
+        rest = np.zeros_like(c)
+        for xi, wi in zip(nodes, weights):
+            s = mid + half * xi
+            gs, _, _ = ev(s, *forcing)
+            ok &= gs * g0 > 0.0
+            ls = g + dg * (s - c)
+            rest += wi * (ls - gs) / (gs * ls)
+        step = (dt - t_lin - rest * half) * g
+    ok &= np.isfinite(step)
+    step = np.where(ok, step, 0.0)
+    new = c + step
+    _, _, draw = ev(new, *forcing)
+    return new, np.abs(step), draw, ok
+
+
+def _correct(
+    ev: _Eval,
+    h0: np.ndarray,
+    c: np.ndarray,
+    forcing: tuple[np.ndarray, np.ndarray, np.ndarray],
+    dt: float,
+    err_m: float,
+    rounds: int = 3,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Newton-correct the day-end stage of rough members (:func:`_time_correction`).
+
+    A member is accepted when a correction moved it by at most ``err_m`` (Newton converges
+    quadratically, so its remaining error is well below the last step). Returns (stage, draw,
+    members not accepted within ``rounds`` corrections or not correctable: indices into ``h0``).
+    """
+    out_h = c.copy()
+    out_d = np.zeros(h0.size)
+    failed = []
+    todo = np.arange(h0.size)
+    sub, f, h0_t, c_t = ev, forcing, h0, c
+    for _ in range(rounds):
+        new, moved, draw, ok = _time_correction(sub, h0_t, c_t, f, dt)
+        out_h[todo], out_d[todo] = new, draw
+        failed.append(todo[~ok])
+        go = ok & (moved > err_m)
+        k = np.flatnonzero(go)
+        todo = todo[k]
+        if k.size == 0:
+            break
+        sub, f = sub.subset(k), tuple(x[k] for x in f)
+        h0_t, c_t = h0_t[k], new[k]
+    failed.append(todo)  # still moving after the last round
+    return out_h, out_d, np.concatenate(failed)
+
+
+@dataclass
+class _Walk:
+    """State of the grid walk of :func:`_table_path` (one entry per member of the day)."""
+
+    s: np.ndarray  # direction of the path (+1 rising, -1 falling)
+    node: np.ndarray  # next grid node (index, as float)
+    p: np.ndarray  # stage where the walk stands (m)
+    gp: np.ndarray  # g there (m/s)
+    dp: np.ndarray  # draw there (m³/s)
+    elapsed: np.ndarray  # time walked (s)
+    drawn: np.ndarray  # draw integrated over the time walked (m³)
+    h1: np.ndarray  # day-end stage of the members done (m)
+    mean_draw: np.ndarray  # mean draw over the day of the members done (m³/s)
+
+
+def _segments(
+    ev: _Eval,
+    w: _Walk,
+    active: np.ndarray,
+    chunk: int,
+    forcing: tuple[np.ndarray, np.ndarray, np.ndarray],
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """The next ``chunk`` grid nodes of the members ``active``: (stages with the start point
+    first, g there, draw there, time across each segment; infinite where g changes sign)."""
+    a, inflow, demand = forcing
+    m = active.size
+    j = np.arange(chunk, dtype=float)
+    x = ev.lo + (w.node[active, None] + w.s[active, None] * j) * ev.step_m  # (m, chunk)
+    rep = np.repeat(active, chunk)
+    gx, _, dx = ev.subset(rep)(x.ravel(), a[rep], inflow[rep], demand[rep])
+    pts = np.concatenate([w.p[active, None], x], axis=1)
+    gs = np.concatenate([w.gp[active, None], gx.reshape(m, chunk)], axis=1)
+    ds = np.concatenate([w.dp[active, None], dx.reshape(m, chunk)], axis=1)
+    delta = np.diff(pts, axis=1)
+    ga, gb = gs[:, :-1], gs[:, 1:]
+    through = w.s[active, None] * gb > 0.0  # no equilibrium on the segment
+    with np.errstate(divide="ignore", invalid="ignore"):
+        r = np.where(through, gb / ga - 1.0, 0.0)
+        lr = np.where(np.abs(r) < 1e-8, 1.0 - 0.5 * r, np.log1p(r) / r)
+        t_seg = np.where(through, delta / ga * lr, np.inf)
+    return pts, gs, ds, t_seg
+
+
+def _end_in_segment(
+    ev: _Eval,
+    w: _Walk,
+    ids: np.ndarray,
+    seg: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray],
+    cum: np.ndarray,
+    first: np.ndarray,
+    forcing: tuple[np.ndarray, np.ndarray, np.ndarray],
+    dt: float,
+) -> None:
+    """Finish the members ``ids`` whose day ends on segment ``first`` of this chunk: the
+    position a time ``tau`` into a segment where g is linear is
+    ``p + g_p tau (e^{k tau} - 1)/(k tau)``; the draw is a trapezoid on each segment."""
+    pts, gs, ds, t_seg = seg
+    f = first
+    rows = np.arange(ids.size)
+    before = np.where(f > 0, cum[rows, f - 1], w.elapsed[ids])
+    tau = dt - before
+    pa, pb = pts[rows, f], pts[rows, f + 1]
+    g_a, g_b = gs[rows, f], gs[rows, f + 1]
+    width = pb - pa
+    k = np.where(width != 0.0, (g_b - g_a) / np.where(width != 0.0, width, 1.0), 0.0)
+    z = np.clip(k * tau, -700.0, 700.0)
+    small = np.abs(z) < 1e-10
+    phi = np.where(small, 1.0 + 0.5 * z, np.expm1(z) / np.where(small, 1.0, z))
+    end = pa + g_a * tau * phi
+    end = np.clip(end, np.minimum(pa, pb), np.maximum(pa, pb))
+    end = np.maximum(end, ev.bottom_m)  # stopped at the empty lake
+    finite = np.isfinite(t_seg)
+    seg_draw = np.where(finite, 0.5 * (ds[:, :-1] + ds[:, 1:]), 0.0)
+    seg_t = np.where(finite, t_seg, 0.0)
+    upto = np.arange(t_seg.shape[1])[None, :] < f[:, None]
+    part = (seg_draw * seg_t * upto).sum(axis=1)
+    _, _, d_end = ev.subset(ids)(end, *(x[ids] for x in forcing))
+    part += tau * 0.5 * (ds[rows, f] + d_end)
+    w.h1[ids] = end
+    w.mean_draw[ids] = (w.drawn[ids] + part) / dt
+
+
+def _advance(
+    ev: _Eval,
+    w: _Walk,
+    ids: np.ndarray,
+    seg: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray],
+    cum: np.ndarray,
+    forcing: tuple[np.ndarray, np.ndarray, np.ndarray],
+    dt: float,
+    top_m: float,
+) -> np.ndarray:
+    """Move the members ``ids`` (not done within this chunk) to the chunk's last node; stop
+    those below the empty lake or far above the grid. Returns the members still walking."""
+    pts, gs, ds, t_seg = seg
+    chunk = t_seg.shape[1]
+    w.drawn[ids] += (0.5 * (ds[:, :-1] + ds[:, 1:]) * t_seg).sum(axis=1)
+    w.elapsed[ids] = cum[:, -1]
+    w.p[ids], w.gp[ids], w.dp[ids] = pts[:, -1], gs[:, -1], ds[:, -1]
+    w.node[ids] += w.s[ids] * chunk
+    out = (w.p[ids] <= ev.bottom_m) | (w.p[ids] >= top_m)
+    if out.any():
+        o = ids[out]
+        w.h1[o] = np.maximum(w.p[o], ev.bottom_m)
+        _, _, d_o = ev.subset(o)(w.h1[o], *(x[o] for x in forcing))
+        w.mean_draw[o] = (w.drawn[o] + (dt - w.elapsed[o]) * d_o) / dt
+        ids = ids[~out]
+    return ids
 
 
 def _table_path(
@@ -371,6 +619,7 @@ def _table_path(
     demand: np.ndarray,
     dt: float,
     guess: np.ndarray,
+    *,
     bottom_m: float,
     span_m: float,
     max_chunks: int = 24,
@@ -385,112 +634,97 @@ def _table_path(
 
         t_{pq} = (q - p)\\,\\frac{\\ln(g_q / g_p)}{g_q - g_p},
 
-    infinite when ``g`` changes sign on it (the day's equilibrium), and the position a time
-    ``tau`` after ``p`` is ``p + g_p \\tau (e^{k\\tau} - 1)/(k\\tau)`` with
-    ``k = (g_q - g_p)/(q - p)``. The segment times are summed node by node (in chunks that
-    double in length, all members at once) until they reach ``dt``; no step-size control, no
-    singular quadrature near the equilibrium, and the same answer for slow and stiff lakes.
-    The mean draw is the time-weighted mean over the segments (trapezoid on each).
+    infinite when ``g`` changes sign on it (the day's equilibrium). The segment times are summed
+    node by node (:func:`_segments`, in chunks that double in length, all members at once) until
+    they reach ``dt`` (:func:`_end_in_segment`); no step-size control, no singular quadrature
+    near the equilibrium. The cost grows with the cells crossed, so the engine keeps it for the
+    few member-days the Newton correction cannot settle. ``bottom_m`` is kept for callers; the
+    evaluator's own empty-lake level is used.
 
     Returns (stage, mean draw over the day).
     """
-    n = h0.size
-    g0, _, d0 = ev(h0, a, inflow, demand)
+    forcing = (a, inflow, demand)
+    g0, _, d0 = ev(h0, *forcing)
     s = np.where(g0 > 0.0, 1.0, -1.0)
-    step = ev.step_m
     u0 = (h0 - ev.lo) * ev.inv_step
-    node = np.where(s > 0.0, np.floor(u0) + 1.0, np.ceil(u0) - 1.0)
-    p, gp, dp = h0.copy(), g0.copy(), d0.copy()
-    elapsed = np.zeros(n)
-    drawn = np.zeros(n)
-    h1 = h0.copy()
-    mean_draw = d0.copy()
+    w = _Walk(
+        s=s,
+        node=np.where(s > 0.0, np.floor(u0) + 1.0, np.ceil(u0) - 1.0),
+        p=h0.copy(),
+        gp=g0.copy(),
+        dp=d0.copy(),
+        elapsed=np.zeros(h0.size),
+        drawn=np.zeros(h0.size),
+        h1=h0.copy(),
+        mean_draw=d0.copy(),
+    )
     active = np.flatnonzero(g0 != 0.0)
     # first chunk: the cells to the one-step estimate, with a margin
     cells = np.abs(guess - h0) * ev.inv_step * 1.25 + 8.0
     chunk = int(min(max(np.max(cells[active]) if active.size else 8.0, 8.0), 65536.0))
     budget = 1 << 20  # nodes evaluated per chunk over all members (memory)
-    top = ev.lo + span_m + (ev.nmax + 1) * step
+    top = ev.lo + span_m + (ev.nmax + 1) * ev.step_m
     for _ in range(max_chunks):
         if active.size == 0:
             break
-        m = active.size
-        chunk = max(8, min(chunk, budget // m))
-        j = np.arange(chunk, dtype=float)
-        idx_nodes = node[active, None] + s[active, None] * j  # (m, chunk)
-        x = ev.lo + idx_nodes * step
-        rep = np.repeat(active, chunk)
-        gx, _, dx = ev.subset(rep)(x.ravel(), a[rep], inflow[rep], demand[rep])
-        gx, dx = gx.reshape(m, chunk), dx.reshape(m, chunk)
-        pts = np.concatenate([p[active, None], x], axis=1)
-        gs = np.concatenate([gp[active, None], gx], axis=1)
-        ds = np.concatenate([dp[active, None], dx], axis=1)
-        sa = s[active, None]
-        delta = np.diff(pts, axis=1)
-        ga, gb = gs[:, :-1], gs[:, 1:]
-        through = sa * gb > 0.0  # no equilibrium on the segment
-        with np.errstate(divide="ignore", invalid="ignore"):
-            r = np.where(through, gb / ga - 1.0, 0.0)
-            lr = np.where(np.abs(r) < 1e-8, 1.0 - 0.5 * r, np.log1p(r) / r)
-            t_seg = np.where(through, delta / ga * lr, np.inf)
-        cum = elapsed[active, None] + np.cumsum(t_seg, axis=1)
+        chunk = max(8, min(chunk, budget // active.size))
+        seg = _segments(ev, w, active, chunk, forcing)
+        cum = w.elapsed[active, None] + np.cumsum(seg[3], axis=1)
         reach = cum >= dt
         hit = reach.any(axis=1)
-        first = np.argmax(reach, axis=1)
-        # members that end inside this chunk
-        hi = np.flatnonzero(hit)
-        if hi.size:
-            f = first[hi]
-            before = np.where(f > 0, cum[hi, f - 1], elapsed[active[hi]])
-            tau = dt - before
-            pa, pb = pts[hi, f], pts[hi, f + 1]
-            g_a, g_b = gs[hi, f], gs[hi, f + 1]
-            width = pb - pa
-            k = np.where(width != 0.0, (g_b - g_a) / np.where(width != 0.0, width, 1.0), 0.0)
-            z = np.clip(k * tau, -700.0, 700.0)
-            small = np.abs(z) < 1e-10
-            phi = np.where(small, 1.0 + 0.5 * z, np.expm1(z) / np.where(small, 1.0, z))
-            end = pa + g_a * tau * phi
-            lo_b, hi_b = np.minimum(pa, pb), np.maximum(pa, pb)
-            end = np.maximum(np.clip(end, lo_b, hi_b), bottom_m)  # stopped at the empty lake
-            # draw: trapezoid on the whole segments, then on the last part
-            seg_draw = np.where(np.isfinite(t_seg[hi]), 0.5 * (ds[hi, :-1] + ds[hi, 1:]), 0.0)
-            seg_t = np.where(np.isfinite(t_seg[hi]), t_seg[hi], 0.0)
-            upto = np.arange(chunk)[None, :] < f[:, None]
-            part = (seg_draw * seg_t * upto).sum(axis=1)
-            _, _, d_end = ev.subset(active[hi])(
-                end, a[active[hi]], inflow[active[hi]], demand[active[hi]]
+        if hit.any():
+            sel = np.flatnonzero(hit)
+            part = tuple(x[sel] for x in seg)
+            _end_in_segment(
+                ev, w, active[sel], part, cum[sel], np.argmax(reach[sel], axis=1), forcing, dt
             )
-            part += tau * 0.5 * (ds[hi, f] + d_end)
-            ids = active[hi]
-            h1[ids] = end
-            mean_draw[ids] = (drawn[ids] + part) / dt
-        # the others go on from the chunk's last node
         go = np.flatnonzero(~hit)
-        if go.size:
-            ids = active[go]
-            seg_draw = 0.5 * (ds[go, :-1] + ds[go, 1:])
-            drawn[ids] += (seg_draw * t_seg[go]).sum(axis=1)
-            elapsed[ids] = cum[go, -1]
-            p[ids], gp[ids], dp[ids] = pts[go, -1], gs[go, -1], ds[go, -1]
-            node[ids] += s[ids] * chunk
-            # below the empty lake (the path is stopped there) or far above the grid
-            out = (p[ids] <= bottom_m) | (p[ids] >= top)
-            if out.any():
-                o = ids[out]
-                h1[o] = np.maximum(p[o], bottom_m)
-                rest = dt - elapsed[o]
-                _, _, d_o = ev.subset(o)(h1[o], a[o], inflow[o], demand[o])
-                mean_draw[o] = (drawn[o] + rest * d_o) / dt
-                ids = ids[~out]
-            active = ids
-        else:
-            active = active[:0]
+        part = tuple(x[go] for x in seg)
+        active = _advance(ev, w, active[go], part, cum[go], forcing, dt, top)
         chunk = min(2 * chunk, 65536)
     if active.size:  # not reached within the chunks: where the scan stopped
-        h1[active] = p[active]
-        mean_draw[active] = drawn[active] / np.maximum(elapsed[active], 1e-300)
-    return h1, mean_draw
+        w.h1[active] = w.p[active]
+        w.mean_draw[active] = w.drawn[active] / np.maximum(w.elapsed[active], 1e-300)
+    return w.h1, w.mean_draw
+
+
+def _resolve_rough(
+    ev: _Eval,
+    h0: np.ndarray,
+    h: np.ndarray,
+    draw: np.ndarray,
+    rough: np.ndarray,
+    forcing: tuple[np.ndarray, np.ndarray, np.ndarray],
+    dt: float,
+    *,
+    err_m: float,
+    span_m: float,
+) -> int:
+    """Re-solve the rough member-days ``rough`` in place (``h``, ``draw``).
+
+    First Newton corrections on the day's exact time equation (:func:`_correct`); the few
+    members they cannot settle (a path ending beyond an equilibrium, a step that does not
+    converge) are re-solved from the exact path on the grid (:func:`_table_path`). Returns the
+    number of member-days that needed the grid path.
+    """
+    f = tuple(x[rough] for x in forcing)
+    sub = ev.subset(rough)
+    h_c, d_c, failed = _correct(sub, h0[rough], h[rough], f, dt, err_m)
+    h[rough], draw[rough] = h_c, d_c
+    if failed.size == 0:
+        return 0
+    idx = rough[failed]
+    h_r, draw_r = _table_path(
+        ev.subset(idx),
+        h0[idx],
+        *(x[failed] for x in f),
+        dt,
+        h_c[failed],
+        bottom_m=float(ev.bottom_m),
+        span_m=span_m,
+    )
+    h[idx], draw[idx] = h_r, draw_r
+    return int(idx.size)
 
 
 def crossing_fraction(
@@ -607,7 +841,7 @@ def simulate(
     above = {k: h > v for k, v in levels.items()}
     rules = [(float(t), float(c)) for t, c in restriction]
     bottom = tables.bottom_m
-    refined = 0
+    refined = corrected = 0
     span = tables.top_m - tables.bottom_m
     for d in range(days):
         a = net_depth_m[d] / day_s
@@ -625,25 +859,25 @@ def simulate(
         acc = np.zeros(members)
         for _ in range(substeps):
             h_prev = h
-            h, draw, est = _day_step(ev, h, a, q_in, dem, dt, iterations, tol_m, span)
+            h, draw, est = _day_step(
+                ev, h, a, q_in, dem, dt, iterations=iterations, tol_m=tol_m, span_m=span
+            )
             np.maximum(h, bottom, out=h)
-            rough = est > err_m / substeps
-            if rough.any():
-                idx = np.flatnonzero(rough)
-                h_r, draw_r = _table_path(
-                    ev.subset(idx),
-                    h_prev[idx],
-                    a[idx],
-                    q_in[idx],
-                    dem[idx],
+            rough = np.flatnonzero(est > err_m / substeps)
+            if rough.size:
+                corrected += rough.size
+                refined += _resolve_rough(
+                    ev,
+                    h_prev,
+                    h,
+                    draw,
+                    rough,
+                    (a, q_in, dem),
                     dt,
-                    h[idx],
-                    bottom,
-                    span,
+                    err_m=err_m / substeps,
+                    span_m=span,
                 )
-                h[idx] = np.maximum(h_r, bottom)
-                draw[idx] = draw_r
-                refined += idx.size
+                np.maximum(h, bottom, out=h)
             acc += draw
         drawn[d] = acc / substeps
         stage[d + 1] = h
@@ -663,4 +897,5 @@ def simulate(
         cut=cut_used,
         crossing_day=crossing,
         refined_member_days=refined,
+        corrected_member_days=corrected,
     )
