@@ -50,6 +50,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..operations import RestrictionLevel, RestrictionState
 from ..stats import gauss_legendre
 
 __all__ = ["LakeTables", "EngineResult", "build_tables", "simulate", "crossing_fraction"]
@@ -77,6 +78,10 @@ class LakeTables:
     _inv_area_slope: np.ndarray = field(repr=False, default=None)  # type: ignore[assignment]
     _outflow_flat: np.ndarray = field(repr=False, default=None)  # type: ignore[assignment]
     _outflow_slope: np.ndarray = field(repr=False, default=None)  # type: ignore[assignment]
+    #: (12, grid) gate release by calendar month (m³/s; zero below the dead level), or None
+    release_m3s: np.ndarray | None = None
+    _release_flat: np.ndarray | None = field(repr=False, default=None)
+    _release_slope: np.ndarray | None = field(repr=False, default=None)
 
     @property
     def size(self) -> int:
@@ -110,6 +115,7 @@ def build_tables(
     ramp_m: float = 0.01,
     step_m: float | None = None,
     min_area_m2: float | None = None,
+    gate_release: Callable[[np.ndarray], np.ndarray] | None = None,
 ) -> LakeTables:
     """Sample a lake's stage-dependent terms onto a dense uniform stage grid.
 
@@ -137,6 +143,11 @@ def build_tables(
         Grid spacing (m); default 1 mm, coarsened to keep at most 2**16 nodes.
     min_area_m2 : float, optional
         Smallest area used in ``1/A`` near the empty lake (m²); default 1e-6 of the largest area.
+    gate_release : callable, optional
+        Stage array (n,) -> (12, n) gate release (m³/s) in each calendar month, e.g.
+        :meth:`lakebalance.operations.OperatingRules.gate_release_by_month` (which already keeps
+        the environmental minimum: pass ``environmental_release_m3s=0`` with it). The release
+        stops at the dead level like the withdrawals (the intake ramp).
 
     Returns
     -------
@@ -165,6 +176,11 @@ def build_tables(
         q = np.maximum(q, environmental_release_m3s * ramp)
     if seepage is not None:
         q = q + np.asarray(seepage(grid), dtype=float).reshape(1, n)
+    rel = rel_flat = rel_slope = None
+    if gate_release is not None:
+        rel = np.asarray(gate_release(grid), dtype=float).reshape(12, n) * ramp[None, :]
+        rel_slope = np.concatenate([np.diff(rel, axis=1), np.zeros((12, 1))], axis=1).ravel()
+        rel_flat = np.ascontiguousarray(rel).ravel()
     inv = 1.0 / a
     inv_slope = np.append(np.diff(inv), 0.0)
     q_slope = np.concatenate([np.diff(q, axis=1), np.zeros((q.shape[0], 1))], axis=1)
@@ -180,6 +196,9 @@ def build_tables(
         _inv_area_slope=inv_slope,
         _outflow_flat=np.ascontiguousarray(q).ravel(),
         _outflow_slope=np.ascontiguousarray(q_slope).ravel(),
+        release_m3s=rel,
+        _release_flat=rel_flat,
+        _release_slope=rel_slope,
     )
 
 
@@ -221,6 +240,9 @@ class _Eval:
         self.inv_ramp = 1.0 / t.ramp_m if t.ramp_m > 0 else 0.0
         self.full_draw_m = t.floor_m + t.ramp_m  # the intake draws in full from here up
         self.bottom_m = t.bottom_m
+        self.rel, self.rel_s = t._release_flat, t._release_slope
+        self.rel_off = 0  # calendar month's row of the gate release (month index * grid size)
+        self.size = t.size
 
     def subset(self, idx: np.ndarray) -> _Eval:
         """The same evaluator for the members ``idx``."""
@@ -240,6 +262,11 @@ class _Eval:
         j = i + self.offset
         qs = self.q_s[j]
         q = self.q[j] + u * qs
+        if self.rel is not None:
+            k = i + self.rel_off
+            rs = self.rel_s[k]
+            q += self.rel[k] + u * rs
+            qs = qs + rs
         ias = self.inv_s[i]
         ia = self.inv[i] + u * ias
         if self.inv_ramp and h.size and h.min() >= self.full_draw_m:
@@ -755,6 +782,42 @@ def crossing_fraction(
     return np.clip(np.nan_to_num(t, nan=1.0, posinf=1.0, neginf=1.0), 0.0, 1.0)
 
 
+def _restriction_state(
+    restriction: Sequence[tuple[float, float] | RestrictionLevel], members: int
+) -> RestrictionState | None:
+    """The restriction levels as a state machine over the members (None without levels)."""
+    levels = [
+        r
+        if isinstance(r, RestrictionLevel)
+        else RestrictionLevel(trigger=float(r[0]), cut=float(r[1]))
+        for r in restriction
+    ]
+    return RestrictionState.start(levels, members) if levels else None
+
+
+def _months(
+    months: np.ndarray | None,
+    days: int,
+    tables: LakeTables,
+    restriction: Sequence[tuple[float, float] | RestrictionLevel],
+) -> np.ndarray:
+    """(days,) calendar months; required where a rule varies by month."""
+    if months is not None:
+        m = np.asarray(months, dtype=int).reshape(days)
+        if m.min() < 1 or m.max() > 12:
+            raise ValueError("months must be 1 to 12")
+        return m
+    monthly_rule = tables.release_m3s is not None and np.ptp(tables.release_m3s, axis=0).any()
+    monthly_rule |= any(
+        isinstance(r, RestrictionLevel)
+        and (np.ptp(r.trigger_by_month()) > 0 or np.ptp(r.restore_by_month()) > 0)
+        for r in restriction
+    )
+    if monthly_rule:
+        raise ValueError("a rule varies by month: give the calendar month of each day (months)")
+    return np.ones(days, dtype=int)
+
+
 def simulate(
     tables: LakeTables,
     start_stage_m: np.ndarray | float,
@@ -764,7 +827,8 @@ def simulate(
     *,
     release_m3s: np.ndarray | float = 0.0,
     variant: np.ndarray | None = None,
-    restriction: Sequence[tuple[float, float]] = (),
+    restriction: Sequence[tuple[float, float] | RestrictionLevel] = (),
+    months: np.ndarray | None = None,
     levels: dict[str, float] | None = None,
     substeps: int = 1,
     iterations: int = 2,
@@ -792,9 +856,15 @@ def simulate(
         cut by a restriction.
     variant : ndarray (members,) of int, optional
         Rating variant (row of ``tables.outflow_m3s``) of each member; default 0.
-    restriction : sequence of (trigger_m, cut)
-        Demand is cut by the share ``cut`` (-) on days that start below ``trigger_m`` (m); where
-        several rules apply the largest cut is used.
+    restriction : sequence of RestrictionLevel or (trigger_m, cut)
+        Restriction levels (:class:`lakebalance.operations.RestrictionLevel`: trigger by month,
+        restore level, lag; stepped by :class:`~lakebalance.operations.RestrictionState` on the
+        stage at each day's start). A pair ``(trigger_m, cut)`` is a level with neither
+        hysteresis nor lag: demand is cut by ``cut`` (-) on days that start below ``trigger_m``
+        (m). Where several levels are in force the largest cut is used.
+    months : ndarray (days,) of int, optional
+        Calendar month (1-12) of each day; needed when the tables carry a gate release or a
+        restriction level varies by month.
     levels : dict, optional
         Named stages (m) whose first crossing is recorded: downward when a member starts above the
         level, upward when it starts below.
@@ -839,7 +909,8 @@ def simulate(
     levels = dict(levels or {})
     crossing = {k: np.full(members, np.nan) for k in levels}
     above = {k: h > v for k, v in levels.items()}
-    rules = [(float(t), float(c)) for t, c in restriction]
+    rules = _restriction_state(restriction, members)
+    months = _months(months, days, tables, restriction)
     bottom = tables.bottom_m
     refined = corrected = 0
     span = tables.top_m - tables.bottom_m
@@ -847,10 +918,9 @@ def simulate(
         a = net_depth_m[d] / day_s
         q_in = inflow_m3s[d]
         dem = demand[d]
-        if rules:
-            cut = np.zeros(members)
-            for trig, share in rules:
-                cut = np.maximum(cut, share * (h < trig))
+        ev.rel_off = (int(months[d]) - 1) * ev.size
+        if rules is not None:
+            cut = rules.step(h, int(months[d]))
             cut_used[d] = cut
             dem = dem * (1.0 - cut)
         if has_release:
