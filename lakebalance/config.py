@@ -25,6 +25,7 @@ from typing import Any, Literal, get_args, get_origin
 
 from .balance import UncertaintyOptions
 from .drawdown.options import DemandRule, DrawdownOptions
+from .operations import OperatingRules
 from .errors import ConfigError, OptionError, UnitError, suggest
 from .evaporation.options import EvaporationOptions
 from .flags import FlagOptions
@@ -139,6 +140,7 @@ class Site:
     flags: FlagOptions = field(default_factory=FlagOptions)
     seepage: SeepageOptions = field(default_factory=SeepageOptions)
     drawdown: DrawdownOptions = field(default_factory=DrawdownOptions)
+    operations: OperatingRules = field(default_factory=OperatingRules)
     correction: tuple[Correction, ...] = ()
     report: ReportOptions = field(default_factory=ReportOptions)
 
@@ -165,6 +167,7 @@ _TOP_SECTIONS = {
     "flags": FlagOptions,
     "seepage": SeepageOptions,
     "drawdown": DrawdownOptions,
+    "operations": OperatingRules,
     "report": ReportOptions,
 }
 _INTERNAL_FIELDS = {"role", "key"}
@@ -180,8 +183,14 @@ class _Ctx:
         parts = [p for p in re.split(r"\.|\[\d+\]", where) if p]
         header = None
         pat = r"^\s*\[\[?\s*" + r"\s*\.\s*".join(map(re.escape, parts)) + r"\s*\]\]?\s*(#.*)?$"
+        # the n-th table of an array of tables ("name[n]" at the end of where)
+        nth = re.search(r"\[(\d+)\]$", where)
+        skip = int(nth.group(1)) if nth else 0
         for i, ln in enumerate(self.lines):
             if parts and re.match(pat, ln):
+                if skip:
+                    skip -= 1
+                    continue
                 header = i
                 if key is None:
                     return i + 1

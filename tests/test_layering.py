@@ -41,6 +41,7 @@ COMPUTATIONAL = (
     "flags",
     "seepage",
     "drawdown",
+    "operations",
 )
 #: What they may not import (dotted prefixes; package-relative names or third-party names).
 FORBIDDEN = (
