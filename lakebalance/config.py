@@ -25,10 +25,10 @@ from typing import Any, Literal, get_args, get_origin
 
 from .balance import UncertaintyOptions
 from .drawdown.options import DemandRule, DrawdownOptions
-from .operations import OperatingRules
 from .errors import ConfigError, OptionError, UnitError, suggest
 from .evaporation.options import EvaporationOptions
 from .flags import FlagOptions
+from .operations import OperatingRules
 from .options import Options, setting
 from .outlet.options import OutletComponent, OutletOptions
 from .qa import QAOptions
