@@ -39,6 +39,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass, field
+from pathlib import Path
 
 import numpy as np
 
@@ -176,10 +177,11 @@ class DemandSchedule(Options):
     ``value``, ``monthly``, ``daily`` or ``file``.
 
     ``daily`` is a pattern by day of the year (365 values: 29 February takes 28 February's;
-    366: leap-year days). ``file`` names a table of dated daily values (columns ``date`` and
-    ``demand``, m³/s); its values are used on their dates and, outside them, the mean of the
-    file's values on the same day of the year. The file is read by the caller (it is handed to
-    :meth:`demand_m3s` as ``dated``).
+    366: leap-year days). ``file`` names a table of dated values (columns ``date`` and
+    ``value``, in ``units``; read like a ``[series]`` file, relative to the site file); its
+    values are used on their dates and, outside them, the mean of the file's values on the same
+    day of the year (then the file's mean). The file is read by the caller (it is handed to
+    :meth:`demand_m3s` as ``dated``: this module reads no files).
     """
 
     value: float | None = setting(None, unit="m3/s", low=0.0)
@@ -187,7 +189,8 @@ class DemandSchedule(Options):
         None, unit="m3/s", low=0.0, rule=lambda v: None if v is None else _twelve_or_one(v)
     )
     daily: list[float] | None = setting(None, unit="m3/s", low=0.0, rule=_daily_rule)
-    file: str | None = None
+    file: Path | None = None
+    units: str = "m3/s"  # of the file's values (any flow unit the series readers know)
 
     def __post_init__(self) -> None:
         super().__post_init__()

@@ -128,7 +128,7 @@ def test_demand_schedules():
     # 27 Feb = 57, 28 Feb = 58, 29 Feb takes 28 Feb's, 1 Mar of a leap year = 59 again
     assert daily.demand_m3s(dates) == pytest.approx([57, 58, 58, 59])
     dated = pd.Series([1.0, 3.0], index=pd.to_datetime(["2023-02-28", "2024-02-28"]))
-    from_file = DemandSchedule(file="demand.csv").demand_m3s(dates, dated)
+    from_file = DemandSchedule(file=Path("demand.csv")).demand_m3s(dates, dated)
     # 27 Feb: no value that day of the year, file mean 2.0; 28 Feb 2024: its own value 3.0;
     # 29 Feb and 1 Mar: the day of year 60 and 61 have no values: the mean
     assert from_file == pytest.approx([2.0, 3.0, 2.0, 2.0])

@@ -228,7 +228,10 @@ class _Eval:
         self.inv_step = 1.0 / t.step_m
         self.step_m = t.step_m
         self.nmax = t.size - 2
-        self.offset = np.asarray(variant, dtype=np.intp) * t.size
+        variant = np.asarray(variant, dtype=np.intp)
+        # None: every member reads row 0 (no offset to add)
+        self.offset = variant * t.size if variant.any() else None
+        self.members = variant.size
         self.inv = t._inv_area
         self.inv_s = t._inv_area_slope
         self.q = t._outflow_flat
@@ -248,8 +251,14 @@ class _Eval:
         """The same evaluator for the members ``idx``."""
         new = object.__new__(_Eval)
         new.__dict__.update(self.__dict__)
-        new.offset = self.offset[idx]
+        new.offset = self.offset[idx] if self.offset is not None else None
         return new
+
+    def draw(self, h: np.ndarray, demand: np.ndarray) -> np.ndarray:
+        """Withdrawal drawn at stages ``h`` (m³/s): the demand times the intake ramp."""
+        if self.inv_ramp:
+            return demand * np.clip((h - self.floor) * self.inv_ramp, 0.0, 1.0)
+        return demand * (h > self.floor)
 
     def __call__(
         self, h: np.ndarray, a: np.ndarray, inflow: np.ndarray, demand: np.ndarray
@@ -259,19 +268,22 @@ class _Eval:
         np.maximum(i, 0, out=i)
         np.minimum(i, self.nmax, out=i)
         u -= i
-        j = i + self.offset
+        j = i + self.offset if self.offset is not None else i
         qs = self.q_s[j]
-        q = self.q[j] + u * qs
+        q = self.q[j]
+        q += u * qs
         if self.rel is not None:
             k = i + self.rel_off
             rs = self.rel_s[k]
-            q += self.rel[k] + u * rs
-            qs = qs + rs
+            q += self.rel[k]
+            q += u * rs
+            qs += rs
         ias = self.inv_s[i]
-        ia = self.inv[i] + u * ias
+        ia = self.inv[i]
+        ia += u * ias
+        ddraw = None
         if self.inv_ramp and h.size and h.min() >= self.full_draw_m:
             draw = np.array(demand, dtype=float)  # every member at full draw (a copy)
-            ddraw = 0.0
         elif self.inv_ramp:
             rr = (h - self.floor) * self.inv_ramp
             inside = (rr > 0.0) & (rr < 1.0)
@@ -281,11 +293,18 @@ class _Eval:
             ddraw = demand * (inside * self.inv_ramp)
         else:
             draw = demand * (h > self.floor)
-            ddraw = 0.0
-        net = inflow - draw - q
-        g = a + net * ia
-        dg = (net * ias - qs * ia) * self.inv_step - ddraw * ia
-        return g, dg, draw
+        net = inflow - draw
+        net -= q
+        g = net * ia
+        g += a
+        net *= ias
+        qs *= ia
+        net -= qs
+        net *= self.inv_step
+        if ddraw is not None:
+            ddraw *= ia
+            net -= ddraw
+        return g, net, draw
 
 
 def _pick(x: np.ndarray | float, idx: np.ndarray) -> np.ndarray | float:
@@ -343,7 +362,7 @@ def _settle(
     sub = ev.subset(idx)
     h0_b, a_b, in_b, dem_b, dt_b = h0[idx], a[idx], inflow[idx], demand[idx], _pick(dt, idx)
     c_b = state[0][idx]
-    for _ in range(6):
+    for _ in range(SETTLE_ITERATIONS):
         new, lin_b, draw_b, w_b, z_b = _update(sub, h0_b, c_b, a_b, in_b, dem_b, dt_b)
         moved = np.abs(new - c_b)
         c_b = new
@@ -411,6 +430,10 @@ def _step_error(
 #: evaluation's worth of copying, so iterating all is cheaper while many move).
 FULL_ITERATIONS = 6
 MOVING_SHARE = 0.3
+#: Plain iterations for the few members still moving; those still moving after them are
+#: Newton-corrected on the time equation (faster where the fixed-point map contracts slowly,
+#: as it does where g bends sharply).
+SETTLE_ITERATIONS = 2
 
 
 def _day_step(
@@ -425,10 +448,10 @@ def _day_step(
     tol_m: float,
     span_m: float,
     err_m: float,
-) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """One implicit exponential collocation step of length ``dt`` (s).
 
-    Returns (stage, draw, error estimate in m). At least ``iterations`` plain fixed-point
+    Returns (stage, draw, error estimate in m, ``g(h0)``). At least ``iterations`` plain fixed-point
     iterations run on all members after the exponential Euler start, more while over
     :data:`MOVING_SHARE` of the members still move by more than ``tol_m``; the members still
     moving then go on alone (:func:`_settle`); those that do not settle get an infinite
@@ -454,7 +477,7 @@ def _day_step(
     est = _step_error(ev, h0, c, g0, lin0, weight, zc, (a, inflow, demand), dt=dt, err_m=err_m)
     if unsettled is not None:
         est[unsettled] = np.inf
-    return c, draw, est
+    return c, draw, est, g0
 
 
 #: Gauss-Legendre nodes of the correction's quadrature (:func:`_time_correction`).
@@ -464,10 +487,11 @@ TIME_NODES = 3
 def _time_correction(
     ev: _Eval,
     h0: np.ndarray,
+    g0: np.ndarray,
     c: np.ndarray,
     forcing: tuple[np.ndarray, np.ndarray, np.ndarray],
     dt: float,
-) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """One Newton step on the exact time equation ``T(c) = dt`` of the day's path.
 
     Within a day the forcing is constant, so the path from ``h0`` is monotone and reaches ``c``
@@ -486,12 +510,11 @@ def _time_correction(
     ``g`` bends sharply, as a power-law outlet ``C (h - e)^b`` does near its sill (``g''`` grows
     as ``(h - e)^(b - 2)``), at a cost of ``TIME_NODES + 1`` evaluations.
 
-    Returns (new stage, size of the step in m, draw at the new stage, ``ok``): ``ok`` is False
+    ``g0`` is ``g(h0)``. Returns (new stage, size of the step in m, ``ok``): ``ok`` is False
     where the correction cannot be trusted (``g`` changes sign on ``[h0, c]``, i.e. ``c`` lies
     beyond an equilibrium, or the linear model has no path to ``c``).
     """
     g, dg, _ = ev(c, *forcing)
-    g0, _, _ = ev(h0, *forcing)
     x = dg * (h0 - c) / np.where(g != 0.0, g, 1.0)  # l(h0) / g(c) - 1
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         t_lin = np.where(
@@ -513,44 +536,41 @@ def _time_correction(
         step = (dt - t_lin - rest * half) * g
     ok &= np.isfinite(step)
     step = np.where(ok, step, 0.0)
-    new = c + step
-    _, _, draw = ev(new, *forcing)
-    return new, np.abs(step), draw, ok
+    return c + step, np.abs(step), ok
 
 
 def _correct(
     ev: _Eval,
     h0: np.ndarray,
+    g0: np.ndarray,
     c: np.ndarray,
     forcing: tuple[np.ndarray, np.ndarray, np.ndarray],
     dt: float,
     err_m: float,
     rounds: int = 3,
-) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+) -> tuple[np.ndarray, np.ndarray]:
     """Newton-correct the day-end stage of rough members (:func:`_time_correction`).
 
     A member is accepted when a correction moved it by at most ``err_m`` (Newton converges
-    quadratically, so its remaining error is well below the last step). Returns (stage, draw,
-    members not accepted within ``rounds`` corrections or not correctable: indices into ``h0``).
+    quadratically, so its remaining error is well below the last step). Returns (stage, members
+    not accepted within ``rounds`` corrections or not correctable: indices into ``h0``).
     """
     out_h = c.copy()
-    out_d = np.zeros(h0.size)
     failed = []
     todo = np.arange(h0.size)
-    sub, f, h0_t, c_t = ev, forcing, h0, c
+    sub, f, h0_t, g0_t, c_t = ev, forcing, h0, g0, c
     for _ in range(rounds):
-        new, moved, draw, ok = _time_correction(sub, h0_t, c_t, f, dt)
-        out_h[todo], out_d[todo] = new, draw
+        new, moved, ok = _time_correction(sub, h0_t, g0_t, c_t, f, dt)
+        out_h[todo] = new
         failed.append(todo[~ok])
-        go = ok & (moved > err_m)
-        k = np.flatnonzero(go)
+        k = np.flatnonzero(ok & (moved > err_m))
         todo = todo[k]
         if k.size == 0:
             break
         sub, f = sub.subset(k), tuple(x[k] for x in f)
-        h0_t, c_t = h0_t[k], new[k]
+        h0_t, g0_t, c_t = h0_t[k], g0_t[k], new[k]
     failed.append(todo)  # still moving after the last round
-    return out_h, out_d, np.concatenate(failed)
+    return out_h, np.concatenate(failed)
 
 
 @dataclass
@@ -743,6 +763,7 @@ def _table_path(
 def _resolve_rough(
     ev: _Eval,
     h0: np.ndarray,
+    g0: np.ndarray,
     h: np.ndarray,
     draw: np.ndarray,
     rough: np.ndarray,
@@ -761,8 +782,8 @@ def _resolve_rough(
     """
     f = tuple(x[rough] for x in forcing)
     sub = ev.subset(rough)
-    h_c, d_c, failed = _correct(sub, h0[rough], h[rough], f, dt, err_m)
-    h[rough], draw[rough] = h_c, d_c
+    h_c, failed = _correct(sub, h0[rough], g0[rough], h[rough], f, dt, err_m)
+    h[rough], draw[rough] = h_c, sub.draw(h_c, f[2])
     if failed.size == 0:
         return 0
     idx = rough[failed]
@@ -954,7 +975,7 @@ def simulate(
         acc = np.zeros(members)
         for _ in range(substeps):
             h_prev = h
-            h, draw, est = _day_step(
+            h, draw, est, g0 = _day_step(
                 ev,
                 h,
                 a,
@@ -973,6 +994,7 @@ def simulate(
                 refined += _resolve_rough(
                     ev,
                     h_prev,
+                    g0,
                     h,
                     draw,
                     rough,
