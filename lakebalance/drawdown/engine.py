@@ -30,9 +30,17 @@ derivative is proportional to ``g''`` (it vanishes for linear ``g``), so that it
 three iterations. Optionally the day is split into ``substeps`` equal parts.
 
 Member-days whose error indicator exceeds the target (a path crossing an outlet sill or the intake
-ramp, where ``g`` changes regime) are re-solved from the time integral of the day,
-``integral dh / g(h) = dt``, taken exactly on the grid with ``g`` linear between nodes (closed form
-per segment, a logarithm; infinite on the segment of an equilibrium), all such members at once.
+ramp, where ``g`` changes regime, or a stage near a power-law sill ``C (h - e)^b``, where ``g''``
+grows as ``(h - e)^(b - 2)``) are Newton-corrected on the day's exact time equation
+``integral_{h0}^{c} dh / g(h) = dt`` (:func:`_time_correction`: the singular part by the tangent
+model in closed form, the bounded rest by Gauss-Legendre quadrature). The few that a correction
+cannot settle are re-solved from the same time integral taken exactly on the grid with ``g``
+linear between nodes (closed form per segment, a logarithm; infinite on the segment of an
+equilibrium), all such members at once (:func:`_table_path`).
+
+A gate release by calendar month and stage (:mod:`lakebalance.operations`) is a second table
+with one row per month; restriction levels (monthly triggers, restore levels, lags) are stepped
+by :class:`lakebalance.operations.RestrictionState` on each day's start stage.
 
 All stage-dependent terms are read from dense tables on a uniform stage grid (an integer index, no
 search), linearly interpolated, so that the cost per evaluation does not depend on the law.
