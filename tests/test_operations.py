@@ -212,3 +212,23 @@ def test_out_of_range_rule_names_its_site_file_line():
     with pytest.raises(ConfigError) as info:
         _parse(text)
     assert info.value.line == 20
+
+
+def test_demand_file_is_read_like_a_series_in_its_units(tmp_path):
+    """``[operations.demand] file`` in ML/d: 86.4 ML/d = 1 m³/s (1 ML = 1000 m³, 86,400 s a day;
+    NIST SP 811 units), read relative to the site file and used on its dates."""
+    import tomllib
+
+    from lakebalance.analysis import _read_demand_file
+
+    (tmp_path / "demand.csv").write_text("date,value\n2021-07-01,86.4\n2021-07-02,43.2\n")
+    text = (
+        '[site]\nname = "Invented lake"\n\n[operations.demand]\n'
+        'file = "demand.csv"\nunits = "ML/d"\n'
+    )
+    site = parse_site(tomllib.loads(text), tmp_path / "site.toml", text)
+    dated = _read_demand_file(site)
+    assert dated.to_numpy() == pytest.approx([1.0, 0.5])
+    dates = pd.date_range("2021-07-01", periods=3, freq="D")
+    got = site.operations.demand.demand_m3s(dates, dated)
+    assert got == pytest.approx([1.0, 0.5, 0.75])  # 3 July: none that day of year, the mean
