@@ -3,6 +3,9 @@
 
 * ``slow`` — a wide lake (response time of weeks) with a power-law outlet above 1 m;
 * ``stiff`` — a small pond whose outlet responds within the hour;
+* ``stiff_sill`` — the stiff pond with an inflow about its evaporation, so that its members fall
+  below the sill and rise back into the stiff range a couple of dozen times a year (paths that
+  arrive late at a quasi-equilibrium);
 * ``sill`` — a flow-through lake sitting near its power-law sill ``Q = 25 (h - 10)^1.6``, with
   seepage, whose dry-season inflow is about its evaporation, so that members cross the sill
   often (the case where the engine's one-step linear model is poorest: ``g''`` grows as
@@ -151,6 +154,11 @@ FAMILIES: dict[str, EngineLake] = {
         "stiff", area_top_m2=4.0e4, depth_m=8.0, shape=0.6, sill_c=20.0, sill_e=1.0,
         sill_b=1.6, seepage_k=0.0, seepage_h0=0.0, inflow_m3s=3.0, inflow_sd=0.6,
         evaporation_m=0.004, start_m=1.5, stage_max_m=8.0, demand_m3s=0.15,
+    ),
+    "stiff_sill": EngineLake(
+        "stiff_sill", area_top_m2=4.0e4, depth_m=8.0, shape=0.6, sill_c=20.0, sill_e=1.0,
+        sill_b=1.6, seepage_k=0.0, seepage_h0=0.0, inflow_m3s=0.0008, inflow_sd=1.0,
+        evaporation_m=0.004, start_m=1.5, stage_max_m=8.0,
     ),
     "sill": EngineLake(
         "sill", area_top_m2=1.5e6, depth_m=14.0, shape=1.3, sill_c=25.0, sill_e=10.0,

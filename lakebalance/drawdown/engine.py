@@ -88,6 +88,8 @@ class LakeTables:
     _outflow_slope: np.ndarray = field(repr=False, default=None)  # type: ignore[assignment]
     #: (12, grid) gate release by calendar month (m³/s; zero below the dead level), or None
     release_m3s: np.ndarray | None = None
+    #: (variants,) stage where each outlet row starts to flow (its sill: the law's kink), or NaN
+    onset_m: np.ndarray | None = None
     _release_flat: np.ndarray | None = field(repr=False, default=None)
     _release_slope: np.ndarray | None = field(repr=False, default=None)
 
@@ -178,6 +180,7 @@ def build_tables(
     else:
         q = np.stack([np.asarray(f(grid), dtype=float).reshape(n) for f in outflow])
     q = np.nan_to_num(q, nan=0.0)
+    onset = _outlet_onsets(q, grid)
     floor = stage_min_m if floor_m is None else float(floor_m)
     ramp = np.clip((grid - floor) / ramp_m, 0.0, 1.0) if ramp_m > 0 else (grid > floor) * 1.0
     if environmental_release_m3s > 0:
@@ -205,9 +208,20 @@ def build_tables(
         _outflow_flat=np.ascontiguousarray(q).ravel(),
         _outflow_slope=np.ascontiguousarray(q_slope).ravel(),
         release_m3s=rel,
+        onset_m=onset,
         _release_flat=rel_flat,
         _release_slope=rel_slope,
     )
+
+
+def _outlet_onsets(q: np.ndarray, grid: np.ndarray) -> np.ndarray:
+    """(variants,) the highest grid stage where an outlet row goes from no flow to flow (the
+    sill, where a power law ``C (h - e)^b`` has its kink), NaN for a row that never starts."""
+    starts = (q[:, :-1] <= 0.0) & (q[:, 1:] > 0.0)
+    last = np.where(
+        starts.any(axis=1), starts.shape[1] - 1 - np.argmax(starts[:, ::-1], axis=1), -1
+    )
+    return np.where(last >= 0, grid[np.maximum(last, 0)], np.nan)
 
 
 @dataclass(frozen=True)
@@ -240,6 +254,8 @@ class _Eval:
         # None: every member reads row 0 (no offset to add)
         self.offset = variant * t.size if variant.any() else None
         self.members = variant.size
+        onset = t.onset_m if t.onset_m is not None else np.full(t.variants, np.nan)
+        self.kink = onset[variant] if onset.size else np.full(variant.size, np.nan)
         self.inv = t._inv_area
         self.inv_s = t._inv_area_slope
         self.q = t._outflow_flat
@@ -260,6 +276,7 @@ class _Eval:
         new = object.__new__(_Eval)
         new.__dict__.update(self.__dict__)
         new.offset = self.offset[idx] if self.offset is not None else None
+        new.kink = self.kink[idx]
         return new
 
     def draw(self, h: np.ndarray, demand: np.ndarray) -> np.ndarray:
@@ -490,6 +507,39 @@ def _day_step(
 
 #: Gauss-Legendre nodes of the correction's quadrature (:func:`_time_correction`).
 TIME_NODES = 3
+#: Speed at the day's end, times the day, below which share of the day's move the correction
+#: leaves a member to the grid path (a path ending at a quasi-equilibrium, see above).
+EQUILIBRIUM_SHARE = 0.05
+
+
+def _remainder(
+    ev: _Eval,
+    p: np.ndarray,
+    q: np.ndarray,
+    g: np.ndarray,
+    dg: np.ndarray,
+    c: np.ndarray,
+    g0: np.ndarray,
+    forcing: tuple[np.ndarray, np.ndarray, np.ndarray],
+    *,
+    panels: int = 1,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Gauss-Legendre integral over ``[p, q]`` (``panels`` equal parts) of ``(l - g) / (g l)``,
+    ``l(s) = g + dg (s - c)``, and whether ``g`` keeps the sign of ``g0`` at every node."""
+    nodes, weights = gauss_legendre(TIME_NODES)
+    width = (q - p) / panels
+    half = 0.5 * width
+    rest = np.zeros_like(p)
+    ok = np.ones(p.shape, dtype=bool)
+    for k in range(panels):
+        mid = p + (k + 0.5) * width
+        for xi, wi in zip(nodes, weights):
+            s = mid + half * xi
+            gs, _, _ = ev(s, *forcing)
+            ok &= gs * g0 > 0.0
+            ls = g + dg * (s - c)
+            rest += wi * (ls - gs) / (gs * ls)
+    return rest * half, ok
 
 
 def _time_correction(
@@ -499,6 +549,7 @@ def _time_correction(
     c: np.ndarray,
     forcing: tuple[np.ndarray, np.ndarray, np.ndarray],
     dt: float,
+    panels: int = 1,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """One Newton step on the exact time equation ``T(c) = dt`` of the day's path.
 
@@ -531,17 +582,25 @@ def _time_correction(
             -np.log1p(x) / np.where(dg != 0.0, dg, 1.0),
         )
         ok = (x > -1.0) & (g * g0 > 0.0) & np.isfinite(t_lin)
-        nodes, weights = gauss_legendre(TIME_NODES)
-        half = 0.5 * (c - h0)
-        mid = 0.5 * (c + h0)
-        rest = np.zeros_like(c)
-        for xi, wi in zip(nodes, weights):
-            s = mid + half * xi
-            gs, _, _ = ev(s, *forcing)
-            ok &= gs * g0 > 0.0
-            ls = g + dg * (s - c)
-            rest += wi * (ls - gs) / (gs * ls)
-        step = (dt - t_lin - rest * half) * g
+        # at a quasi-equilibrium (speed at c far below the day's mean speed) Newton's step
+        # (dt - T) g(c) is small whatever T is, so it cannot tell a late arrival: not trusted
+        ok &= np.abs(g) * dt >= EQUILIBRIUM_SHARE * np.abs(c - h0)
+        # the remainder's integrand has a kink at the outlet's sill: split the quadrature there
+        lo, hi = np.minimum(h0, c), np.maximum(h0, c)
+        inside = (ev.kink > lo) & (ev.kink < hi)
+        split = np.where(inside, ev.kink, c)
+        rest, good = _remainder(ev, h0, split, g, dg, c, g0, forcing, panels=panels)
+        ok &= good
+        two = np.flatnonzero(inside)
+        if two.size:
+            sub = ev.subset(two)
+            f2 = tuple(v[two] for v in forcing)
+            r2, good2 = _remainder(
+                sub, split[two], c[two], g[two], dg[two], c[two], g0[two], f2, panels=panels
+            )
+            rest[two] += r2
+            ok[two] &= good2
+        step = (dt - t_lin - rest) * g
     ok &= np.isfinite(step)
     step = np.where(ok, step, 0.0)
     return c + step, np.abs(step), ok
@@ -578,7 +637,19 @@ def _correct(
         sub, f = sub.subset(k), tuple(x[k] for x in f)
         h0_t, g0_t, c_t = h0_t[k], g0_t[k], new[k]
     failed.append(todo)  # still moving after the last round
-    return out_h, np.concatenate(failed)
+    failed = np.concatenate(failed)
+    # check: one more step with the quadrature on twice the panels must not move the stage by
+    # more than err_m (a long or sharply bent path makes the 3-point rule, and so the root, poor)
+    accepted = np.setdiff1d(np.arange(h0.size), failed, assume_unique=True)
+    if accepted.size:
+        sub = ev.subset(accepted)
+        f = tuple(x[accepted] for x in forcing)
+        new, moved, ok = _time_correction(
+            sub, h0[accepted], g0[accepted], out_h[accepted], f, dt, panels=2
+        )
+        out_h[accepted] = new
+        failed = np.concatenate([failed, accepted[~(ok & (moved <= err_m))]])
+    return out_h, failed
 
 
 @dataclass
