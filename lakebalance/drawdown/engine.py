@@ -637,19 +637,7 @@ def _correct(
         sub, f = sub.subset(k), tuple(x[k] for x in f)
         h0_t, g0_t, c_t = h0_t[k], g0_t[k], new[k]
     failed.append(todo)  # still moving after the last round
-    failed = np.concatenate(failed)
-    # check: one more step with the quadrature on twice the panels must not move the stage by
-    # more than err_m (a long or sharply bent path makes the 3-point rule, and so the root, poor)
-    accepted = np.setdiff1d(np.arange(h0.size), failed, assume_unique=True)
-    if accepted.size:
-        sub = ev.subset(accepted)
-        f = tuple(x[accepted] for x in forcing)
-        new, moved, ok = _time_correction(
-            sub, h0[accepted], g0[accepted], out_h[accepted], f, dt, panels=2
-        )
-        out_h[accepted] = new
-        failed = np.concatenate([failed, accepted[~(ok & (moved <= err_m))]])
-    return out_h, failed
+    return out_h, np.concatenate(failed)
 
 
 @dataclass
