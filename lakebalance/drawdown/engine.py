@@ -827,6 +827,65 @@ def _table_path(
     return w.h1, w.mean_draw
 
 
+def _split_at_kink(
+    ev: _Eval,
+    h0: np.ndarray,
+    g0: np.ndarray,
+    c: np.ndarray,
+    forcing: tuple[np.ndarray, np.ndarray, np.ndarray],
+    dt: float,
+    *,
+    err_m: float,
+    span_m: float,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Split the day where the path crosses the outlet's sill ``e`` (the kink of the law).
+
+    For members whose one-step estimate ``c`` lies beyond the sill seen from ``h0``, the time to
+    the sill ``T_e = integral_{h0}^{e} ds / g(s)`` is taken by Gauss-Legendre quadrature (two
+    panels; ``g`` is smooth on that side and does not vanish there, else the path never reaches
+    the sill); when ``T_e < dt`` the rest of the day is one collocation step from ``e`` on the
+    other, smooth branch (:func:`_day_step`, ``dt - T_e``). This is the case of a path rising
+    from the slow regime below a sill into a stiff one above, which arrives late at its
+    quasi-equilibrium. Returns (stage, accepted: the step's estimate is within ``err_m``).
+    """
+    e = ev.kink
+    lo, hi = np.minimum(h0, c), np.maximum(h0, c)
+    done = np.zeros(h0.size, dtype=bool)
+    out = c.copy()
+    cand = np.flatnonzero((e > lo) & (e < hi))
+    if cand.size == 0:
+        return out, done
+    sub = ev.subset(cand)
+    f = tuple(x[cand] for x in forcing)
+    p, q, s0 = h0[cand], e[cand], g0[cand]
+    nodes, weights = gauss_legendre(TIME_NODES)
+    t_e = np.zeros(cand.size)
+    ok = np.ones(cand.size, dtype=bool)
+    width = 0.5 * (q - p)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        for k in range(2):
+            mid = p + (k + 0.5) * width
+            for xi, wi in zip(nodes, weights):
+                gs, _, _ = sub(mid + 0.5 * width * xi, *f)
+                ok &= gs * s0 > 0.0
+                t_e += wi * 0.5 * width / gs
+        g_e, _, _ = sub(q, *f)
+    ok &= (g_e * s0 > 0.0) & np.isfinite(t_e) & (t_e >= 0.0) & (t_e < dt)
+    go = np.flatnonzero(ok)
+    if go.size == 0:
+        return out, done
+    sub2 = sub.subset(go)
+    f2 = tuple(x[go] for x in f)
+    rest = dt - t_e[go]
+    c2, _, est, _ = _day_step(
+        sub2, q[go].copy(), *f2, rest, iterations=1, tol_m=1e-5, span_m=span_m, err_m=err_m
+    )
+    good = est <= err_m
+    out[cand[go[good]]] = c2[good]
+    done[cand[go[good]]] = True
+    return out, done
+
+
 def _resolve_rough(
     ev: _Eval,
     h0: np.ndarray,
@@ -849,7 +908,15 @@ def _resolve_rough(
     """
     f = tuple(x[rough] for x in forcing)
     sub = ev.subset(rough)
-    h_c, failed = _correct(sub, h0[rough], g0[rough], h[rough], f, dt, err_m)
+    c0 = h[rough]
+    h_c, failed = _correct(sub, h0[rough], g0[rough], c0, f, dt, err_m)
+    if failed.size:
+        h_s, done = _split_at_kink(
+            sub.subset(failed), h0[rough][failed], g0[rough][failed], c0[failed],
+            tuple(x[failed] for x in f), dt, err_m=err_m, span_m=span_m,
+        )  # fmt: skip
+        h_c[failed[done]] = h_s[done]
+        failed = failed[~done]
     h[rough], draw[rough] = h_c, sub.draw(h_c, f[2])
     if failed.size == 0:
         return 0
