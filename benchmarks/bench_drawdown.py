@@ -15,6 +15,11 @@ measured in this run:
   member-day to the engine's;
 * the largest stage difference of 5 members against ``solve_ivp`` (Radau, rtol 1e-10).
 
+On the stiff lake the explicit bare loop is unstable: its members sit at the table's ends, where
+``np.interp`` costs next to nothing, so that ratio is no yardstick there;
+``benchmarks/bench_engine_families.py`` times every lake family against a stable (linearly
+implicit) loop as well.
+
 Run: ``python benchmarks/bench_drawdown.py [MEMBERS]``
 """
 

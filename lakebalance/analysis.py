@@ -1109,6 +1109,8 @@ class Lake:
             demand_m3s=opts.demand,
             environmental_release_m3s=opts.environmental_release,
             restriction=tuple((r.trigger, r.cut) for r in opts.restriction),
+            operations=self.site.operations,
+            demand_dated=_read_demand_file(self.site),
         )
         bar = callback = None
         if self.progress:
@@ -1476,6 +1478,21 @@ class Lake:
         if why:
             hc = dataclasses.replace(hc, notes=(*hc.notes, f"seepage left out: {why}"))
         return hc
+
+
+def _read_demand_file(site: Any) -> Any:
+    """The daily values (m³/s) of ``[operations.demand] file``, read like a series (None when
+    not given)."""
+    demand = site.operations.demand
+    if demand is None or demand.file is None:
+        return None
+    from .config import SeriesSpec
+    from .io.series import load_series
+
+    spec = SeriesSpec(
+        file=demand.file, units=demand.units, role="withdrawal", key="demand", name="demand"
+    )
+    return load_series(spec, site).daily
 
 
 def _persistent_errors(balance: Balance, chosen: Any, used: pd.Series) -> Callable | None:

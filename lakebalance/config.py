@@ -29,6 +29,7 @@ from .errors import ConfigError, OptionError, UnitError, suggest
 from .evaporation.options import EvaporationOptions
 from .fieldchecks import FieldCheckOptions
 from .flags import FlagOptions
+from .operations import OperatingRules
 from .options import Options, setting
 from .outlet.options import OutletComponent, OutletOptions
 from .outlet.periods import RatingPeriod
@@ -148,6 +149,7 @@ class Site:
     flags: FlagOptions = field(default_factory=FlagOptions)
     seepage: SeepageOptions = field(default_factory=SeepageOptions)
     drawdown: DrawdownOptions = field(default_factory=DrawdownOptions)
+    operations: OperatingRules = field(default_factory=OperatingRules)
     correction: tuple[Correction, ...] = ()
     period: tuple[Period, ...] = ()  # [[period]]: ice and offset periods (lakebalance.periods)
     field_checks: FieldCheckOptions = field(default_factory=FieldCheckOptions)
@@ -177,6 +179,7 @@ _TOP_SECTIONS = {
     "seepage": SeepageOptions,
     "drawdown": DrawdownOptions,
     "field_checks": FieldCheckOptions,
+    "operations": OperatingRules,
     "report": ReportOptions,
 }
 _INTERNAL_FIELDS = {"role", "key"}
@@ -192,8 +195,14 @@ class _Ctx:
         parts = [p for p in re.split(r"\.|\[\d+\]", where) if p]
         header = None
         pat = r"^\s*\[\[?\s*" + r"\s*\.\s*".join(map(re.escape, parts)) + r"\s*\]\]?\s*(#.*)?$"
+        # the n-th table of an array of tables ("name[n]" at the end of where)
+        nth = re.search(r"\[(\d+)\]$", where)
+        skip = int(nth.group(1)) if nth else 0
         for i, ln in enumerate(self.lines):
             if parts and re.match(pat, ln):
+                if skip:
+                    skip -= 1
+                    continue
                 header = i
                 if key is None:
                     return i + 1

@@ -8,7 +8,7 @@ import re
 import pytest
 from conftest import ROOT
 
-from lakebalance import config
+from lakebalance import config, operations
 
 SECTIONS = {
     "[site]": config.SiteInfo,
@@ -23,6 +23,11 @@ SECTIONS = {
     "[seepage]": config.SeepageOptions,
     "[drawdown]": config.DrawdownOptions,
     "[[drawdown.restriction]]": config.DemandRule,
+    "[operations]": operations.OperatingRules,
+    "[operations.release]": operations.ReleaseRule,
+    "[operations.spill]": operations.SpillRule,
+    "[operations.demand]": operations.DemandSchedule,
+    "[[operations.restriction]]": operations.RestrictionLevel,
     "[[correction]]": config.Correction,
     "[[period]]": config.Period,
     "[[storage.survey]]": config.DatedSurvey,

@@ -250,3 +250,53 @@ def test_constant_scenario_and_forecast_odds():
     text = " ".join(fc.sentences())
     assert "falls to the a level (9.00 m) on 24 April 2016" in text  # 23.15 days after 31 March
     assert "licensed professionals" in text
+
+
+def test_forecast_runs_the_sites_operating_rules():
+    """Prismatic lake, no inflow, rain or evaporation: a gate release of 1 m³/s in every month
+    (table flat in stage), an environmental minimum of 0.5 m³/s below it and a spill of nothing
+    below its crest lower the stage on a straight line, 1 m³/s / A (mass balance, common
+    practice, no source); the rules' restriction level gives a restricted and an unrestricted
+    run."""
+    import dataclasses
+
+    from lakebalance.operations import (
+        DemandSchedule,
+        OperatingRules,
+        ReleaseRule,
+        RestrictionLevel,
+        SpillRule,
+    )
+
+    hist = _history()
+    f = build_forcing(hist, pd.Timestamp("2016-03-31"), 100, "constant", inflow_m3s=0.0)
+    f = dataclasses.replace(
+        f, rain_m=np.zeros_like(f.rain_m), evaporation_m=np.zeros_like(f.rain_m)
+    )
+    area = 2.0e6
+    laws = LakeLaws(
+        area=_const_area(area),
+        volume=lambda h: area * np.asarray(h),
+        outflow=_zero,
+        stage_range_m=(0.0, 20.0),
+        levels={"a": 9.0},
+    )
+    ops = OperatingRules(
+        environmental_release=0.5,
+        release=ReleaseRule(stages=[0.0, 20.0], release=[[1.0, 1.0]]),
+        spill=SpillRule(crest=15.0, length=10.0),
+        demand=DemandSchedule(value=0.0),
+        restriction=(RestrictionLevel(trigger=9.5, restore=9.8, cut=0.5, lag=2),),
+    )
+    plan = ForecastPlan(
+        start=pd.Timestamp("2016-03-31"),
+        start_stage_m=10.0,
+        scenario="constant",
+        dead_level_m=1.0,
+        demand_m3s=3.0,  # replaced by the rules' demand (none)
+        operations=ops,
+    )
+    fc = run_forecast(laws, f, plan)
+    assert fc.level("a").days_50 == pytest.approx(area / DAY, rel=1e-9)
+    assert fc.restricted and fc.unrestricted is not None
+    assert np.allclose(fc.stage_m[:, 0], 10.0 - np.arange(101) * DAY / area)

@@ -24,6 +24,7 @@ import numpy as np
 import pandas as pd
 
 from ..display import count_of, percent
+from ..operations import OperatingRules, RestrictionLevel
 from ..resources import check_memory
 from ..results import Summary
 from ..units import SECONDS_PER_DAY
@@ -664,6 +665,14 @@ class ForecastPlan:
         Minimum downstream flow kept while above the dead level (m³/s).
     restriction : tuple of (trigger_m, cut)
         Demand cut by ``cut`` (-) on days starting below ``trigger_m`` (m).
+    operations : OperatingRules, optional
+        The site's operating rules (:mod:`lakebalance.operations`): gate release by month and
+        stage, environmental minimum, spill, demand schedule and restriction levels (with
+        monthly triggers, restore levels and lags). Its demand, when set, replaces
+        ``demand_m3s``; its restriction levels join ``restriction``; its environmental release,
+        when above zero, replaces ``environmental_release_m3s``.
+    demand_dated : pandas.Series, optional
+        The dated values of ``operations.demand.file`` (m³/s), read by the caller.
     """
 
     start: _dt.date | pd.Timestamp
@@ -674,6 +683,8 @@ class ForecastPlan:
     demand_m3s: float | Sequence[float] | None = None
     environmental_release_m3s: float = 0.0
     restriction: tuple[tuple[float, float], ...] = ()
+    operations: OperatingRules | None = None
+    demand_dated: pd.Series | None = None
 
 
 @dataclass(frozen=True, eq=False)
@@ -896,6 +907,10 @@ def run_forecast(
     lo, hi = stage_range_m
     floor = lo if dead_level_m is None else float(dead_level_m)
     out_fn = outflow_variants if outflow_variants is not None and variants > 0 else outflow
+    ops = plan.operations or OperatingRules()
+    out_fn = _with_spill(out_fn, ops)
+    if ops.environmental_release > 0:
+        environmental_release_m3s = ops.environmental_release
     _check_forecast_memory(forcing, samples, plan, hi - lo)
     tables = build_tables(
         area,
@@ -903,8 +918,10 @@ def run_forecast(
         stage_min_m=lo,
         stage_max_m=hi,
         seepage=seepage,
-        environmental_release_m3s=environmental_release_m3s,
+        # with a gate release table the environmental minimum is the gate's (in the table)
+        environmental_release_m3s=0.0 if ops.release is not None else environmental_release_m3s,
         floor_m=floor,
+        gate_release=ops.gate_release_by_month if ops.release is not None else None,
     )
     m = forcing.members
     days = forcing.inflow_m3s.shape[0]
@@ -920,6 +937,8 @@ def run_forecast(
         evap = evap * evaporation_factor[None, :]
     net = forcing.rain_m - evap
     schedule = _demand_schedule(forcing.dates, demand_m3s)
+    if ops.demand is not None:
+        schedule = ops.demand.demand_m3s(forcing.dates, plan.demand_dated)
     demand = (
         forcing.withdrawal_m3s
         if schedule is None
@@ -939,7 +958,8 @@ def run_forecast(
     )
 
     def one(
-        rules: Sequence[tuple[float, float]], prog: Callable[[int], None] | None
+        rules: Sequence[tuple[float, float] | RestrictionLevel],
+        prog: Callable[[int], None] | None,
     ) -> EngineResult:
         return simulate(
             tables,
@@ -950,6 +970,7 @@ def run_forecast(
             release_m3s=forcing.release_m3s,
             variant=variant,
             restriction=rules,
+            months=forcing.dates.month.to_numpy(),
             levels=levels,
             progress=prog,
         )
@@ -997,7 +1018,10 @@ def run_forecast(
             antecedent_days=forcing.antecedent_days,
         )
 
-    rules = [(float(t), float(c)) for t, c in restriction]
+    rules: list[tuple[float, float] | RestrictionLevel] = [
+        (float(t), float(c)) for t, c in restriction
+    ]
+    rules += list(ops.restriction)
     if rules and not side_by_side:
         return wrap(one(rules, progress), True, None)
     if rules:
@@ -1044,6 +1068,20 @@ def _percentile_table(
     return pd.DataFrame(pct, index=dates, columns=[f"p{p}" for p in PERCENTILES])
 
 
+def _with_spill(
+    outflow: Callable[[np.ndarray], np.ndarray], ops: OperatingRules
+) -> Callable[[np.ndarray], np.ndarray]:
+    """The outlet law plus the rules' spill over a crest (rows of rating variants alike)."""
+    if ops.spill is None:
+        return outflow
+    spill = ops.spill
+
+    def with_spill(h: np.ndarray) -> np.ndarray:
+        return np.asarray(outflow(h), dtype=float) + spill.spill_m3s(h)
+
+    return with_spill
+
+
 def _no_outflow(h: np.ndarray) -> np.ndarray:
     return np.zeros_like(np.asarray(h, dtype=float))
 
@@ -1063,7 +1101,8 @@ def _check_forecast_memory(
     m = forcing.members
     if samples.evaporation_factor is not None:
         m = max(m, int(samples.evaporation_factor.size))
-    runs = 2 if plan.restriction else 1
+    ops_levels = plan.operations.restriction if plan.operations is not None else ()
+    runs = 2 if plan.restriction or ops_levels else 1
     check_memory(
         8.0 * 12 * runs * (days + 1) * m,
         option="members",
