@@ -923,18 +923,9 @@ def run_forecast(
         floor_m=floor,
         gate_release=ops.gate_release_by_month if ops.release is not None else None,
     )
+    forcing, evap = _with_evaporation_factors(forcing, evaporation_factor)
     m = forcing.members
     days = forcing.inflow_m3s.shape[0]
-    evap = forcing.evaporation_m
-    if evaporation_factor is not None:
-        m_total = evaporation_factor.size
-        if m != m_total:  # members repeat the scenario's members (a replay year, a percentile)
-            reps = -(-m_total // m)
-            idx = np.tile(np.arange(m), reps)[:m_total]
-            forcing = _take_members(forcing, idx)
-            m = m_total
-            evap = forcing.evaporation_m
-        evap = evap * evaporation_factor[None, :]
     net = forcing.rain_m - evap
     schedule = _demand_schedule(forcing.dates, demand_m3s)
     if ops.demand is not None:
@@ -1028,6 +1019,21 @@ def run_forecast(
         free = wrap(one((), None), False, None)
         return wrap(one(rules, progress), True, free)
     return wrap(one((), progress), False, None)
+
+
+def _with_evaporation_factors(
+    forcing: Forcing, evaporation_factor: np.ndarray | None
+) -> tuple[Forcing, np.ndarray]:
+    """The forcing with as many members as sampled evaporation factors (members repeat the
+    scenario's members, e.g. a replay year), and its evaporation (days, members) scaled by them
+    (m/d)."""
+    if evaporation_factor is None:
+        return forcing, forcing.evaporation_m
+    m, m_total = forcing.members, evaporation_factor.size
+    if m != m_total:
+        reps = -(-m_total // m)
+        forcing = _take_members(forcing, np.tile(np.arange(m), reps)[:m_total])
+    return forcing, forcing.evaporation_m * evaporation_factor[None, :]
 
 
 def _level_odds(
