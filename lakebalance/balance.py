@@ -114,6 +114,8 @@ class UncertaintyOptions(Options):
     systematic: float | None = setting(None, unit="-", low=0.0, high=1.0)
     # over what the persistent part of each term's error is held
     systematic_period: Literal["record", "water_year"] = "record"
+    # lag-one autocorrelation of the day-to-day part of the term errors (AR(1))
+    daily_autocorrelation: float | None = setting(None, unit="-", low=0.0, high=0.99)
     # rating parameter sets drawn for the rating's share of the residual error
     rating_variants: int = setting(256, unit="ratings", low=2)
     boundary_rule: Literal["adjacent_mean", "fourth_order"] = (
@@ -244,6 +246,11 @@ class TermErrors:
     systematic_period : {"record", "water_year"}
         Over what the persistent part is held: the whole record (one bias per term; a gauge
         re-calibrated every year is better described by ``"water_year"``).
+    daily_autocorrelation : float
+        Lag-one autocorrelation φ (0 ≤ φ < 1) of the day-to-day part: a first-order
+        autoregressive error (Box & Jenkins, 1976, §3.2.4) that decays over about
+        −1/ln φ days, as a stream gauge's daily error does between shifts of its rating.
+        Default 0 (independent days); a daily record's φ is typically 0.3–0.8 (from memory).
     """
 
     inflow: float = 0.10
@@ -255,6 +262,7 @@ class TermErrors:
     stage_resolution_m: float = 0.003
     systematic: float = 0.5
     systematic_period: Literal["record", "water_year"] = "record"
+    daily_autocorrelation: float = 0.0
 
     @classmethod
     def from_options(
@@ -280,6 +288,7 @@ class TermErrors:
                 "release",
                 "area",
                 "systematic",
+                "daily_autocorrelation",
             )
             if getattr(options, name) is not None
         }
@@ -297,6 +306,10 @@ class TermErrors:
                 raise ValueError(f"relative error {name} must be >= 0, got {v!r}")
         if not (0.0 <= self.systematic <= 1.0):
             raise ValueError(f"systematic share must lie in [0, 1], got {self.systematic!r}")
+        if not (0.0 <= self.daily_autocorrelation < 1.0):
+            raise ValueError(
+                f"daily_autocorrelation must lie in [0, 1), got {self.daily_autocorrelation!r}"
+            )
         if not (self.stage_resolution_m >= 0):
             raise ValueError("stage resolution must be >= 0 m")
 
@@ -1034,6 +1047,7 @@ def residual_errors(
         rating_m3=rating_m3,
         ok=ok,
         term_names=tuple(nm for nm, _ in term_cols),
+        random_ar1=float(errors.daily_autocorrelation),
     )
 
 
@@ -1164,6 +1178,8 @@ def _draw_bands(
         rng.shuffle(variant)
     period_z: dict[int, Array] = {}
     res = model.resolution_m
+    phi = float(model.random_ar1)
+    ar_state: Array | None = None  # the AR(1) deviate of the last day of the previous chunk
     for a, b in zip(starts, ends, strict=True):
         m = b - a
         p = int(model.period[a])
@@ -1173,7 +1189,17 @@ def _draw_bands(
         coef = np.vstack([model.area_m3[None, a:b], model.systematic_m3[:, a:b]])
         coef = np.ascontiguousarray(coef, np.float32)
         e = np.einsum("mk,kd->md", z, coef)  # small k: einsum's loops, no BLAS threads
-        e += _normal(rng, (draws, m)) * model.random_sd_m3[a:b].astype(np.float32)
+        z_day = _normal(rng, (draws, m))
+        if phi > 0:  # x_t = φ x_{t−1} + √(1−φ²) z_t, stationary from the first day
+            from scipy.signal import lfilter
+
+            if ar_state is None:  # the day before the record: a unit deviate of its own
+                ar_state = _normal(rng, (draws,))
+            zi = (phi * ar_state)[:, None]
+            z_day, _ = lfilter([math.sqrt(1.0 - phi * phi)], [1.0, -phi], z_day, axis=1, zi=zi)
+            z_day = z_day.astype(np.float32)
+            ar_state = z_day[:, -1].copy()
+        e += z_day * model.random_sd_m3[a:b].astype(np.float32)
         if variant is not None:
             e += model.rating_m3[variant, a:b]
         if res > 0:

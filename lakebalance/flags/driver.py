@@ -16,6 +16,8 @@ if TYPE_CHECKING:  # pragma: no cover
     import numpy as np
     import pandas as pd
 
+    from ..errormodel import ResidualErrors
+
 
 def detect_flags(
     daily: pd.DataFrame,
@@ -24,6 +26,7 @@ def detect_flags(
     sigma_m3: pd.Series | np.ndarray | None = None,
     corrections: tuple[Correction, ...] = (),
     exclude: pd.Series | np.ndarray | None = None,
+    errors: ResidualErrors | None = None,
 ) -> Flags:
     """Flag the unexplained residual and the stage record of a daily balance.
 
@@ -45,6 +48,11 @@ def detect_flags(
     exclude : Series or ndarray of bool, optional
         Days left out of every detector (e.g. a stage flat-line already reported by the checks
         on the raw series).
+    errors : ResidualErrors, optional
+        The balance's error model (``Balance.error_model``). When given, the significance of
+        every flag is its volume over the exact standard deviation of that volume under the
+        model, and a run or level shift is kept only when it reaches
+        ``significance_threshold``.
 
     Returns
     -------
@@ -79,6 +87,7 @@ def detect_flags(
         sigma_m3=sigma_m3,
         corrections=corrections,
         exclude=exclude,
+        errors=errors,
     )
     events = find_events(ctx)  # step 1: spikes and datum shifts
     seg = segment_residual(ctx, events)  # step 2: usual level and segments

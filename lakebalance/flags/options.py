@@ -26,4 +26,6 @@ class FlagOptions(Options):
     drift_alpha: float = setting(
         0.001, unit="-", low=0.0, high=1.0, low_open=True, high_open=True
     )  # significance level of the drift test
+    # significance (volume / its 1-σ under the balance's error model) a run must reach
+    significance_threshold: float = setting(4.0, unit="-", low=0.0)
     shift_stage_z: float = setting(2.0, unit="-", low=0.0)  # robust z of a mirrored stage step
