@@ -116,6 +116,16 @@ class FlagContext:
         return int(self.residual_m3.size)
 
     @property
+    def resolution_m(self) -> float:
+        """Gauge resolution (m) of the error model (0 without one)."""
+        return float(self.errors.resolution_m) if self.errors is not None else 0.0
+
+    def too_small_for_a_shift(self, step_m: float) -> bool:
+        """A stage step smaller than twice the gauge resolution is not called a datum shift
+        (the gauge cannot tell it from its own rounding; common practice, no source)."""
+        return abs(step_m) < 2.0 * self.resolution_m
+
+    @property
     def departure_m3(self) -> np.ndarray:
         """Residual minus its rolling median (m³/d)."""
         return self.residual_m3 - self.median_m3

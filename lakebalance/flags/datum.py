@@ -156,6 +156,8 @@ def mirrored_stage_step(ctx: FlagContext, a: int) -> int | None:
         return None
     dev0, area = ctx.departure_m3, ctx.area_m2
     for cand in stage_steps_near(a, ctx.step_z, ctx.step_m, ctx.options):
+        if ctx.too_small_for_a_shift(float(ctx.step_m[cand])):
+            continue
         seen = float(np.nansum(dev0[max(cand - 1, 0) : cand + 2]))
         jump_m3 = float(ctx.step_m[cand] * area[cand]) if area is not None else float("nan")
         if abs(seen - jump_m3) <= 0.5 * abs(jump_m3):

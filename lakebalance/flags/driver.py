@@ -9,6 +9,7 @@ from .context import build_context
 from .drift import drift_flags
 from .events import find_events
 from .options import FlagOptions
+from .periods import offset_periods, stuck_flags
 from .result import Flags
 from .segments import cusum_flags, fitted_aftermath, segment_flags, segment_residual
 
@@ -95,6 +96,8 @@ def detect_flags(
     flags, covered, datum_starts = segment_flags(ctx, seg, flags, events.datum_starts)
     flags += cusum_flags(ctx, seg, covered, datum_starts)  # step 3: runs the segments missed
     flags += drift_flags(ctx, seg)  # step 4: drift inside long segments
+    flags = offset_periods(ctx, flags)  # step 5: a shift and its undoing are one period
+    flags = stuck_flags(ctx, flags)  # step 6: repeated stages while the lake moved
     flags.sort(key=lambda f: (f.start, f.kind))
     return Flags(
         items=tuple(flags),

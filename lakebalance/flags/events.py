@@ -202,6 +202,8 @@ def event_flag(ctx: FlagContext, a: int, b: int, step: StageStep) -> Flag | None
         note = describe_flows(ctx, step.first, jump_m3=step.implied_m3)
         if note:
             evidence.append(note)
+    if step.seen and not step.reversed and ctx.too_small_for_a_shift(step.net_m):
+        return _flow_spike(ctx, a, b, list(step.evidence))  # no step the gauge can resolve
     if step.seen and not step.reversed:
         return _event_datum_shift(ctx, a, b, step, evidence)
     if step.seen:

@@ -28,4 +28,8 @@ class FlagOptions(Options):
     )  # significance level of the drift test
     # significance (volume / its 1-σ under the balance's error model) a run must reach
     significance_threshold: float = setting(4.0, unit="-", low=0.0)
+    # longest offset period: a step and its undoing within it are one flag
+    offset_max_days: int = setting(400, unit="days", low=1)
+    # fewest repeated daily stages tested as a stuck sensor
+    stuck_days: int = setting(4, unit="days", low=2)
     shift_stage_z: float = setting(2.0, unit="-", low=0.0)  # robust z of a mirrored stage step
