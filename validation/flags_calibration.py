@@ -47,7 +47,7 @@ import pandas as pd
 ROOT = Path(__file__).resolve().parents[1]
 sys.path[:0] = [str(ROOT), str(ROOT / "tests")]
 
-from lakefamilies import FAMILIES, Fault, area_m2, plant, simulate  # noqa: E402
+from lakefamilies import FAMILIES, Fault, plant, simulate  # noqa: E402
 
 import lakebalance as lb  # noqa: E402
 
@@ -103,8 +103,8 @@ def fault_sizes(units: dict[str, float], level: float, kind: str) -> float:
     """Size of a fault ``level`` times the family's noise (m or m³/s by kind)."""
     if kind in ("spike", "datum_shift", "offset_period"):
         return level * units["stage_day_m"]
-    if kind == "drift":
-        return level * units["stage_150d_m"]
+    if kind == "drift":  # a sensor drifts by centimetres, not metres (common practice)
+        return min(level * units["stage_150d_m"], 0.02 * level)
     if kind == "stuck":
         return 0.0
     return level * units["flow_30d_m3s"]  # unmetered flows (m³/s)
@@ -118,24 +118,33 @@ def _open(site_file: Path) -> lb.Lake:
     return lake
 
 
-def snr(fault: Fault, lake: lb.Lake, truth: dict) -> float:
-    """Signal-to-noise ratio of a planted fault under the lake's error model (see the module)."""
+def snr(fault: Fault, lake: lb.Lake, clean: np.ndarray) -> float:
+    """Signal-to-noise ratio of a planted fault under the lake's error model.
+
+    The signal is what the fault does to the residual: the faulty lake's residual minus that of
+    its clean twin (the same seed, so the same weather and gauge errors). For a one-day effect
+    (a spike, the step of a datum shift or of an offset period) it is the largest daily change
+    over that day's 1-σ; for a lasting one the change summed over the fault's days (30 days
+    for a datum shift's aftermath) over the 1-σ of that sum's departure from the record mean.
+    A datum shift or an offset period takes the larger of the two.
+    """
     model = lake.balance.error_model
     d = lake.balance.daily
     idx = d.index
+    diff = np.nan_to_num(d["residual_m3"].to_numpy() - clean)
     a = int(idx.get_loc(pd.Timestamp(fault.start)))
-    b = min(a + fault.days - 1, len(idx) - 1)
-    h_true = pd.Series(truth["stage_true_m"], index=truth["dates"]).reindex(idx).to_numpy()
-    area = area_m2(FAMILIES[truth["family"]], h_true)
+    b = min(a + max(fault.days, 1) - 1, len(idx) - 1)
     day_sd = model.daily_sd()
-    if fault.kind in ("spike", "datum_shift", "offset_period"):
-        return abs(fault.size) * area[a] / day_sd[a]
-    if fault.kind == "drift":
-        return abs(fault.size) * float(np.mean(area[a : b + 1])) / departure_sd(model, a, b)
-    if fault.kind == "stuck":
-        moved = abs(h_true[b] - h_true[a - 1]) * area[a]
-        return moved / model.sd_of_window(a, b)
-    return abs(fault.size) * T * fault.days / departure_sd(model, a, b)
+    lo, hi = max(a - 1, 0), min(a + 3, len(idx))
+    one_day = float(np.nanmax(np.abs(diff[lo:hi]) / day_sd[lo:hi]))
+    if fault.kind == "spike":
+        return one_day
+    if fault.kind == "datum_shift":
+        b = min(a + 29, len(idx) - 1)
+    lasting = abs(float(diff[a : b + 1].sum())) / departure_sd(model, a, b)
+    if fault.kind in ("datum_shift", "offset_period"):
+        return max(one_day, lasting)
+    return lasting
 
 
 def judge(fault: Fault, flags, dates: pd.DatetimeIndex) -> tuple[str, list[int]]:
@@ -207,13 +216,17 @@ def run_family(name: str, args, stats: dict) -> None:
         with tempfile.TemporaryDirectory() as tmp:
             sim = simulate(name, seed, Path(tmp) / "lake", faults, years=years)
             lake = _open(sim.site_file)
+            clean = None
+            if faults:  # the clean twin: the same seed without the faults
+                twin = simulate(name, seed, Path(tmp) / "twin", (), years=years)
+                clean = _open(twin.site_file).balance.daily["residual_m3"].to_numpy()
             flags = lake.flags.items
             dates = lake.balance.daily.index
             related: set[int] = set()
             for fault in faults:
                 verdict, touching = judge(fault, flags, dates)
                 related.update(touching)
-                ratio = snr(fault, lake, sim.truth)
+                ratio = snr(fault, lake, clean)
                 s["faults"].append((fault.kind, ratio, verdict))
                 if args.verbose:
                     print(f"  {name} {seed} {fault.kind} {fault.start} size {fault.size:.3g} "

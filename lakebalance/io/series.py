@@ -573,6 +573,23 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
                 f"{b - a} identical daily values ({full[a]:.6g} {INTERNAL_UNITS[kind]}) from "
                 f"{index[a].date().isoformat()}: stuck sensor? the repeats are flagged",
             )
+    if role in qa.STATE_ROLES and role == "stage":
+        # shorter runs of repeats that end with a catch-up step: a sensor stuck while the lake
+        # moved (the flags then weigh them against the balance)
+        res = resolution or 0.0
+        for a, b in qa.stuck_runs(full, site.qa.stuck_days, res):
+            if b - a >= site.qa.flatline_days:
+                continue  # already a flat-line
+            add(
+                "stuck",
+                index[a + 1].date().isoformat(),
+                index[b - 1].date().isoformat(),
+                b - a - 1,
+                "kept",
+                f"{b - a} identical daily values ({full[a]:.6g} {INTERNAL_UNITS[kind]}) from "
+                f"{index[a].date().isoformat()}, then a step of {full[b] - full[a]:+.3g} "
+                f"{INTERNAL_UNITS[kind]} on {index[b].date().isoformat()}: stuck sensor?",
+            )
     reason = qa.implausible_units(role, full)
     if reason:
         add(
