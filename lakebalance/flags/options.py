@@ -32,4 +32,6 @@ class FlagOptions(Options):
     offset_max_days: int = setting(400, unit="days", low=1)
     # fewest repeated daily stages tested as a stuck sensor
     stuck_days: int = setting(4, unit="days", low=2)
+    # significance under the error model of the residual over repeated stages (stuck sensor)
+    stuck_threshold: float = setting(3.0, unit="-", low=0.0)
     shift_stage_z: float = setting(2.0, unit="-", low=0.0)  # robust z of a mirrored stage step

@@ -39,7 +39,13 @@ def offset_periods(ctx: FlagContext, flags: Sequence[Flag]) -> list[Flag]:
     import pandas as pd
 
     out = sorted(flags, key=lambda f: f.start)
-    shifts = [f for f in out if f.kind == "datum_shift" and f.magnitude_m is not None]
+    # a step away may have been read as a bad stage reading when the record is noisy there
+    shifts = [
+        f
+        for f in out
+        if f.magnitude_m is not None
+        and (f.kind == "datum_shift" or (f.kind == "spike" and f.series == "stage"))
+    ]
     used: set[int] = set()
     periods: list[tuple[Flag, Flag]] = []
     limit = ctx.options.offset_max_days
@@ -52,6 +58,8 @@ def offset_periods(ctx: FlagContext, flags: Sequence[Flag]) -> list[Flag]:
             gap = (pd.Timestamp(second.start) - pd.Timestamp(first.start)).days
             if gap > limit:
                 break
+            if second.kind != "datum_shift" or gap < 2:
+                continue
             m1, m2 = float(first.magnitude_m), float(second.magnitude_m)
             if np.sign(m1) != np.sign(m2) and abs(m1 + m2) <= 0.5 * max(abs(m1), abs(m2)):
                 periods.append((first, second))
@@ -131,8 +139,8 @@ def repeated_runs(stage_m: np.ndarray, min_days: int, resolution_m: float) -> li
 
 def stuck_flags(ctx: FlagContext, flags: Sequence[Flag]) -> list[Flag]:
     """Stuck-sensor flags: runs of at least ``stuck_days`` repeated daily stages over which the
-    residual summed (minus its usual median) reaches ``significance_threshold`` against the
-    error model: the gauged flows moved the lake while the stage did not.
+    residual summed (minus its usual median) reaches ``stuck_threshold`` against the error
+    model (lower than a run's, as the repeats are evidence of their own): the gauged flows moved the lake while the stage did not.
 
     The flag covers the repeated days (from the day after the last good reading to the last
     repeat); flags on the day the sensor came back (its catch-up step) or inside the run are
@@ -146,12 +154,13 @@ def stuck_flags(ctx: FlagContext, flags: Sequence[Flag]) -> list[Flag]:
     res = float(ctx.errors.resolution_m) if ctx.errors is not None else 0.0
     for a0, b in repeated_runs(ctx.stage_m, ctx.options.stuck_days, res):
         a = a0 + 1  # the first repeat
-        r = ctx.residual_m3[a : b + 1]
-        if np.isfinite(r).sum() < max(2, (b - a + 1) // 2):
+        # the day of the last good reading takes half the run's first boundary: summed with
+        r = ctx.residual_m3[a0 : b + 1]
+        if np.isfinite(r).sum() < max(2, (b - a0 + 1) // 2):
             continue
-        volume = float(np.nansum(r - ctx.median_m3[a : b + 1]))
-        sig = abs(volume) / ctx.sigma_of(a, b, 1.0)
-        if sig < ctx.options.significance_threshold:
+        volume = float(np.nansum(r - ctx.median_m3[a0 : b + 1]))
+        sig = abs(volume) / ctx.sigma_of(a0, b, 1.0)
+        if sig < ctx.options.stuck_threshold:
             continue
         start, end = pd.Timestamp(ctx.iso(a)), pd.Timestamp(ctx.iso(b))
         near = pd.Timedelta(days=ctx.options.spike_days + 1)
