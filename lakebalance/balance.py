@@ -1036,6 +1036,7 @@ def residual_errors(
         g_e = (dq * tau[None, :]) @ w * SECONDS_PER_DAY
     else:
         g_s = g_e = np.zeros(n)
+    boundary_sd = _interpolation_sd(d, tv, area_fn)
     return ResidualErrors(
         random_sd_m3=np.where(ok, random_sd, 0.0),
         systematic_m3=math.sqrt(rho) * scaled,
@@ -1048,7 +1049,35 @@ def residual_errors(
         ok=ok,
         term_names=tuple(nm for nm, _ in term_cols),
         random_ar1=float(errors.daily_autocorrelation),
+        boundary_sd_m=boundary_sd,
     )
+
+
+def _interpolation_sd(d: pd.DataFrame, term_volumes: Array, area_fn: StageFn) -> Array | None:
+    """1-σ interpolation error (m) of each day-boundary stage estimated from daily means.
+
+    Boundary b (between days b−1 and b) taken by a daily-mean rule (it equals the adjacent-mean
+    or the fourth-order value) errs by about a quarter of the change of the daily rise there:
+    |N_b − N_b−1| / (4 A_b), with N the gauged net inflow of a day (m³/d). Zero where a sub-daily
+    reading gave the boundary (see :mod:`lakebalance.errormodel`).
+    """
+    m = d["stage_m"].to_numpy(dtype=float)
+    n = m.size
+    if n < 3 or term_volumes.size == 0:
+        return None
+    bnd = np.r_[d["stage_start_m"].to_numpy(dtype=float), d["stage_end_m"].to_numpy()[-1:]]
+    from_rule = np.zeros(n + 1, dtype=bool)
+    for rule in ("adjacent_mean", "fourth_order"):
+        b, _ = _boundaries(m, None, rule)  # type: ignore[arg-type]
+        with np.errstate(invalid="ignore"):
+            from_rule |= np.isclose(bnd, b, rtol=0.0, atol=1e-9)
+    net = -np.sum(term_volumes, axis=0)  # gains positive (m³/d)
+    change = np.full(n + 1, np.nan)
+    change[1:-1] = np.abs(np.diff(net))
+    area = _at(area_fn, bnd)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        sd = np.where(from_rule & (area > 0), change / (4.0 * area), 0.0)
+    return np.nan_to_num(sd)
 
 
 def add_uncertainty(
@@ -1178,6 +1207,9 @@ def _draw_bands(
         rng.shuffle(variant)
     period_z: dict[int, Array] = {}
     res = model.resolution_m
+    bsd = None
+    if model.boundary_sd_m is not None and np.any(model.boundary_sd_m > 0):
+        bsd = np.asarray(model.boundary_sd_m, dtype=np.float32)
     phi = float(model.random_ar1)
     ar_state: Array | None = None  # the AR(1) deviate of the last day of the previous chunk
     for a, b in zip(starts, ends, strict=True):
@@ -1202,11 +1234,14 @@ def _draw_bands(
         e += z_day * model.random_sd_m3[a:b].astype(np.float32)
         if variant is not None:
             e += model.rating_m3[variant, a:b]
-        if res > 0:
+        if res > 0 or bsd is not None:
             # boundary errors: the last boundary of a chunk is the first of the next one
             u = np.empty((draws, m + 1), dtype=np.float32)
             u[:, 0] = _uniform(rng, draws, res) if carry is None else carry
             u[:, 1:] = _uniform(rng, (draws, m), res)
+            if bsd is not None:  # interpolation of boundaries from daily means
+                first = 1 if carry is not None else 0
+                u[:, first:] += _normal(rng, (draws, m + 1 - first)) * bsd[a + first : b + 1]
             carry = u[:, -1].copy()
             e += u[:, :-1] * model.boundary_prev_m3[a:b].astype(np.float32)
             e += u[:, 1:] * model.boundary_next_m3[a:b].astype(np.float32)

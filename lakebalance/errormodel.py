@@ -6,10 +6,17 @@ The residual of day d (m³) is what the measured terms do not explain,
     e_d = Σ_k σ_k T_kd (√ρ z_k,p(d) + √(1−ρ) ε_kd)        terms: persistent + random parts
         + σ_A a (ΔV_d − P_d + E_d)                          area of the storage relation
         + R_v,d                                             rating (one variant per draw)
-        + c⁻_d δ_d + c⁺_d δ_d+1                            stage resolution at the boundaries
+        + c⁻_d δ_d + c⁺_d δ_d+1                            boundary stages: resolution and
+                                                            interpolation from daily means
 
 with σ_k the relative (1-σ) error of term k, ρ the share of its variance that persists, z one
 standard normal deviate per term and *period* (the whole record by default, or each water year),
+δ_b also carries, where boundary b was estimated from daily means rather than read, an
+interpolation error of standard deviation |N_b − N_b−1| / (4 A_b): the stage path bends where the
+gauged net inflow N (m³/d) changes from one day to the next (a storm's onset), and the mean of two
+adjacent daily means misses the boundary stage by up to a quarter of the change of the daily rise
+(a kink of slope; for a smooth curve the error is h″/6, smaller), common practice, no source; it
+follows the gauged flows, so a bad stage reading does not widen its own band. And
 ε standard normals independent between terms and, from day to day, either independent or a
 first-order autoregressive (AR(1)) sequence of lag-one correlation φ (a gauge's daily error that
 decays over a few days, as a stream gauge's rating or a pan's exposure does), a one standard normal for the record, δ_b ~ U(−r/2, r/2) the error
@@ -71,6 +78,10 @@ class ResidualErrors:
         Days whose residual is known (the parts are zero elsewhere).
     term_names : tuple of str
         The terms of the rows of ``systematic_m3``.
+    boundary_sd_m : ndarray (days + 1,) or None
+        Standard deviation (m) of each day-boundary stage's interpolation error where the
+        boundary was estimated from daily means (zero where a sub-daily reading gave it); it
+        enters through the same coefficients as the resolution.
     random_ar1 : float
         Lag-one autocorrelation φ (0 ≤ φ < 1, -) of the day-to-day part: its errors on days i
         and j correlate as φ^|i−j| (stationary AR(1) of unit variance; Box & Jenkins, 1976,
@@ -88,6 +99,7 @@ class ResidualErrors:
     ok: Array = field(default_factory=lambda: np.zeros(0, bool))
     term_names: tuple[str, ...] = ()
     random_ar1: float = 0.0
+    boundary_sd_m: Array | None = field(default=None, repr=False)
 
     def __post_init__(self) -> None:
         if not (0.0 <= float(self.random_ar1) < 1.0):
@@ -147,12 +159,15 @@ class ResidualErrors:
         if "rating" in parts and self.rating_m3 is not None and self.rating_variants > 1:
             sums = w @ self.rating_m3.T.astype(float)  # (q, V)
             cov += np.atleast_2d(np.cov(sums, ddof=1))
-        if "resolution" in parts and self.resolution_m > 0:
+        if "resolution" in parts and (self.resolution_m > 0 or self.boundary_sd_m is not None):
             # boundary b is the last of day b-1 and the first of day b
             coef = np.zeros((q, self.days + 1))
             coef[:, :-1] += w * self.boundary_prev_m3[None, :]
             coef[:, 1:] += w * self.boundary_next_m3[None, :]
-            cov += (self.resolution_m**2 / 12.0) * (coef @ coef.T)
+            var_b = np.full(self.days + 1, self.resolution_m**2 / 12.0)
+            if self.boundary_sd_m is not None:
+                var_b = var_b + np.nan_to_num(self.boundary_sd_m) ** 2
+            cov += (coef * var_b[None, :]) @ coef.T
         return cov
 
     def sd_of_sum(self, weights: Array, parts: Sequence[str] = PARTS) -> float:
@@ -172,10 +187,11 @@ class ResidualErrors:
         var = var + np.sum(self.systematic_m3**2, axis=0)
         if self.rating_m3 is not None and self.rating_variants > 1:
             var = var + np.var(self.rating_m3.astype(float), axis=0, ddof=1)
-        if self.resolution_m > 0:
-            var = var + (self.resolution_m**2 / 12.0) * (
-                self.boundary_prev_m3**2 + self.boundary_next_m3**2
-            )
+        if self.resolution_m > 0 or self.boundary_sd_m is not None:
+            var_b = np.full(self.days + 1, self.resolution_m**2 / 12.0)
+            if self.boundary_sd_m is not None:
+                var_b = var_b + np.nan_to_num(self.boundary_sd_m) ** 2
+            var = var + self.boundary_prev_m3**2 * var_b[:-1] + self.boundary_next_m3**2 * var_b[1:]
         return np.where(self.ok, np.sqrt(var), np.nan)
 
     def to_dict(self) -> dict:

@@ -50,10 +50,12 @@ def test_the_error_model_judges_runs_at_high_flow(tmp_path):
 
 
 def test_a_stuck_sensor_is_one_stuck_flag(tmp_path):
-    fault = Fault("stuck", "2003-06-10", 6, 0.0)
-    _, flags = _flags(tmp_path, "seepage", (fault,))
+    fault = Fault("stuck", "2003-08-20", 6, 0.0)
+    lake, flags = _flags(tmp_path, "seepage", (fault,))
     stuck = [f for f in flags.items if f.kind == "stuck"]
     assert len(stuck) == 1
+    # and check's QA saw the repeats end in a catch-up step
+    assert [f.first for f in lake.records.findings if f.kind == "stuck"] == ["2003-08-21"]
     assert abs((pd.Timestamp(stuck[0].start) - pd.Timestamp(fault.start)).days) <= 2
     # the catch-up step is its evidence, not a datum shift of its own
     assert not [f for f in flags.items if f.kind == "datum_shift"]

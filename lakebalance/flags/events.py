@@ -87,12 +87,25 @@ def find_events(ctx: FlagContext) -> Events:
         if step.lasting:
             by_lasting.add(step.first)
         flag = event_flag(ctx, a, b, step)
-        if flag is None:
+        if flag is None or not _significant_event(ctx, flag):
             continue
         flags.append(flag)
         if flag.kind == "datum_shift":
             datum_starts.append(step.first)
     return Events(tuple(spans), tuple(flags), tuple(datum_starts), frozenset(by_lasting))
+
+
+def _significant_event(ctx: FlagContext, flag: Flag) -> bool:
+    """Whether an event's volume stands out of the error model (always, without one).
+
+    A spike of a flow term rests on the residual alone: it must reach
+    ``significance_threshold``. A stage event (bad reading, datum shift) also has its own
+    outlying stage step, so its storage jump need only reach the two-sided 95 % quantile.
+    """
+    if ctx.errors is None:
+        return True
+    need = ctx.options.significance_threshold if flag.series == "residual" else Z95
+    return flag.significance >= need
 
 
 def read_stage_step(ctx: FlagContext, a: int, b: int) -> StageStep:
@@ -149,9 +162,18 @@ def read_stage_step(ctx: FlagContext, a: int, b: int) -> StageStep:
             mirrored = abs(float(c_seen[-1]))
             seen_step = abs(c_seen[-1] - implied) <= 0.5 * abs(implied)
         # and the mirror must stand out of the residual's noise on those days (storm days are
-        # noisy: a flood's timing error is no stage fault)
-        sd = math.sqrt(float(np.nansum(ctx.scale_m3[lo_i:hi_i] ** 2)))
-        seen_step = seen_step and mirrored >= ctx.options.outlier_threshold * sd
+        # noisy: a flood's timing error is no stage fault). A bad reading's mirror is the
+        # running sum up to its peak (with daily-mean boundaries, half the jump on the day
+        # before and half undone the day after), judged over those days only; the outlying
+        # stage step is evidence of its own, so the mirror needs 3 noise scales, not 5
+        if reversed_:
+            peak_at = int(np.argmax(np.abs(c_seen)))
+            sd = math.sqrt(float(np.nansum(ctx.scale_m3[lo_i : lo_i + peak_at + 1] ** 2)))
+            need = min(3.0, ctx.options.outlier_threshold)
+        else:
+            sd = math.sqrt(float(np.nansum(ctx.scale_m3[lo_i:hi_i] ** 2)))
+            need = ctx.options.outlier_threshold
+        seen_step = seen_step and mirrored >= need * sd
     elif np.isfinite(implied):
         seen_step = False  # no balance on those days to confirm the step
     if not seen_step and not reversed_ and has_balance:
