@@ -293,6 +293,10 @@ def cusum_flags(
     ):
         if covered[a : b + 1].any() or any(abs(a - d) <= near for d in datum_starts):
             continue
+        # the CUSUM's start lags a change and its peak is not the end: date both ends
+        a, b = date_run(seg.departure_m3, ctx.scale_m3, a, b, reach=options.min_run_days)
+        if covered[a : b + 1].any():
+            continue
         days_valid, z_run = strength(ctx, seg, a, b)
         if days_valid < options.min_run_days or z_run < options.run_threshold:
             continue
