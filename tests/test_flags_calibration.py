@@ -73,8 +73,16 @@ def _shift(day, m, kind="datum_shift"):
                 cause="gauge datum shift", hint="", magnitude_m=m)  # fmt: skip
 
 
+def _ctx(step_z=None, step_m=None):
+    index = pd.date_range("2019-06-01", "2022-12-31", freq="D")
+    return SimpleNamespace(
+        options=FlagOptions(), corrections=(), index=index, n=len(index), step_z=step_z,
+        step_m=step_m, iso=lambda i: index[i].date().isoformat(),
+    )  # fmt: skip
+
+
 def test_a_step_and_its_undoing_are_one_offset_period_with_both_ends():
-    ctx = SimpleNamespace(options=FlagOptions(), corrections=())
+    ctx = _ctx()
     inside = Flag(kind="run", start="2020-01-12", end="2020-02-01", series="residual",
                   volume_m3=-5e4, depth_mm=-5, rate_m3_per_day=-2e3, significance=5.0,
                   significant=True, cause="", hint="")  # fmt: skip
@@ -91,11 +99,26 @@ def test_a_step_and_its_undoing_are_one_offset_period_with_both_ends():
 
 
 def test_steps_of_unlike_size_or_same_sign_stay_datum_shifts():
-    ctx = SimpleNamespace(options=FlagOptions(), corrections=())
+    ctx = _ctx()
     out = offset_periods(ctx, [_shift("2020-01-10", 0.05), _shift("2020-02-07", -0.01)])
     assert [f.kind for f in out] == ["datum_shift", "datum_shift"]
     out = offset_periods(ctx, [_shift("2020-01-10", 0.05), _shift("2020-02-07", 0.05)])
     assert [f.kind for f in out] == ["datum_shift", "datum_shift"]
+
+
+def test_the_step_back_may_be_seen_in_the_stage_record_alone():
+    # a storm hid the step back from the balance: the stage record's outlying step of like
+    # size and opposite sign ends the period
+    ctx = _ctx()
+    z = np.zeros(ctx.n)
+    m = np.zeros(ctx.n)
+    back = int(ctx.index.get_loc(pd.Timestamp("2020-02-20")))
+    z[back], m[back] = -9.0, -0.045
+    ctx = _ctx(step_z=z, step_m=m)
+    out = offset_periods(ctx, [_shift("2020-01-10", 0.05)])
+    assert [(f.kind, f.start, f.end) for f in out] == [
+        ("offset_period", "2020-01-10", "2020-02-19")
+    ]
 
 
 def test_repeated_runs_within_half_the_resolution():

@@ -29,7 +29,7 @@ class FlagOptions(Options):
     # significance (volume / its 1-σ under the balance's error model) a run must reach
     significance_threshold: float = setting(4.0, unit="-", low=0.0)
     # longest offset period: a step and its undoing within it are one flag
-    offset_max_days: int = setting(400, unit="days", low=1)
+    offset_max_days: int = setting(200, unit="days", low=1)
     # fewest repeated daily stages tested as a stuck sensor
     stuck_days: int = setting(4, unit="days", low=2)
     # significance under the error model of the residual over repeated stages (stuck sensor)

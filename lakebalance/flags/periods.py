@@ -34,55 +34,80 @@ def offset_periods(ctx: FlagContext, flags: Sequence[Flag]) -> list[Flag]:
 
     A shift of ``m₁`` (m) on day ``s`` and a later one of ``m₂`` on day ``e`` pair when
     ``e − s ≤ offset_max_days``, the signs differ and ``|m₁ + m₂| ≤ ½ max(|m₁|, |m₂|)``. The
-    period runs from ``s`` to ``e − 1``; its correction adds ``−m₁`` over those days.
+    step away may have been read as a bad stage reading, and the step back as a spike of the
+    residual (a storm hides it in the stage record): their storage jumps (m³) are then
+    compared by the same rule. The period runs from ``s`` to ``e − 1``; its correction adds
+    ``−m₁`` over those days.
     """
     import pandas as pd
 
     out = sorted(flags, key=lambda f: f.start)
-    # a step away may have been read as a bad stage reading when the record is noisy there
     shifts = [
         f
         for f in out
-        if f.magnitude_m is not None
-        and (f.kind == "datum_shift" or (f.kind == "spike" and f.series == "stage"))
+        if (f.magnitude_m is not None and f.kind in ("datum_shift", "spike"))
+        or (f.kind == "spike" and f.series == "residual")
     ]
     used: set[int] = set()
-    periods: list[tuple[Flag, Flag]] = []
+    # (step away, its end day as a position, the step back in m, the flag of the step back)
+    periods: list[tuple[Flag, int, float, Flag | None]] = []
     limit = ctx.options.offset_max_days
     for i, first in enumerate(shifts):
-        if id(first) in used:
+        if id(first) in used or first.magnitude_m is None or first.series != "stage":
             continue
+        s0 = int(ctx.index.get_loc(pd.Timestamp(first.start)))
+        m1 = float(first.magnitude_m)
+        found = None
         for second in shifts[i + 1 :]:
             if id(second) in used:
                 continue
             gap = (pd.Timestamp(second.start) - pd.Timestamp(first.start)).days
             if gap > limit:
                 break
-            if second.kind != "datum_shift" or gap < 2:
+            if gap < 2:
                 continue
-            m1, m2 = float(first.magnitude_m), float(second.magnitude_m)
-            if np.sign(m1) != np.sign(m2) and abs(m1 + m2) <= 0.5 * max(abs(m1), abs(m2)):
-                periods.append((first, second))
-                used.update((id(first), id(second)))
+            if second.kind == "datum_shift" and second.magnitude_m is not None:
+                a1, a2 = m1, float(second.magnitude_m)
+                back = a2
+            elif second.kind == "spike" and second.series == "residual":
+                # a storm hid the step back in the stage record: the residual's spike undoes
+                # the first step's storage jump
+                a1, a2 = float(first.volume_m3), float(second.volume_m3)
+                back = -m1 * abs(a2 / a1) if a1 else -m1
+            else:
+                continue
+            if like_undoing(a1, a2):
+                found = (int(ctx.index.get_loc(pd.Timestamp(second.start))), back, second)
                 break
+        if found is None:
+            # the step back in the stage record alone: after a shift the balance confirmed, an
+            # outlying stage step of like size and opposite sign is its undoing
+            e = stage_step_back(ctx, s0, m1, limit)
+            if e is not None:
+                found = (e, float(ctx.step_m[e]), None)
+        if found is not None:
+            periods.append((first, found[0], found[1], found[2]))
+            used.add(id(first))
+            if found[2] is not None:
+                used.add(id(found[2]))
     if not periods:
         return out
-    for first, second in periods:
+    for first, e_pos, back, second in periods:
         start = pd.Timestamp(first.start)
-        end = pd.Timestamp(second.start) - pd.Timedelta(days=1)
+        end = pd.Timestamp(ctx.iso(e_pos)) - pd.Timedelta(days=1)
         inside = [
             f
             for f in out
             if f is not first
             and f is not second
-            and f.kind in ("run", "level_shift", "spike")
+            and f.kind in ("run", "level_shift", "spike", "datum_shift")
             and pd.Timestamp(f.start) >= start - pd.Timedelta(days=2)
             and pd.Timestamp(f.end) <= end + pd.Timedelta(days=2)
         ]
         m1 = float(first.magnitude_m)
         evidence = [
             f"the stage stepped by {m1:+.3f} m on {first.start} and by "
-            f"{float(second.magnitude_m):+.3f} m on {second.start}: read off by about "
+            f"{back:+.3f} m on {ctx.iso(e_pos)}: read off by about "
             f"{m1:+.3f} m for {(end - start).days + 1} d",
             *first.evidence,
             *(f"then: {f.kind} {f.start} to {f.end} ({f.volume_m3:+,.0f} m³)" for f in inside),
@@ -95,7 +120,7 @@ def offset_periods(ctx: FlagContext, flags: Sequence[Flag]) -> list[Flag]:
             value=-m1,
             reason=f"stage read off by {m1:+.3f} m over a period, flagged by lakebalance",
         )
-        sig = min(first.significance, second.significance)
+        sig = first.significance if second is None else min(first.significance, second.significance)
         merged = Flag(
             kind="offset_period",
             start=first.start,
@@ -118,9 +143,27 @@ def offset_periods(ctx: FlagContext, flags: Sequence[Flag]) -> list[Flag]:
             correction=corr,
             accepted=is_accepted(corr, ctx.corrections),
         )
-        drop = {id(first), id(second), *(id(f) for f in inside)}
+        drop = {id(first), *(id(f) for f in inside)} | (set() if second is None else {id(second)})
         out = [f for f in out if id(f) not in drop] + [merged]
     return sorted(out, key=lambda f: (f.start, f.kind))
+
+
+def like_undoing(a1: float, a2: float) -> bool:
+    """Two steps (or storage jumps) of opposite sign and like size: |a₁ + a₂| ≤ ½ max(|a₁|, |a₂|)."""
+    return bool(np.sign(a1) != np.sign(a2) and abs(a1 + a2) <= 0.5 * max(abs(a1), abs(a2)))
+
+
+def stage_step_back(ctx: FlagContext, start: int, step_m: float, limit: int) -> int | None:
+    """The first day within ``limit`` days after ``start`` whose stage step is an outlier
+    (|robust z| above ``outlier_threshold``) that undoes ``step_m`` (:func:`like_undoing`)."""
+    if ctx.step_z is None:
+        return None
+    z = np.nan_to_num(ctx.step_z)
+    last = min(ctx.n - 1, start + limit)
+    for e in range(start + 2, last + 1):  # loop over days of one period (few hundred)
+        if abs(z[e]) > ctx.options.outlier_threshold and like_undoing(step_m, float(ctx.step_m[e])):
+            return e
+    return None
 
 
 def repeated_runs(stage_m: np.ndarray, min_days: int, resolution_m: float) -> list[tuple[int, int]]:
