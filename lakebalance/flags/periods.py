@@ -69,6 +69,8 @@ def offset_periods(ctx: FlagContext, flags: Sequence[Flag]) -> list[Flag]:
             if second.kind == "datum_shift" and second.magnitude_m is not None:
                 a1, a2 = m1, float(second.magnitude_m)
                 back = a2
+            elif first.kind == "spike":
+                continue  # a bad reading came back already: only a datum shift undoes it
             elif second.kind == "spike" and second.series == "residual":
                 # a storm hid the step back in the stage record: the residual's spike undoes
                 # the first step's storage jump
@@ -79,7 +81,7 @@ def offset_periods(ctx: FlagContext, flags: Sequence[Flag]) -> list[Flag]:
             if like_undoing(a1, a2):
                 found = (int(ctx.index.get_loc(pd.Timestamp(second.start))), back, second)
                 break
-        if found is None:
+        if found is None and first.kind == "datum_shift":
             # the step back in the stage record alone: after a shift the balance confirmed, an
             # outlying stage step of like size and opposite sign is its undoing
             e = stage_step_back(ctx, s0, m1, limit)
