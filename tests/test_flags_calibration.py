@@ -149,3 +149,21 @@ def test_qa_stuck_run_needs_a_catch_up_step():
     calm = np.full(30, 10.0)
     calm[20:] = 10.001  # a calm lake: repeats, then one resolution step
     assert qa.stuck_runs(calm, 4, 0.001).size == 0
+
+
+def test_seepage_leaves_out_the_flagged_leak_and_says_how_many(tmp_path):
+    # a 30-day leak on the seepage family: its days are flagged, left out of the fit and counted;
+    # the fitted law then holds the simulated truth (k = 0.012 m²/s, h0 = 1.0 m) in its interval
+    fault = Fault("leak", "2003-09-01", 30, 0.02)
+    lake, flags = _flags(tmp_path, "seepage", (fault,))
+    runs = [f for f in flags.items if f.kind == "run"]
+    assert runs and abs((pd.Timestamp(runs[0].start) - pd.Timestamp(fault.start)).days) <= 2
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        fit = lake.seepage
+    assert fit.selection["flagged"] >= 20
+    assert "flagged" in str(fit.summary())
+    lo, hi = fit.conf_int()["k"]
+    assert lo <= 0.012 <= hi
+    sel = fit.selection
+    assert fit.n == sel["considered"] - sum(v for k, v in sel.items() if k != "considered")
