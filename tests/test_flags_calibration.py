@@ -167,3 +167,13 @@ def test_seepage_leaves_out_the_flagged_leak_and_says_how_many(tmp_path):
     assert lo <= 0.012 <= hi
     sel = fit.selection
     assert fit.n == sel["considered"] - sum(v for k, v in sel.items() if k != "considered")
+
+
+def test_a_datum_shift_hidden_by_a_storm_is_found_by_its_aftermath(tmp_path):
+    # a 6 cm shift of the gauge zero on a flow-through lake, on a day of high flow: no event
+    # sees the step, the outflow computed from the shifted stage does (and no false runs follow)
+    fault = Fault("datum_shift", "2003-03-10", 1, 0.06)
+    _, flags = _flags(tmp_path, "flow_through", (fault,), seed=41, years=3)
+    shifts = [f for f in flags.items if f.kind == "datum_shift"]
+    assert any(abs((pd.Timestamp(f.start) - pd.Timestamp(fault.start)).days) <= 2 for f in shifts)
+    assert len([f for f in flags.items if f.kind in ("run", "level_shift")]) <= 1

@@ -7,7 +7,7 @@ from typing import TYPE_CHECKING
 from ..records import Correction
 from .context import build_context
 from .drift import drift_flags
-from .events import find_events
+from .events import find_events, with_hidden_shifts
 from .options import FlagOptions
 from .periods import offset_periods, stuck_flags
 from .result import Flags
@@ -91,6 +91,7 @@ def detect_flags(
         errors=errors,
     )
     events = find_events(ctx)  # step 1: spikes and datum shifts
+    events = with_hidden_shifts(ctx, events)  # datum shifts a storm hid from step 1
     seg = segment_residual(ctx, events)  # step 2: usual level and segments
     flags = fitted_aftermath(ctx, seg, events.flags)
     flags, covered, datum_starts = segment_flags(ctx, seg, flags, events.datum_starts)

@@ -17,7 +17,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from ..stats import Z95
-from .datum import datum_shift_flag, lasting_outflow_change
+from .datum import datum_shift_flag, hidden_shifts, lasting_outflow_change, level_change_shift
 from .result import Flag
 from .robust import rolling_robust_z
 
@@ -93,6 +93,38 @@ def find_events(ctx: FlagContext) -> Events:
         if flag.kind == "datum_shift":
             datum_starts.append(step.first)
     return Events(tuple(spans), tuple(flags), tuple(datum_starts), frozenset(by_lasting))
+
+
+def with_hidden_shifts(ctx: FlagContext, events: Events) -> Events:
+    """``events`` with the datum shifts found by their aftermath alone
+    (:func:`~lakebalance.flags.datum.hidden_shifts`) added as flags and shift positions."""
+    import dataclasses
+
+    clean = ctx.residual_m3.copy()
+    for a, b in events.spans:
+        clean[a : b + 1] = np.nan
+    import pandas as pd
+
+    known = {
+        int(ctx.index.get_loc(pd.Timestamp(f.start))): float(f.magnitude_m)
+        for f in events.flags
+        if f.kind == "datum_shift" and f.magnitude_m is not None
+    }
+    for d in events.datum_starts:
+        known.setdefault(int(d), float(ctx.step_m[d]))
+    found = hidden_shifts(ctx, clean, known)
+    if not found:
+        return events
+    flags = list(events.flags)
+    for j in found:
+        f = level_change_shift(ctx, j)
+        evidence = (*f.evidence, "the residual changed from that day by what the shifted stage "
+                    "does to the computed outflow (fitted beside the usual level)")  # fmt: skip
+        flags.append(dataclasses.replace(f, evidence=evidence))
+    flags.sort(key=lambda f: f.start)
+    return dataclasses.replace(
+        events, flags=tuple(flags), datum_starts=tuple(sorted((*events.datum_starts, *found)))
+    )
 
 
 def _significant_event(ctx: FlagContext, flag: Flag) -> bool:
