@@ -77,7 +77,18 @@ def detect_flags(
     4. *Drift*: a linear trend, tested with Newey–West errors, inside segments of at least
        ``drift_min_days``; reported when p < ``drift_alpha``.
 
-    Significance: |V| / sqrt(Σ σ_t²) over the flagged days, with σ_t the band's daily 1-σ
+    1b. *Hidden datum shifts*: on a lake with a computed outflow, stage steps no event saw are
+       tried as the aftermath regressor Q̂(h) − Q̂(h − δ) beside the usual level
+       (:func:`~lakebalance.flags.datum.hidden_shifts`).
+    5. *Offset periods*: a datum shift and its undoing within ``offset_max_days`` become one
+       flag with both ends (:func:`~lakebalance.flags.periods.offset_periods`).
+    6. *Stuck sensors*: repeated daily stages over which the residual says the lake moved
+       (:func:`~lakebalance.flags.periods.stuck_flags`).
+
+    Significance with ``errors``: |V| over the exact standard deviation of V under the error
+    model (:meth:`FlagContext.sigma_of_departure`); runs, level shifts and flow spikes are
+    kept at ``significance_threshold``, stage events at 1.96. Without it (the old rule):
+    |V| / sqrt(Σ σ_t²) over the flagged days, with σ_t the band's daily 1-σ
     (``sigma_m3``) or the residual's robust noise times the square root of the long-run variance
     ratio. Days are taken as independent in the band, a systematic error common to the whole
     record is part of the usual level.
