@@ -780,6 +780,7 @@ class Lake:
                 sigma_m3=self.balance.residual_sigma_m3(),
                 corrections=tuple(self.site.correction),
                 exclude=self.records.flatline_days("stage", daily.index),
+                errors=self.balance.error_model,
             )
 
         return self._step("flags", compute)

@@ -117,6 +117,8 @@ class UncertaintyOptions(Options):
     systematic: float | None = setting(None, unit="-", low=0.0, high=1.0)
     # over what the persistent part of each term's error is held
     systematic_period: Literal["record", "water_year"] = "record"
+    # lag-one autocorrelation of the day-to-day part of the term errors (AR(1))
+    daily_autocorrelation: float | None = setting(None, unit="-", low=0.0, high=0.99)
     # rating parameter sets drawn for the rating's share of the residual error
     rating_variants: int = setting(256, unit="ratings", low=2)
     boundary_rule: Literal["adjacent_mean", "fourth_order"] = (
@@ -247,6 +249,11 @@ class TermErrors:
     systematic_period : {"record", "water_year"}
         Over what the persistent part is held: the whole record (one bias per term; a gauge
         re-calibrated every year is better described by ``"water_year"``).
+    daily_autocorrelation : float
+        Lag-one autocorrelation φ (0 ≤ φ < 1) of the day-to-day part: a first-order
+        autoregressive error (Box & Jenkins, 1976, §3.2.4) that decays over about
+        −1/ln φ days, as a stream gauge's daily error does between shifts of its rating.
+        Default 0 (independent days); a daily record's φ is typically 0.3–0.8 (from memory).
     """
 
     inflow: float = 0.10
@@ -258,6 +265,7 @@ class TermErrors:
     stage_resolution_m: float = 0.003
     systematic: float = 0.5
     systematic_period: Literal["record", "water_year"] = "record"
+    daily_autocorrelation: float = 0.0
 
     @classmethod
     def from_options(
@@ -290,6 +298,7 @@ class TermErrors:
                 "release",
                 "area",
                 "systematic",
+                "daily_autocorrelation",
             )
             if getattr(options, name) is not None
         }
@@ -309,6 +318,10 @@ class TermErrors:
                 raise ValueError(f"relative error {name} must be >= 0, got {v!r}")
         if not (0.0 <= self.systematic <= 1.0):
             raise ValueError(f"systematic share must lie in [0, 1], got {self.systematic!r}")
+        if not (0.0 <= self.daily_autocorrelation < 1.0):
+            raise ValueError(
+                f"daily_autocorrelation must lie in [0, 1), got {self.daily_autocorrelation!r}"
+            )
         if not (self.stage_resolution_m >= 0):
             raise ValueError("stage resolution must be >= 0 m")
 
@@ -1214,6 +1227,7 @@ def residual_errors(
         g_e = (dq * tau[None, :]) @ w * SECONDS_PER_DAY
     else:
         g_s = g_e = np.zeros(n)
+    boundary_sd = _interpolation_sd(d, tv, area_fn)
     return ResidualErrors(
         random_sd_m3=np.where(ok, random_sd, 0.0),
         systematic_m3=math.sqrt(rho) * scaled,
@@ -1225,7 +1239,36 @@ def residual_errors(
         rating_m3=rating_m3,
         ok=ok,
         term_names=tuple(nm for nm, _ in term_cols),
+        random_ar1=float(errors.daily_autocorrelation),
+        boundary_sd_m=boundary_sd,
     )
+
+
+def _interpolation_sd(d: pd.DataFrame, term_volumes: Array, area_fn: StageFn) -> Array | None:
+    """1-σ interpolation error (m) of each day-boundary stage estimated from daily means.
+
+    Boundary b (between days b−1 and b) taken by a daily-mean rule (it equals the adjacent-mean
+    or the fourth-order value) errs by about a quarter of the change of the daily rise there:
+    |N_b − N_b−1| / (4 A_b), with N the gauged net inflow of a day (m³/d). Zero where a sub-daily
+    reading gave the boundary (see :mod:`lakebalance.errormodel`).
+    """
+    m = d["stage_m"].to_numpy(dtype=float)
+    n = m.size
+    if n < 3 or term_volumes.size == 0:
+        return None
+    bnd = np.r_[d["stage_start_m"].to_numpy(dtype=float), d["stage_end_m"].to_numpy()[-1:]]
+    from_rule = np.zeros(n + 1, dtype=bool)
+    for rule in ("adjacent_mean", "fourth_order"):
+        b, _ = _boundaries(m, None, rule)  # type: ignore[arg-type]
+        with np.errstate(invalid="ignore"):
+            from_rule |= np.isclose(bnd, b, rtol=0.0, atol=1e-9)
+    net = -np.sum(term_volumes, axis=0)  # gains positive (m³/d)
+    change = np.full(n + 1, np.nan)
+    change[1:-1] = np.abs(np.diff(net))
+    area = _at(area_fn, bnd)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        sd = np.where(from_rule & (area > 0), change / (4.0 * area), 0.0)
+    return np.nan_to_num(sd)
 
 
 def add_uncertainty(
@@ -1355,6 +1398,11 @@ def _draw_bands(
         rng.shuffle(variant)
     period_z: dict[int, Array] = {}
     res = model.resolution_m
+    bsd = None
+    if model.boundary_sd_m is not None and np.any(model.boundary_sd_m > 0):
+        bsd = np.asarray(model.boundary_sd_m, dtype=np.float32)
+    phi = float(model.random_ar1)
+    ar_state: Array | None = None  # the AR(1) deviate of the last day of the previous chunk
     for a, b in zip(starts, ends, strict=True):
         m = b - a
         p = int(model.period[a])
@@ -1364,14 +1412,27 @@ def _draw_bands(
         coef = np.vstack([model.area_m3[None, a:b], model.systematic_m3[:, a:b]])
         coef = np.ascontiguousarray(coef, np.float32)
         e = np.einsum("mk,kd->md", z, coef)  # small k: einsum's loops, no BLAS threads
-        e += _normal(rng, (draws, m)) * model.random_sd_m3[a:b].astype(np.float32)
+        z_day = _normal(rng, (draws, m))
+        if phi > 0:  # x_t = φ x_{t−1} + √(1−φ²) z_t, stationary from the first day
+            from scipy.signal import lfilter
+
+            if ar_state is None:  # the day before the record: a unit deviate of its own
+                ar_state = _normal(rng, (draws,))
+            zi = (phi * ar_state)[:, None]
+            z_day, _ = lfilter([math.sqrt(1.0 - phi * phi)], [1.0, -phi], z_day, axis=1, zi=zi)
+            z_day = z_day.astype(np.float32)
+            ar_state = z_day[:, -1].copy()
+        e += z_day * model.random_sd_m3[a:b].astype(np.float32)
         if variant is not None:
             e += model.rating_m3[variant, a:b]
-        if res > 0:
+        if res > 0 or bsd is not None:
             # boundary errors: the last boundary of a chunk is the first of the next one
             u = np.empty((draws, m + 1), dtype=np.float32)
             u[:, 0] = _uniform(rng, draws, res) if carry is None else carry
             u[:, 1:] = _uniform(rng, (draws, m), res)
+            if bsd is not None:  # interpolation of boundaries from daily means
+                first = 1 if carry is not None else 0
+                u[:, first:] += _normal(rng, (draws, m + 1 - first)) * bsd[a + first : b + 1]
             carry = u[:, -1].copy()
             e += u[:, :-1] * model.boundary_prev_m3[a:b].astype(np.float32)
             e += u[:, 1:] * model.boundary_next_m3[a:b].astype(np.float32)

@@ -6,11 +6,20 @@ The residual of day d (m³) is what the measured terms do not explain,
     e_d = Σ_k σ_k T_kd (√ρ z_k,p(d) + √(1−ρ) ε_kd)        terms: persistent + random parts
         + σ_A a (ΔV_d − P_d + E_d)                          area of the storage relation
         + R_v,d                                             rating (one variant per draw)
-        + c⁻_d δ_d + c⁺_d δ_d+1                            stage resolution at the boundaries
+        + c⁻_d δ_d + c⁺_d δ_d+1                            boundary stages: resolution and
+                                                            interpolation from daily means
 
 with σ_k the relative (1-σ) error of term k, ρ the share of its variance that persists, z one
 standard normal deviate per term and *period* (the whole record by default, or each water year),
-ε independent standard normals, a one standard normal for the record, δ_b ~ U(−r/2, r/2) the error
+δ_b also carries, where boundary b was estimated from daily means rather than read, an
+interpolation error of standard deviation |N_b − N_b−1| / (4 A_b): the stage path bends where the
+gauged net inflow N (m³/d) changes from one day to the next (a storm's onset), and the mean of two
+adjacent daily means misses the boundary stage by up to a quarter of the change of the daily rise
+(a kink of slope; for a smooth curve the error is h″/6, smaller), common practice, no source; it
+follows the gauged flows, so a bad stage reading does not widen its own band. And
+ε standard normals independent between terms and, from day to day, either independent or a
+first-order autoregressive (AR(1)) sequence of lag-one correlation φ (a gauge's daily error that
+decays over a few days, as a stream gauge's rating or a pan's exposure does), a one standard normal for the record, δ_b ~ U(−r/2, r/2) the error
 of boundary stage b (r the gauge resolution), c⁻_d = −A(h_s) + T Σ_j w_j Q′(h_j)(1−τ_j) and
 c⁺_d = A(h_e) + T Σ_j w_j Q′(h_j) τ_j. The rating part R_v,d = T Σ_j w_j [Q(θ_v, h_j) − Q(θ̂, h_j)]
 is the day's outflow volume under rating variant θ_v drawn from the fit's full covariance (or its
@@ -24,6 +33,8 @@ judged against the persistent rating and term errors that a daily band alone doe
 
 References
 ----------
+Box, G. E. P. & Jenkins, G. M. (1976). Time Series Analysis: Forecasting and Control, rev. ed.,
+§3.2.4 (autocorrelation of a first-order autoregressive process, ρ_k = φ^k).
 Winter, T. C. (1981). Uncertainties in estimating the water balance of lakes. Water Resources
 Bulletin 17(1), 82–115 (typical term errors; the values used are from memory).
 """
@@ -36,7 +47,7 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["ResidualErrors", "PARTS"]
+__all__ = ["ResidualErrors", "PARTS", "ar1_quadratic"]
 
 Array = np.ndarray
 
@@ -68,6 +79,14 @@ class ResidualErrors:
         Days whose residual is known (the parts are zero elsewhere).
     term_names : tuple of str
         The terms of the rows of ``systematic_m3``.
+    boundary_sd_m : ndarray (days + 1,) or None
+        Standard deviation (m) of each day-boundary stage's interpolation error where the
+        boundary was estimated from daily means (zero where a sub-daily reading gave it); it
+        enters through the same coefficients as the resolution.
+    random_ar1 : float
+        Lag-one autocorrelation φ (0 ≤ φ < 1, -) of the day-to-day part: its errors on days i
+        and j correlate as φ^|i−j| (stationary AR(1) of unit variance; Box & Jenkins, 1976,
+        §3.2.4). Zero: independent from day to day.
     """
 
     random_sd_m3: Array
@@ -80,6 +99,12 @@ class ResidualErrors:
     rating_m3: Array | None = field(default=None, repr=False)
     ok: Array = field(default_factory=lambda: np.zeros(0, bool))
     term_names: tuple[str, ...] = ()
+    random_ar1: float = 0.0
+    boundary_sd_m: Array | None = field(default=None, repr=False)
+
+    def __post_init__(self) -> None:
+        if not (0.0 <= float(self.random_ar1) < 1.0):
+            raise ValueError(f"random_ar1 must lie in [0, 1), got {self.random_ar1!r}")
 
     @property
     def days(self) -> int:
@@ -121,7 +146,7 @@ class ResidualErrors:
         if unknown:
             raise ValueError(f"unknown error parts {sorted(unknown)}; parts are {PARTS}")
         if "random" in parts:
-            cov += (w * self.random_sd_m3[None, :] ** 2) @ w.T
+            cov += ar1_quadratic(w * self.random_sd_m3[None, :], float(self.random_ar1))
         if "systematic" in parts and self.systematic_m3.size:
             labels, inverse = np.unique(self.period, return_inverse=True)
             for row in self.systematic_m3:  # each term: one deviate per period
@@ -135,12 +160,15 @@ class ResidualErrors:
         if "rating" in parts and self.rating_m3 is not None and self.rating_variants > 1:
             sums = w @ self.rating_m3.T.astype(float)  # (q, V)
             cov += np.atleast_2d(np.cov(sums, ddof=1))
-        if "resolution" in parts and self.resolution_m > 0:
+        if "resolution" in parts and (self.resolution_m > 0 or self.boundary_sd_m is not None):
             # boundary b is the last of day b-1 and the first of day b
             coef = np.zeros((q, self.days + 1))
             coef[:, :-1] += w * self.boundary_prev_m3[None, :]
             coef[:, 1:] += w * self.boundary_next_m3[None, :]
-            cov += (self.resolution_m**2 / 12.0) * (coef @ coef.T)
+            var_b = np.full(self.days + 1, self.resolution_m**2 / 12.0)
+            if self.boundary_sd_m is not None:
+                var_b = var_b + np.nan_to_num(self.boundary_sd_m) ** 2
+            cov += (coef * var_b[None, :]) @ coef.T
         return cov
 
     def sd_of_sum(self, weights: Array, parts: Sequence[str] = PARTS) -> float:
@@ -160,10 +188,11 @@ class ResidualErrors:
         var = var + np.sum(self.systematic_m3**2, axis=0)
         if self.rating_m3 is not None and self.rating_variants > 1:
             var = var + np.var(self.rating_m3.astype(float), axis=0, ddof=1)
-        if self.resolution_m > 0:
-            var = var + (self.resolution_m**2 / 12.0) * (
-                self.boundary_prev_m3**2 + self.boundary_next_m3**2
-            )
+        if self.resolution_m > 0 or self.boundary_sd_m is not None:
+            var_b = np.full(self.days + 1, self.resolution_m**2 / 12.0)
+            if self.boundary_sd_m is not None:
+                var_b = var_b + np.nan_to_num(self.boundary_sd_m) ** 2
+            var = var + self.boundary_prev_m3**2 * var_b[:-1] + self.boundary_next_m3**2 * var_b[1:]
         return np.where(self.ok, np.sqrt(var), np.nan)
 
     def to_dict(self) -> dict:
@@ -181,6 +210,36 @@ class ResidualErrors:
             "record_sum_sd_m3": float(np.sqrt(total)),
             "variance_share_of_record_sum": shares,
         }
+
+
+def ar1_quadratic(u: Array, phi: float) -> Array:
+    """``U R Uᵀ`` for the correlation matrix ``R_ij = φ^|i−j|`` of a stationary AR(1), in O(q·n).
+
+    Parameters
+    ----------
+    u : ndarray (q, n)
+        Rows of coefficients (each day's weight times its standard deviation).
+    phi : float
+        Lag-one autocorrelation (0 ≤ φ < 1).
+
+    Returns
+    -------
+    ndarray (q, q)
+
+    Notes
+    -----
+    ``(R u)_i = F_i + B_i − u_i`` with the forward sum ``F_i = Σ_{l≤i} φ^{i−l} u_l`` and the
+    backward sum ``B_i = Σ_{l≥i} φ^{l−i} u_l``, each one first-order recursive filter
+    (``F_i = u_i + φ F_{i−1}``), so the n × n matrix R is never formed.
+    """
+    u = np.atleast_2d(np.asarray(u, dtype=float))
+    if phi == 0.0:
+        return u @ u.T
+    from scipy.signal import lfilter
+
+    forward = lfilter([1.0], [1.0, -phi], u, axis=1)
+    backward = lfilter([1.0], [1.0, -phi], u[:, ::-1], axis=1)[:, ::-1]
+    return u @ (forward + backward - u).T
 
 
 def rating_variant_volumes(

@@ -43,6 +43,8 @@ __all__ = [
     "returns_to_neighbours",
     "step_scale",
     "flatlines",
+    "stuck_runs",
+    "storm_days",
     "implausible_units",
     "outside_storage",
     "outside_storage_findings",
@@ -56,6 +58,7 @@ class QAOptions(Options):
     spike_window: int = setting(7, unit="readings", low=3)  # rolling median window
     spike_threshold: float = setting(6.0, unit="-", low=0.0, low_open=True)  # robust z of a spike
     flatline_days: int = setting(10, unit="days", low=2)  # identical daily values of a flat-line
+    stuck_days: int = setting(4, unit="days", low=2)  # repeats then a catch-up step: stuck
     spikes: Literal["flag", "remove"] = "flag"  # keep spikes (flagged) or set them missing
 
 
@@ -291,7 +294,55 @@ def spikes(
     found = spike_scores(x, window, resolution) > threshold
     if returns and found.any():
         found &= returns_to_neighbours(x)
+        # a reading next to a gap cannot be seen to come back: the first day after a gap (or
+        # the last before one) is not judged a spike (common practice, no source)
+        prev = np.concatenate(([np.nan], x[:-1]))
+        nxt = np.concatenate((x[1:], [np.nan]))
+        found &= np.isfinite(prev) & np.isfinite(nxt)
     return found
+
+
+def storm_days(gain: np.ndarray, window: int = 31, threshold: float = 3.0) -> np.ndarray:
+    """Days (mask) of a storm: the gauged gain (inflow plus rain, any one unit) of the day or
+    the day before stands out of its centred rolling median by more than ``threshold`` robust
+    scales, or is more than twice that median.
+
+    A lake's stage rises on such days for a reason the gauges show, and a rise consistent with
+    the inflow is not a spike of the stage record (Hampel identifier on the gain, Hampel, 1974;
+    the one-day lag is the lake's response, common practice, no source).
+    """
+    g = np.asarray(gain, dtype=float)
+    med = rolling_median(g, window)
+    dev = g - med
+    finite = dev[np.isfinite(dev)]
+    scale = MAD_TO_SIGMA * float(np.median(np.abs(finite))) if finite.size else 0.0
+    with np.errstate(invalid="ignore"):
+        high = (dev > threshold * max(scale, 1e-12)) | (g > 2.0 * np.abs(med))
+    high = np.nan_to_num(high, nan=0).astype(bool) & np.isfinite(g)
+    return high | np.concatenate(([False], high[:-1]))
+
+
+def stuck_runs(
+    values: np.ndarray, min_days: int, resolution: float = 0.0, factor: float = 3.0
+) -> np.ndarray:
+    """Runs of at least ``min_days`` identical daily values after which the series comes back
+    with a step larger than ``factor`` times both the gauge ``resolution`` and the robust scale
+    of the day-to-day changes: a sensor that stuck while the lake moved and then caught up.
+
+    Returns an array (n_runs, 2) of start (the last good value) and stop (exclusive, the day
+    it came back). Shorter than a flat-line (:func:`flatlines`), such a run is told from a calm
+    lake by the catch-up step (common practice, no source).
+    """
+    x = np.asarray(values, dtype=float)
+    r = flatlines(x, min_days)
+    if r.size == 0:
+        return r
+    scale = max(step_scale(x), float(resolution or 0.0))
+    keep = []
+    for a, b in r:  # loop over runs (few)
+        if b < x.size and np.isfinite(x[b]) and abs(x[b] - x[a]) > factor * scale:
+            keep.append((a, b))
+    return np.asarray(keep, dtype=np.int64).reshape(-1, 2)
 
 
 def returns_to_neighbours(values: np.ndarray, ratio: float = 2.0) -> np.ndarray:

@@ -82,6 +82,7 @@ FindingKind = Literal[
     "out_of_range",
     "spike",
     "flatline",
+    "stuck",
     "low_coverage",
     "implausible_units",
     "unparsed_date",

@@ -36,6 +36,7 @@ import pandas as pd
 FT = 0.3048  # m per international foot (NIST SP 811, exact)
 CFS = FT**3  # m³/s per ft³/s
 INCH = 0.0254  # m per inch (exact)
+INFLOW_AR1 = 0.6  # lag-one autocorrelation of the simulated inflow gauge error (-)
 T = 86400.0  # s per day
 
 FaultKind = Literal[
@@ -330,9 +331,9 @@ def _write_records(f, rng, root, idx, times, stage, forcing) -> dict:
     # inflow: persistent bias (one draw for the record) and AR(1) day-to-day error
     bias = f.inflow_bias * rng.standard_normal()
     err = np.zeros(n)
-    z = rng.normal(0.0, f.inflow_random * math.sqrt(1 - 0.6**2), n)
+    z = rng.normal(0.0, f.inflow_random * math.sqrt(1 - INFLOW_AR1**2), n)
     for i in range(1, n):
-        err[i] = 0.6 * err[i - 1] + z[i]
+        err[i] = INFLOW_AR1 * err[i - 1] + z[i]
     inflow = forcing["inflow"] * (1.0 + bias + err)
     evap = forcing["evaporation"] * (1.0 + f.evaporation_random * rng.standard_normal(n))
     rain = forcing["rain"]
@@ -446,6 +447,7 @@ def _site_text(f: LakeFamily, seed: int, files: dict) -> str:
         "draws = 200",
         f"inflow = {total:.6g}",
         f"systematic = {f.inflow_bias**2 / total**2:.6g}",
+        f"daily_autocorrelation = {INFLOW_AR1:g}",
         "rain = 0.0",
         f"evaporation = {f.evaporation_random:.6g}",
         "withdrawal = 0.02",

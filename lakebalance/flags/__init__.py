@@ -30,7 +30,8 @@ as a storage jump), :mod:`~lakebalance.flags.datum` (the one datum-shift flag bu
 and lasting change of a shift), :mod:`~lakebalance.flags.level` (the usual level),
 :mod:`~lakebalance.flags.changepoints` (change points, dating of runs),
 :mod:`~lakebalance.flags.segments` (level shifts, runs, datum shifts seen by their aftermath),
-:mod:`~lakebalance.flags.drift`, :mod:`~lakebalance.flags.result` (``Flag``, ``Flags``) and
+:mod:`~lakebalance.flags.drift`, :mod:`~lakebalance.flags.periods` (offset periods with both
+ends, stuck sensors), :mod:`~lakebalance.flags.result` (``Flag``, ``Flags``) and
 :mod:`~lakebalance.flags.driver` (:func:`detect_flags`).
 """
 

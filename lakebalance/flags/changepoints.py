@@ -205,8 +205,8 @@ def date_run(
     With independent normal errors of known σ_t and a usual level of 0 outside the run, a run
     of unknown mean μ on [s, e] raises the log-likelihood by (Σ w_t d_t)² / (2 Σ w_t),
     w_t = 1/σ_t², at μ̂ = Σ w_t d_t / Σ w_t (the generalised likelihood ratio of a mean shift;
-    Hinkley, 1970). The start is chosen with the end fixed, then the end with the new start,
-    each within ``reach`` days of the segmentation's.
+    Hinkley, 1970), maximised jointly over both ends, each within ``reach`` days of the
+    segmentation's.
 
     References
     ----------
@@ -229,9 +229,12 @@ def date_run(
             return np.where(sw > 0, swd**2 / sw, -np.inf)
 
     starts = np.arange(max(0, first - reach), min(last, first + reach) + 1)
-    if starts.size:
-        first = int(starts[np.argmax(gain(starts, np.full(starts.size, last)))])
     ends = np.arange(max(first, last - reach), min(n - 1, last + reach) + 1)
-    if ends.size:
-        last = int(ends[np.argmax(gain(np.full(ends.size, first), ends))])
-    return first, last
+    if not (starts.size and ends.size):
+        return first, last
+    # both ends at once over the (2 reach + 1)² grid (a few hundred sums from the cumulative
+    # sums): moving one end alone can lock the other to a noisy day
+    gs, ge = np.meshgrid(starts, ends, indexing="ij")
+    g = np.where(ge >= gs, gain(gs.ravel(), ge.ravel()).reshape(gs.shape), -np.inf)
+    i, j = np.unravel_index(int(np.argmax(g)), g.shape)
+    return int(starts[i]), int(ends[j])

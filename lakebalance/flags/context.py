@@ -23,6 +23,9 @@ from .stage import flow_adjusted_stage_change, gauged_net_flow, stage_step_anoma
 if TYPE_CHECKING:  # pragma: no cover
     import pandas as pd
 
+    from ..errormodel import ResidualErrors
+    from .level import LevelDesign
+
 #: Fewest days with a residual that the detectors work on (common practice, no source: a noise
 #: scale and a rolling median need a handful of values).
 MIN_RESIDUAL_DAYS = 10
@@ -69,6 +72,9 @@ class FlagContext:
         The site file's corrections in force.
     mean_area_m2 : float
         Mean lake area of the record (m²; NaN when unknown).
+    errors : ResidualErrors or None
+        The balance's error model (:mod:`lakebalance.errormodel`); when given, every
+        significance is measured against it.
     """
 
     options: FlagOptions
@@ -92,6 +98,7 @@ class FlagContext:
     band_source: str
     corrections: tuple[Correction, ...]
     mean_area_m2: float
+    errors: ResidualErrors | None = None
 
     def __post_init__(self) -> None:
         # the daily arrays are kept as read-only views: a detector that wrote into one would
@@ -107,6 +114,16 @@ class FlagContext:
     def n(self) -> int:
         """Number of days."""
         return int(self.residual_m3.size)
+
+    @property
+    def resolution_m(self) -> float:
+        """Gauge resolution (m) of the error model (0 without one)."""
+        return float(self.errors.resolution_m) if self.errors is not None else 0.0
+
+    def too_small_for_a_shift(self, step_m: float) -> bool:
+        """A stage step smaller than twice the gauge resolution is not called a datum shift
+        (the gauge cannot tell it from its own rounding; common practice, no source)."""
+        return abs(step_m) < 2.0 * self.resolution_m
 
     @property
     def departure_m3(self) -> np.ndarray:
@@ -133,9 +150,18 @@ class FlagContext:
     def sigma_of(self, a: int, b: int, ratio: float) -> float:
         """1-σ uncertainty (m³) of the summed residual of days ``a``..``b``.
 
-        From the balance's band when one was given, else from the noise scale of the days with
+        From the error model when one was given (:meth:`ResidualErrors.sd_of_window`), else
+        from the balance's band (days independent), else from the noise scale of the days with
         a residual times the square root of the long-run variance ratio ``ratio``.
         """
+        if self.errors is not None:
+            ok = np.isfinite(self.residual_m3[a : b + 1])
+            if ok.any():
+                w = np.zeros(self.n)
+                w[a : b + 1] = ok
+                sd = self.errors.sd_of_sum(w)
+                if sd > 0:
+                    return sd
         if self.band_m3 is not None:
             s = self.band_m3[a : b + 1]
             s = s[np.isfinite(s)]
@@ -146,6 +172,27 @@ class FlagContext:
             return float(self.noise_m3 * math.sqrt(ratio))
         return float(math.sqrt(ratio * np.sum(self.scale_m3[a : b + 1][ok] ** 2)))
 
+    def sigma_of_departure(
+        self, a: int, b: int, valid: np.ndarray, design: LevelDesign | None, ratio: float
+    ) -> float:
+        """1-σ uncertainty (m³) of the summed departure from the usual level over ``a``..``b``.
+
+        With an error model: the exact standard deviation of ``Σ_d w_d e_d``, the weights
+        ``w`` of the departure (:meth:`LevelDesign.departure_weights`: the window's days minus
+        their share of the fitted level), through every part of the model: the rating variants
+        (the outflow of each day under each rating drawn from the fit), the persistent share of
+        each term held over its period, the AR(1) day-to-day part, the area and the gauge
+        resolution. Else :meth:`sigma_of`.
+        """
+        if self.errors is None or design is None:
+            return self.sigma_of(a, b, ratio)
+        win = np.zeros(self.n)
+        win[a : b + 1] = np.asarray(valid, dtype=float)[a : b + 1]
+        if not win.any():
+            return self.sigma_of(a, b, ratio)
+        sd = self.errors.sd_of_sum(design.departure_weights(win))
+        return sd if sd > 0 else self.sigma_of(a, b, ratio)
+
 
 def build_context(
     daily: pd.DataFrame,
@@ -154,6 +201,7 @@ def build_context(
     sigma_m3: pd.Series | np.ndarray | None = None,
     corrections: tuple[Correction, ...] = (),
     exclude: pd.Series | np.ndarray | None = None,
+    errors: ResidualErrors | None = None,
 ) -> FlagContext:
     """The :class:`FlagContext` of a daily balance (arguments as :func:`detect_flags`).
 
@@ -190,6 +238,8 @@ def build_context(
         )
     stage = column(daily, "stage_m")
     area = column(daily, "area_m2")
+    if errors is not None and errors.days != n:
+        raise ValueError("errors must model one residual per day of the balance")
     if sigma_m3 is not None:
         band = np.asarray(sigma_m3, dtype=float)
         if band.shape != r.shape:
@@ -198,6 +248,11 @@ def build_context(
     else:
         band = None
         band_source = "noise of the residual (no uncertainty band given)"
+    if errors is not None:
+        band_source = (
+            "the balance's error model (rating variants, persistent and day-to-day term "
+            "errors, area, gauge resolution)"
+        )
     mean_area = np.nanmean(area) if area is not None and np.isfinite(area).any() else float("nan")
     # noise scale of each day (for detection)
     _, med_r, _ = rolling_robust_z(r, options.outlier_window)
@@ -228,6 +283,7 @@ def build_context(
         band_source=band_source,
         corrections=tuple(corrections),
         mean_area_m2=mean_area,
+        errors=errors,
     )
 
 

@@ -156,6 +156,8 @@ def mirrored_stage_step(ctx: FlagContext, a: int) -> int | None:
         return None
     dev0, area = ctx.departure_m3, ctx.area_m2
     for cand in stage_steps_near(a, ctx.step_z, ctx.step_m, ctx.options):
+        if ctx.too_small_for_a_shift(float(ctx.step_m[cand])):
+            continue
         seen = float(np.nansum(dev0[max(cand - 1, 0) : cand + 2]))
         jump_m3 = float(ctx.step_m[cand] * area[cand]) if area is not None else float("nan")
         if abs(seen - jump_m3) <= 0.5 * abs(jump_m3):
@@ -343,3 +345,85 @@ def lasting_outflow_change(
         f"{step_m:+.3f} m move of the gauge zero raises the computed outflow by "
         f"{expected:+,.0f} m³/d (outflow slope {slope:,.0f} m³/d per m)"
     )
+
+
+def hidden_shifts(
+    ctx: FlagContext, clean_m3: np.ndarray, known: dict[int, float], *, z_min: float = 8.0
+) -> list[int]:
+    """Datum shifts no event saw, found by the aftermath they leave in the computed outflow.
+
+    On a lake whose outflow is computed from the stage, a gauge zero that moves by δ on day j
+    raises the computed outflow by Q̂(h_t) − Q̂(h_t − δ) from then on (:func:`aftermath_shape`),
+    a change that follows the stage; a storm on day j can hide the step itself from the event
+    detector. Each stage step of at least twice the resolution and |robust z| ≥
+    ``shift_stage_z`` is tried as a regressor beside the usual level a + b (h − h̄) (weighted
+    least squares, weights 1/scale²); it is a datum shift when its coefficient lies within half
+    of 1 (the residual changed by what the shift predicts) and its t-value, with the long-run
+    variance ratio of the weighted residuals, is at least ``z_min``. The best is taken, then the
+    search is repeated with it in the level, up to three shifts. The aftermath of the shifts
+    already ``known`` (position → step, m) is in the level from the start. Common practice, no
+    source.
+
+    Returns
+    -------
+    list of int
+        Positions of the shifts found.
+    """
+    from .robust import long_run_variance_ratio
+
+    if ctx.stage_m is None or ctx.outflow_m3 is None or ctx.step_z is None:
+        return []
+    h, r, sc = ctx.stage_m, np.asarray(clean_m3, dtype=float), ctx.scale_m3
+    ok = np.isfinite(h) & np.isfinite(r) & np.isfinite(sc) & (sc > 0)
+    if ok.sum() < 90:
+        return []
+    w = np.where(ok, 1.0 / np.where(ok, sc, 1.0) ** 2, 0.0)
+    sw = np.sqrt(w)
+    h_mean = float(np.mean(h[ok]))
+    cols = [np.ones(ctx.n), np.where(ok, h - h_mean, 0.0)]
+    for j, step in known.items():
+        x = aftermath_shape(h, ctx.outflow_m3, j, float(step))
+        if x is not None:
+            cols.append(np.where(ok, x, 0.0))
+    res_min = 2.0 * ctx.resolution_m
+    cum = np.cumsum(ok)
+    near = ctx.options.spike_days + 1
+    cand = [
+        int(j)
+        for j in np.flatnonzero(
+            (np.abs(np.nan_to_num(ctx.step_z)) >= 1.0) & (np.abs(ctx.step_m) >= max(res_min, 1e-9))
+        )
+        if cum[j] >= 30 and cum[-1] - cum[j] >= 30
+    ]
+    found: list[int] = []
+    for _ in range(3):  # a few shifts at most
+        taken = list(known) + found
+        base = np.column_stack(cols)
+        best = None
+        for j in cand:  # loop over candidate days (a few per cent of the record)
+            if any(abs(j - d) <= near for d in taken):
+                continue
+            x = aftermath_shape(h, ctx.outflow_m3, j, float(ctx.step_m[j]))
+            if x is None:
+                continue
+            design = np.column_stack([base, np.where(ok, x, 0.0)]) * sw[:, None]
+            y = np.where(ok, r, 0.0) * sw
+            coef, *_ = np.linalg.lstsq(design, y, rcond=None)
+            c = float(coef[-1])
+            if not 0.5 <= c <= 1.5:
+                continue
+            resid = (y - design @ coef)[ok]
+            dof = max(int(ok.sum()) - design.shape[1], 1)
+            s2 = float(resid @ resid) / dof * long_run_variance_ratio(resid)
+            try:
+                cov = np.linalg.inv(design.T @ design) * s2
+            except np.linalg.LinAlgError:
+                continue
+            tval = c / np.sqrt(max(cov[-1, -1], 1e-300))
+            if tval >= z_min and (best is None or tval > best[1]):
+                best = (j, tval, np.where(ok, x, 0.0))
+        if best is None:
+            break
+        found.append(best[0])
+        cols.append(best[2])
+    return found

@@ -17,7 +17,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from ..stats import Z95
-from .datum import datum_shift_flag, lasting_outflow_change
+from .datum import datum_shift_flag, hidden_shifts, lasting_outflow_change, level_change_shift
 from .result import Flag
 from .robust import rolling_robust_z
 
@@ -87,12 +87,57 @@ def find_events(ctx: FlagContext) -> Events:
         if step.lasting:
             by_lasting.add(step.first)
         flag = event_flag(ctx, a, b, step)
-        if flag is None:
+        if flag is None or not _significant_event(ctx, flag):
             continue
         flags.append(flag)
         if flag.kind == "datum_shift":
             datum_starts.append(step.first)
     return Events(tuple(spans), tuple(flags), tuple(datum_starts), frozenset(by_lasting))
+
+
+def with_hidden_shifts(ctx: FlagContext, events: Events) -> Events:
+    """``events`` with the datum shifts found by their aftermath alone
+    (:func:`~lakebalance.flags.datum.hidden_shifts`) added as flags and shift positions."""
+    import dataclasses
+
+    clean = ctx.residual_m3.copy()
+    for a, b in events.spans:
+        clean[a : b + 1] = np.nan
+    import pandas as pd
+
+    known = {
+        int(ctx.index.get_loc(pd.Timestamp(f.start))): float(f.magnitude_m)
+        for f in events.flags
+        if f.kind == "datum_shift" and f.magnitude_m is not None
+    }
+    for d in events.datum_starts:
+        known.setdefault(int(d), float(ctx.step_m[d]))
+    found = hidden_shifts(ctx, clean, known)
+    if not found:
+        return events
+    flags = list(events.flags)
+    for j in found:
+        f = level_change_shift(ctx, j)
+        evidence = (*f.evidence, "the residual changed from that day by what the shifted stage "
+                    "does to the computed outflow (fitted beside the usual level)")  # fmt: skip
+        flags.append(dataclasses.replace(f, evidence=evidence))
+    flags.sort(key=lambda f: f.start)
+    return dataclasses.replace(
+        events, flags=tuple(flags), datum_starts=tuple(sorted((*events.datum_starts, *found)))
+    )
+
+
+def _significant_event(ctx: FlagContext, flag: Flag) -> bool:
+    """Whether an event's volume stands out of the error model (always, without one).
+
+    A spike of a flow term rests on the residual alone: it must reach
+    ``significance_threshold``. A stage event (bad reading, datum shift) also has its own
+    outlying stage step, so its storage jump need only reach the two-sided 95 % quantile.
+    """
+    if ctx.errors is None:
+        return True
+    need = ctx.options.significance_threshold if flag.series == "residual" else Z95
+    return flag.significance >= need
 
 
 def read_stage_step(ctx: FlagContext, a: int, b: int) -> StageStep:
@@ -149,9 +194,18 @@ def read_stage_step(ctx: FlagContext, a: int, b: int) -> StageStep:
             mirrored = abs(float(c_seen[-1]))
             seen_step = abs(c_seen[-1] - implied) <= 0.5 * abs(implied)
         # and the mirror must stand out of the residual's noise on those days (storm days are
-        # noisy: a flood's timing error is no stage fault)
-        sd = math.sqrt(float(np.nansum(ctx.scale_m3[lo_i:hi_i] ** 2)))
-        seen_step = seen_step and mirrored >= ctx.options.outlier_threshold * sd
+        # noisy: a flood's timing error is no stage fault). A bad reading's mirror is the
+        # running sum up to its peak (with daily-mean boundaries, half the jump on the day
+        # before and half undone the day after), judged over those days only; the outlying
+        # stage step is evidence of its own, so the mirror needs 3 noise scales, not 5
+        if reversed_:
+            peak_at = int(np.argmax(np.abs(c_seen)))
+            sd = math.sqrt(float(np.nansum(ctx.scale_m3[lo_i : lo_i + peak_at + 1] ** 2)))
+            need = min(3.0, ctx.options.outlier_threshold)
+        else:
+            sd = math.sqrt(float(np.nansum(ctx.scale_m3[lo_i:hi_i] ** 2)))
+            need = ctx.options.outlier_threshold
+        seen_step = seen_step and mirrored >= need * sd
     elif np.isfinite(implied):
         seen_step = False  # no balance on those days to confirm the step
     if not seen_step and not reversed_ and has_balance:
@@ -202,6 +256,8 @@ def event_flag(ctx: FlagContext, a: int, b: int, step: StageStep) -> Flag | None
         note = describe_flows(ctx, step.first, jump_m3=step.implied_m3)
         if note:
             evidence.append(note)
+    if step.seen and not step.reversed and ctx.too_small_for_a_shift(step.net_m):
+        return _flow_spike(ctx, a, b, list(step.evidence))  # no step the gauge can resolve
     if step.seen and not step.reversed:
         return _event_datum_shift(ctx, a, b, step, evidence)
     if step.seen:

@@ -2,7 +2,39 @@
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
+
+
+@dataclass(frozen=True, eq=False)
+class LevelDesign:
+    """The regression behind a usual level, for the error of a departure from it.
+
+    ``design`` (days × p) holds the regressors (NaN-free on the ``fit`` days), ``fit`` the days
+    the level was fitted on and ``weight`` their weights (1 / scale², per m⁶).
+    """
+
+    design: np.ndarray
+    fit: np.ndarray
+    weight: np.ndarray
+
+    def departure_weights(self, window: np.ndarray) -> np.ndarray:
+        """Day weights ``w`` such that ``Σ_window (r − level) = Σ_d w_d r_d`` (-).
+
+        ``w = 1_window − (1_windowᵀ X) (Xᵀ W X)⁻¹ Xᵀ W`` on the fit days, with W the weights:
+        the fitted level of the window is a weighted mean of the fit days' residuals, so the
+        errors they share (a bias held over the record, a rating error at the usual stages)
+        partly cancel in the departure (weighted least squares; the Huber weights of the
+        robust fit are near one away from the flagged runs).
+        """
+        win = np.asarray(window, dtype=float)
+        x = np.where(self.fit[:, None], self.design, 0.0)
+        xw = x * self.weight[:, None]
+        gram = x.T @ xw
+        row = np.nan_to_num(win @ np.nan_to_num(self.design))
+        coef = np.linalg.lstsq(gram, row, rcond=None)[0]
+        return win - xw @ coef
 
 
 def usual_level(
@@ -44,7 +76,7 @@ def usual_level(
     and stays there (common practice, no source); fitting it keeps the aftermath from passing
     for a level shift or from tilting the usual level of the rest of the record.
     """
-    level, note, _ = usual_level_fit(residual_m3, stage_m, scale_m3, shifts)
+    level, note, _, _ = usual_level_fit(residual_m3, stage_m, scale_m3, shifts)
     return level, note
 
 
@@ -54,8 +86,9 @@ def usual_level_fit(
     scale_m3: np.ndarray,
     shifts: tuple[int, ...] = (),
     shapes: dict[int, np.ndarray] | None = None,
-) -> tuple[np.ndarray, str, dict[int, float]]:
-    """:func:`usual_level` and the fitted step (m³/d) at each datum shift position.
+) -> tuple[np.ndarray, str, dict[int, float], LevelDesign]:
+    """:func:`usual_level`, the fitted step (m³/d) at each datum shift position and the
+    :class:`LevelDesign` of the fit.
 
     ``shapes`` gives, for a shift position, the regressor of its aftermath (m³/d, zero before
     it) used in place of the plain indicator; its fitted step is reported as the coefficient
@@ -70,7 +103,9 @@ def usual_level_fit(
         ok &= np.isfinite(h)
     if ok.sum() < 30:
         med = float(np.nanmedian(r)) if np.isfinite(r).any() else 0.0
-        return np.full(r.shape, med), f"constant {med:,.0f} m³/d", {}
+        fit = np.isfinite(r)
+        design = LevelDesign(np.ones((r.size, 1)), fit, np.where(fit, 1.0, 0.0))
+        return np.full(r.shape, med), f"constant {med:,.0f} m³/d", {}, design
     import statsmodels.api as sm
 
     t = np.arange(r.size)
@@ -106,4 +141,5 @@ def usual_level_fit(
         note += f" {params[1]:+,.0f} (h − {h_mean:.2f} m)"
     if steps:
         note += "".join(f" {c:+,.0f} after a datum shift" for c in fitted_steps.values())
-    return level, note + " m³/d", fitted_steps
+    weight = np.where(ok, 1.0 / np.where(ok, s, 1.0) ** 2, 0.0)
+    return level, note + " m³/d", fitted_steps, LevelDesign(design, ok, weight)

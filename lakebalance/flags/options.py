@@ -26,4 +26,12 @@ class FlagOptions(Options):
     drift_alpha: float = setting(
         0.001, unit="-", low=0.0, high=1.0, low_open=True, high_open=True
     )  # significance level of the drift test
+    # significance (volume / its 1-σ under the balance's error model) a run must reach
+    significance_threshold: float = setting(4.0, unit="-", low=0.0)
+    # longest offset period: a step and its undoing within it are one flag
+    offset_max_days: int = setting(200, unit="days", low=1)
+    # fewest repeated daily stages tested as a stuck sensor
+    stuck_days: int = setting(4, unit="days", low=2)
+    # significance under the error model of the residual over repeated stages (stuck sensor)
+    stuck_threshold: float = setting(3.0, unit="-", low=0.0)
     shift_stage_z: float = setting(2.0, unit="-", low=0.0)  # robust z of a mirrored stage step

@@ -16,7 +16,7 @@ if TYPE_CHECKING:  # pragma: no cover
     import pandas as pd
 
 
-FlagKind = Literal["spike", "datum_shift", "level_shift", "run", "drift"]
+FlagKind = Literal["spike", "datum_shift", "offset_period", "stuck", "level_shift", "run", "drift"]
 
 
 @dataclass(frozen=True)
@@ -25,8 +25,9 @@ class Flag:
 
     Attributes
     ----------
-    kind : {"spike", "datum_shift", "level_shift", "run", "drift"}
-        What the detectors saw.
+    kind : {"spike", "datum_shift", "offset_period", "stuck", "level_shift", "run", "drift"}
+        What the detectors saw (an offset period is a stage read off between its two ends; a
+        stuck sensor repeated its reading while the balance says the lake moved).
     start, end : str
         ISO dates of the first and last flagged day.
     series : str

@@ -25,7 +25,7 @@ from .datum import (
     outflow_note,
     with_evidence,
 )
-from .level import usual_level_fit
+from .level import LevelDesign, usual_level_fit
 from .result import Flag
 from .robust import cusum_runs, quiet_nan_warnings, span_mean
 
@@ -58,6 +58,8 @@ class Segmentation:
         Mean of ``clean_m3`` over each segment (m³/d).
     baseline_m3 : float
         Median of the usual level (m³/d).
+    design : LevelDesign or None
+        The regression of the usual level (for the error of a departure from it).
     """
 
     clean_m3: np.ndarray
@@ -69,6 +71,7 @@ class Segmentation:
     change: ChangePoints
     segment_means_m3: np.ndarray
     baseline_m3: float
+    design: LevelDesign | None = None
 
     @property
     def ratio(self) -> float:
@@ -110,7 +113,9 @@ def segment_residual(ctx: FlagContext, events: Events) -> Segmentation:
             shape = aftermath_shape(ctx.stage_m, ctx.outflow_m3, j, f.magnitude_m)
             if shape is not None:
                 shapes[j] = shape
-    level, note, steps = usual_level_fit(clean, ctx.stage_m, ctx.scale_m3, shifts_found, shapes)
+    level, note, steps, design = usual_level_fit(
+        clean, ctx.stage_m, ctx.scale_m3, shifts_found, shapes
+    )
     dev_w, cps = _segment(ctx, clean, level)
     calm = clean.copy()
     for (a, b), m in zip(cps.segments, cps.means):
@@ -119,11 +124,11 @@ def segment_residual(ctx: FlagContext, events: Events) -> Segmentation:
             calm[a : b + 1] = np.nan
     n_calm = np.isfinite(calm).sum()
     if n_calm >= max(30, ctx.n // 4) and n_calm < np.isfinite(clean).sum():
-        level_t, note_t, steps_t = usual_level_fit(
+        level_t, note_t, steps_t, design_t = usual_level_fit(
             calm, ctx.stage_m, ctx.scale_m3, shifts_found, shapes
         )
         if np.isfinite(level_t).any():
-            level, note, steps = level_t, note_t, steps_t
+            level, note, steps, design = level_t, note_t, steps_t, design_t
             dev_w, cps = _segment(ctx, clean, level)
     with quiet_nan_warnings():
         means = np.array([np.nanmean(clean[a : b + 1]) for a, b in cps.segments])
@@ -137,6 +142,7 @@ def segment_residual(ctx: FlagContext, events: Events) -> Segmentation:
         change=cps,
         segment_means_m3=means,
         baseline_m3=float(np.nanmedian(level)) if np.isfinite(level).any() else 0.0,
+        design=design,
     )
 
 
@@ -182,6 +188,23 @@ def strength(ctx: FlagContext, seg: Segmentation, a: int, b: int) -> tuple[int, 
     if abs(total_w) / valid < ctx.options.min_run_effect:
         return valid, 0.0
     return valid, min(z, z_m3)
+
+
+def significance(ctx: FlagContext, seg: Segmentation, a: int, b: int, volume: float) -> float:
+    """|volume| (m³) of the departure over ``a``..``b`` over its 1-σ uncertainty (-)
+    (:meth:`FlagContext.sigma_of_departure`)."""
+    valid = np.isfinite(seg.departure_m3)
+    sd = ctx.sigma_of_departure(a, b, valid, seg.design, seg.ratio)
+    return abs(volume) / sd if sd > 0 else float("inf")
+
+
+def passes_model(ctx: FlagContext, seg: Segmentation, a: int, b: int) -> bool:
+    """Whether the departure over ``a``..``b`` reaches ``significance_threshold`` against the
+    error model (always true without one)."""
+    if ctx.errors is None:
+        return True
+    volume = float(np.nansum(seg.departure_m3[a : b + 1]))
+    return significance(ctx, seg, a, b, volume) >= ctx.options.significance_threshold
 
 
 def segment_flags(
@@ -244,6 +267,8 @@ def segment_flags(
         if bounded:
             a, b = date_run(seg.departure_m3, ctx.scale_m3, a, b, reach=options.min_run_days)
             days_valid = int(np.isfinite(seg.departure_m3[a : b + 1]).sum())
+        if not passes_model(ctx, seg, a, b):
+            continue
         flags.append(segment_flag(ctx, seg, "run" if bounded else "level_shift", a, b, days_valid))
         covered[a : b + 1] = True
     return flags, covered, datum_starts
@@ -268,8 +293,14 @@ def cusum_flags(
     ):
         if covered[a : b + 1].any() or any(abs(a - d) <= near for d in datum_starts):
             continue
+        # the CUSUM's start lags a change and its peak is not the end: date both ends
+        a, b = date_run(seg.departure_m3, ctx.scale_m3, a, b, reach=options.min_run_days)
+        if covered[a : b + 1].any():
+            continue
         days_valid, z_run = strength(ctx, seg, a, b)
         if days_valid < options.min_run_days or z_run < options.run_threshold:
+            continue
+        if not passes_model(ctx, seg, a, b):
             continue
         flags.append(segment_flag(ctx, seg, "run", a, b, days_valid, detector="CUSUM"))
         covered[a : b + 1] = True
@@ -334,7 +365,7 @@ def segment_flag(
         )
     cause = _follows_a_term(ctx, seg, a, b, rate, evidence)
     cause, hint = _segment_hint(kind, cause, rate)
-    sig = abs(volume) / ctx.sigma_of(a, b, seg.ratio)
+    sig = significance(ctx, seg, a, b, volume)
     return Flag(
         kind=kind,
         start=ctx.iso(a),

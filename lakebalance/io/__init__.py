@@ -86,12 +86,13 @@ def read_records(site: Site, progress: bool = False) -> Records:
         index=index,
     )
     stage = [ls.subdaily for ls in loaded if ls.info.role == "stage" and ls.subdaily is not None]
+    findings = _storm_spikes_withdrawn(loaded, daily, flags, site)
     return Records(
         site=site,
         daily=daily,
         flags=flags,
         series=tuple(ls.info for ls in loaded),
-        findings=tuple(f for ls in loaded for f in ls.findings),
+        findings=findings,
         accounting=tuple(ls.account for ls in loaded),
         subdaily_stage=stage[0] if stage else None,
         check_readings=_checks(loaded),
@@ -107,3 +108,37 @@ def _checks(loaded: list) -> pd.Series | None:
     if not parts:
         return None
     return pd.concat(parts).sort_index().rename("staff_gauge")
+
+
+def _storm_spikes_withdrawn(loaded, daily, flags, site) -> tuple:
+    """Every finding, less the stage spikes on storm days: a rise the gauged inflow or rain
+    explains (:func:`lakebalance.qa.storm_days`) is no spike of the stage record. Their days
+    are unflagged (with ``[qa] spikes = "remove"`` the readings stay removed)."""
+    import numpy as np
+    import pandas as pd
+
+    from .. import qa
+
+    storm = np.zeros(len(daily), dtype=bool)
+    for ls in loaded:
+        if ls.info.role in ("inflow", "rain"):
+            storm |= qa.storm_days(daily[ls.info.key].to_numpy(dtype=float))
+    out = []
+    for ls in loaded:
+        for f in ls.findings:
+            if (
+                storm.any()
+                and ls.info.role == "stage"
+                and f.kind == "spike"
+                and f.first
+                and f.last
+                and site.qa.spikes == "flag"
+            ):
+                span = (daily.index >= pd.Timestamp(f.first[:10])) & (
+                    daily.index <= pd.Timestamp(f.last[:10])
+                )
+                if span.any() and storm[span].all():
+                    flags.loc[span, ls.info.key] = False
+                    continue
+            out.append(f)
+    return tuple(out)

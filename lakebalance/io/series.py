@@ -316,7 +316,10 @@ def load_series(spec: SeriesSpec, site: Site) -> LoadedSeries:
         day.flags[spike_days[np.isin(spike_days, day.days)] - day.days.min()] = True
     if check_spikes and not subdaily:
         _daily_spikes(rows, readings, day, site, resolution)
-    _daily_checks(rows, stamps, readings, day, site, role=role, units=units, sparse=sparse)
+    _daily_checks(
+        rows, stamps, readings, day, site, role=role, units=units, sparse=sparse,
+        resolution=resolution,
+    )  # fmt: skip
     sub = (
         pd.Series(readings.r_val, index=pd.DatetimeIndex(readings.r_ns), name=key)
         if (role == "stage" and subdaily) or sparse
@@ -680,6 +683,7 @@ def _daily_checks(
     role: str,
     units: str,
     sparse: bool,
+    resolution: float | None,
 ) -> None:
     """Step 8: gaps, flat-lines (stuck sensor) on state series, implausible units."""
     add, status, key, kind = rows.add, rows.status, rows.key, ROLE_KINDS[role]
@@ -709,8 +713,8 @@ def _daily_checks(
             a1 = a + 1
             flags[a1:b] = True
             row_day = np.floor_divide(r_ns, _NS_PER_DAY) - days.min()
-            rows = keep[(row_day >= a1) & (row_day < b)]
-            status[rows] = np.where(status[rows] == _USED, _FLAGGED, status[rows])
+            picked = keep[(row_day >= a1) & (row_day < b)]
+            status[picked] = np.where(status[picked] == _USED, _FLAGGED, status[picked])
             add(
                 "flatline",
                 index[a1].date().isoformat(),
@@ -719,6 +723,23 @@ def _daily_checks(
                 "kept, flagged",
                 f"{b - a} identical daily values ({full[a]:.6g} {INTERNAL_UNITS[kind]}) from "
                 f"{index[a].date().isoformat()}: stuck sensor? the repeats are flagged",
+            )
+    if role in qa.STATE_ROLES and role == "stage":
+        # shorter runs of repeats that end with a catch-up step: a sensor stuck while the lake
+        # moved (the flags then weigh them against the balance)
+        res = resolution or 0.0
+        for a, b in qa.stuck_runs(full, site.qa.stuck_days, res):
+            if b - a >= site.qa.flatline_days:
+                continue  # already a flat-line
+            add(
+                "stuck",
+                index[a + 1].date().isoformat(),
+                index[b - 1].date().isoformat(),
+                b - a - 1,
+                "kept",
+                f"{b - a} identical daily values ({full[a]:.6g} {INTERNAL_UNITS[kind]}) from "
+                f"{index[a].date().isoformat()}, then a step of {full[b] - full[a]:+.3g} "
+                f"{INTERNAL_UNITS[kind]} on {index[b].date().isoformat()}: stuck sensor?",
             )
     reason = qa.implausible_units(role, full)
     if not reason:
