@@ -108,3 +108,25 @@ def emit(args: argparse.Namespace, lake, doc: dict, summary: object, written: li
         print(summary)
         for p in written:
             print(f"wrote {p}")
+
+
+def add_step_arguments(parser: argparse.ArgumentParser) -> None:
+    """The arguments of a command that shows one step: the site file, ``--json``, ``--out`` and
+    ``--seed``."""
+    add_site(parser)
+    add_json(parser)
+    add_out(parser)
+    add_seed(parser)
+
+
+def run_step(args: argparse.Namespace, step: str, write) -> int:
+    """A command that shows one step of the analysis: compute ``step`` once (its warnings go
+    into its own notes), write its files with ``write(out, result)`` (a list of paths) when
+    ``--out`` is given, then print its summary or its JSON."""
+    lake = open_lake(args)
+    out = output_folder(args, lake)
+    with LakebalanceWarnings():  # the step's own notes carry them
+        result = getattr(lake, step)
+    written = [] if out is None else write(out, result)
+    emit(args, lake, result.to_dict(), result.summary(), written)
+    return 0

@@ -4,39 +4,26 @@ from __future__ import annotations
 
 import argparse
 
-from ._common import (
-    LakebalanceWarnings,
-    add_json,
-    add_out,
-    add_seed,
-    add_site,
-    emit,
-    open_lake,
-    output_folder,
-)
+from ._common import add_step_arguments, run_step
 
 HELP = "flag spikes, datum shifts, runs and drift in the residual of the daily balance"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    add_site(parser)
-    add_json(parser)
-    add_out(parser)
-    add_seed(parser)
+    add_step_arguments(parser)
 
 
 def run(args: argparse.Namespace) -> int:
-    lake = open_lake(args)
-    out = output_folder(args, lake)
-    with LakebalanceWarnings():  # the balance's own notes carry them
-        flags = lake.flags
-    written = []
-    if out is not None:
-        from ..io.output import save_figure, write_csv, write_text
-        from ..report.figures_residuals import flags_figure
+    return run_step(args, "flags", _write)
 
-        written.append(write_csv(out / "flags.csv", flags.to_frame(), index=False))
-        written.append(write_text(out / "flags.txt", flags.summary() + "\n"))
-        written.append(save_figure(out / "flags.png", flags_figure(flags)))
-    emit(args, lake, flags.to_dict(), flags.summary(), written)
-    return 0
+
+def _write(out, flags) -> list:
+    """flags.csv (one row a flag), flags.txt (the summary) and flags.png."""
+    from ..io.output import save_figure, write_csv, write_text
+    from ..report.figures_residuals import flags_figure
+
+    return [
+        write_csv(out / "flags.csv", flags.to_frame(), index=False),
+        write_text(out / "flags.txt", flags.summary() + "\n"),
+        save_figure(out / "flags.png", flags_figure(flags)),
+    ]

@@ -4,24 +4,13 @@ from __future__ import annotations
 
 import argparse
 
-from ._common import (
-    LakebalanceWarnings,
-    add_json,
-    add_out,
-    add_seed,
-    add_site,
-    open_lake,
-    output_folder,
-)
+from ._common import LakebalanceWarnings, add_step_arguments, open_lake, output_folder
 
 HELP = "fit the outlet rating curve to the spot gaugings, with its uncertainty"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    add_site(parser)
-    add_json(parser)
-    add_out(parser)
-    add_seed(parser)
+    add_step_arguments(parser)
 
 
 def run(args: argparse.Namespace) -> int:
