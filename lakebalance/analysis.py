@@ -1286,7 +1286,7 @@ class Lake:
             storage_yield_curve,
         )
 
-        opts = self.site.drawdown
+        opts, ops = self.site.drawdown, self.site.operations
         history = self.drawdown_history()
         if "inflow_m3s" not in history.columns:
             raise ConfigError("the yield study needs an inflow record")
@@ -1311,6 +1311,18 @@ class Lake:
             h0 = float(stage.loc[first])
             start_name = f"the first recorded stage ({first.date()})"
         notes.append(f"the record is run from {start_name}")
+        rules_used = [
+            words
+            for words, present in (
+                ("the gate release table", ops.release is not None),
+                ("the spill over the crest", ops.spill is not None),
+                ("the environmental release", ops.environmental_release > 0),
+                (f"{len(ops.restriction)} restriction levels", bool(ops.restriction)),
+            )
+            if present
+        ]
+        if rules_used:
+            notes.append("operating rules ([operations]): " + ", ".join(rules_used))
         forcing = record_forcing(history, first + pd.Timedelta(days=1), None)
         laws, why = self.laws(seepage=opts.seepage and stage is not None)
         if why:
@@ -1332,7 +1344,7 @@ class Lake:
             firm = firm_yield(
                 laws, forcing, failure_level_m=fail_m, failure_level=fail_name, start_stage_m=h0,
                 pattern=use_pattern, environmental_release_m3s=opts.environmental_release,
-                rtol=rtol, progress=callback,
+                rtol=rtol, progress=callback, operations=ops,
             )  # fmt: skip
         finally:
             if bar is not None:
@@ -1355,7 +1367,7 @@ class Lake:
                 laws, forcing, demand_m3s=mean_demand, pattern=monthly, restriction=rules,
                 failure_level_m=fail_m, failure_level=fail_name, start_stage_m=h0,
                 water_year_start=self.site.site.water_year_start,
-                environmental_release_m3s=opts.environmental_release,
+                environmental_release_m3s=opts.environmental_release, operations=ops,
             )  # fmt: skip
             try:
                 start_ts, start_h = self._forecast_start(opts)
@@ -1366,7 +1378,7 @@ class Lake:
                     laws, history, start=start_ts, start_stage_m=start_h, demand_m3s=mean_demand,
                     pattern=monthly, inflow_m3s=dry_inflow_m3s, horizon=supply_days,
                     restriction=rules, failure_level_m=fail_m, failure_level=fail_name,
-                    environmental_release_m3s=opts.environmental_release,
+                    environmental_release_m3s=opts.environmental_release, operations=ops,
                 )  # fmt: skip
             notes.append(f"demand: {source}")
         return YieldStudy(firm, curve, performance, supply, tuple(notes))

@@ -196,3 +196,34 @@ def test_days_of_supply_closed_form_no_inflow():
         failure_level_m=FAIL,
     )  # fmt: skip
     assert long.days is None and "beyond the horizon" in long.sentence()
+
+
+def test_firm_yield_under_an_environmental_release_rule_is_less_by_that_release():
+    # Mass balance (the closed form above, from memory of Rippl's mass curve): a minimum release
+    # E kept downstream through the dry spell is water the intake cannot have, so the firm yield
+    # falls by E (the release stops with the intake at the failure level: same usable depth).
+    from lakebalance.operations import OperatingRules
+
+    wet, dry = 100, 200
+    f = _record(2.0, 0.1, wet, dry, 100)
+    plain = firm_yield(_laws(), f, failure_level_m=FAIL, start_stage_m=FULL)
+    rules = OperatingRules(environmental_release=0.05)
+    kept = firm_yield(_laws(), f, failure_level_m=FAIL, start_stage_m=FULL, operations=rules)
+    assert kept.demand_m3s == pytest.approx(plain.demand_m3s - 0.05, rel=5e-3)
+
+
+def test_record_performance_uses_the_sites_restriction_levels_with_restore_and_lag():
+    # The same demand and record, once with a plain (trigger, cut) pair and once with an
+    # [[operations.restriction]] level of the same trigger and cut and no hysteresis: the same
+    # restricted days (common practice, no source: one rule, two ways of writing it).
+    from lakebalance.operations import OperatingRules, RestrictionLevel
+
+    f = _record(2.0, 0.1, 100, 200, 100)
+    args = dict(demand_m3s=0.25, failure_level_m=FAIL, start_stage_m=FULL)
+    pair = record_performance(_laws(), f, restriction=[(8.0, 0.3)], **args)
+    rules = OperatingRules(restriction=(RestrictionLevel(trigger=8.0, cut=0.3),))
+    level = record_performance(_laws(), f, operations=rules, **args)
+    assert pair.restriction.to_dict() == level.restriction.to_dict()
+    assert (
+        pair.restriction.to_dict() != record_performance(_laws(), f, **args).restriction.to_dict()
+    )

@@ -62,6 +62,7 @@ import pandas as pd
 
 from ..display import SI, number, percent, quantity, stage
 from ..errors import ConfigError
+from ..operations import OperatingRules, RestrictionLevel
 from ..results import Summary
 from ..units import SECONDS_PER_DAY
 from .engine import EngineResult, LakeTables, build_tables, simulate
@@ -197,9 +198,18 @@ def yield_tables(
     *,
     environmental_release_m3s: float = 0.0,
     stage_max_m: float | None = None,
+    operations: OperatingRules | None = None,
 ) -> LakeTables:
-    """The engine's tables of the lake with its intake stopping at ``failure_level_m`` (m)."""
+    """The engine's tables of the lake with its intake stopping at ``failure_level_m`` (m),
+    under the site's operating rules when given (gate release by month and stage, spill over a
+    crest, environmental minimum: the same rules as the drawdown outlook's)."""
+    from .forecast import _with_spill
+
+    ops = operations or OperatingRules()
     outflow = laws.outflow if laws.outflow is not None else _no_outflow
+    outflow = _with_spill(outflow, ops)
+    if ops.environmental_release > 0:
+        environmental_release_m3s = ops.environmental_release
     hi = laws.max_stage_m if stage_max_m is None else float(stage_max_m)
     return build_tables(
         laws.area,
@@ -207,9 +217,11 @@ def yield_tables(
         stage_min_m=laws.min_stage_m,
         stage_max_m=hi,
         seepage=laws.seepage,
-        environmental_release_m3s=environmental_release_m3s,
+        # with a gate release table the environmental minimum is the gate's (in the table)
+        environmental_release_m3s=0.0 if ops.release is not None else environmental_release_m3s,
         floor_m=float(failure_level_m),
         ramp_m=_RAMP_M,
+        gate_release=ops.gate_release_by_month if ops.release is not None else None,
     )
 
 
@@ -236,7 +248,7 @@ def _run(
     start_stage_m: float,
     demand_m3s: np.ndarray,
     pattern: np.ndarray,
-    restriction: Sequence[tuple[float, float]] = (),
+    restriction: Sequence[tuple[float, float] | RestrictionLevel] = (),
     progress: Callable[[int], None] | None = None,
 ) -> tuple[EngineResult, np.ndarray]:
     """Run the record with one member per demand (m³/s, (k,)); returns the engine result and the
@@ -253,6 +265,7 @@ def _run(
         demand,
         release_m3s=np.broadcast_to(forcing.release_m3s[:, None], (days, k)),
         restriction=restriction,
+        months=forcing.dates.month.to_numpy(),
         progress=progress,
     )
     return res, demand
@@ -393,6 +406,7 @@ def firm_yield(
     rtol: float = 1e-3,
     candidates: int = 8,
     progress: Callable[[int], None] | None = None,
+    operations: OperatingRules | None = None,
 ) -> FirmYield:
     """The firm yield through the record by simulation, with its critical period.
 
@@ -421,6 +435,9 @@ def firm_yield(
         ``candidates + 1`` per round.
     progress : callable, optional
         Called with the number of rounds done.
+    operations : OperatingRules, optional
+        The site's release, spill and environmental rules (its restriction levels do not
+        apply: the firm yield is met in full).
 
     Returns
     -------
@@ -440,6 +457,7 @@ def firm_yield(
         failure_level_m,
         environmental_release_m3s=environmental_release_m3s,
         stage_max_m=hi_stage,
+        operations=operations,
     )
     notes: list[str] = []
     seconds = forcing.days * SECONDS_PER_DAY
@@ -863,17 +881,23 @@ def record_performance(
     water_year_start: int = 1,
     environmental_release_m3s: float = 0.0,
     stage_max_m: float | None = None,
+    operations: OperatingRules | None = None,
 ) -> RecordPerformance:
     """Reliability, resilience and vulnerability of a demand and its restriction rules through
     the record (years are water years starting in month ``water_year_start``)."""
     factors = monthly_factors(pattern)
     hi = stage_max_m if stage_max_m is not None else max(laws.max_stage_m, start_stage_m + 1.0)
     tables = yield_tables(
-        laws, failure_level_m, environmental_release_m3s=environmental_release_m3s, stage_max_m=hi
+        laws,
+        failure_level_m,
+        environmental_release_m3s=environmental_release_m3s,
+        stage_max_m=hi,
+        operations=operations,
     )
     rules = tuple((float(t), float(c)) for t, c in restriction)
+    levels = (*rules, *(operations.restriction if operations is not None else ()))
     res, demand = _run(
-        tables, forcing, start_stage_m, np.array([float(demand_m3s)]), factors, rules
+        tables, forcing, start_stage_m, np.array([float(demand_m3s)]), factors, levels
     )
     dem = demand[:, 0] + forcing.release_m3s
     drawn = res.withdrawal_m3s[:, 0]
@@ -961,6 +985,7 @@ def days_of_supply(
     failure_level_m: float,
     failure_level: str = "failure",
     environmental_release_m3s: float = 0.0,
+    operations: OperatingRules | None = None,
 ) -> SupplyDays:
     """Days until the intake fails from ``start_stage_m`` under a constant inflow (m³/s) with
     rain and evaporation at their day-of-year means (several years: ``horizon`` days)."""
@@ -981,11 +1006,16 @@ def days_of_supply(
     )
     hi = max(laws.max_stage_m, float(start_stage_m) + 1.0)
     tables = yield_tables(
-        laws, failure_level_m, environmental_release_m3s=environmental_release_m3s, stage_max_m=hi
+        laws,
+        failure_level_m,
+        environmental_release_m3s=environmental_release_m3s,
+        stage_max_m=hi,
+        operations=operations,
     )
     rules = tuple((float(t), float(c)) for t, c in restriction)
+    levels = (*rules, *(operations.restriction if operations is not None else ()))
     res, demand = _run(
-        tables, forcing, start_stage_m, np.array([float(demand_m3s)]), factors, rules
+        tables, forcing, start_stage_m, np.array([float(demand_m3s)]), factors, levels
     )
     short = _shortage(res, demand, forcing.release_m3s, restricted=True)[:, 0]
     hit = np.flatnonzero(short > 0.0)
