@@ -45,6 +45,7 @@ from typing import TYPE_CHECKING, Literal
 
 import numpy as np
 
+from .display import number
 from .errors import (
     ApproximationWarning,
     DataQualityWarning,
@@ -796,8 +797,8 @@ class StorageCurve:
         lines = [
             f"storage relation{' (approximate)' if self.approximate else ''}: {self.source or '-'}",
             f"  levels {self.stage_m.size}, stage {self.min_stage_m:g} to {self.max_stage_m:g} m, "
-            f"area {self.area_m2[0]:.6g} to {self.area_m2[-1]:.6g} m², "
-            f"storage {self.min_volume_m3:.6g} to {self.max_volume_m3:.6g} m³",
+            f"area {number(self.area_m2[0], 4)} to {number(self.area_m2[-1], 4)} m², "
+            f"storage {number(self.min_volume_m3, 4)} to {number(self.max_volume_m3, 4)} m³",
             f"  integration {self.integration}; below the range: {self.below}; above: {self.above}",
         ]
         if self.check is not None:

@@ -25,11 +25,18 @@ def _cli(*args: str) -> str:
     return proc.stdout
 
 
-@pytest.mark.parametrize("command", ["storage", "evaporation", "dynamics"])
+@pytest.mark.parametrize(
+    "command", ["storage", "evaporation", "dynamics", "rating", "flags", "check"]
+)
 def test_tables_fit_120_characters(command):
+    """Every line within 120 characters (prose folded, tables laid out to fit) and no number in
+    scientific notation (common practice, no source: people read 17,320,000 m³, not 1.73e+07)."""
+    import re
+
     text = _cli(command, str(SITE))
     for line in text.splitlines():
         assert len(line) <= 120, (command, line)
+        assert not re.search(r"\d[eE][+-]\d", line), (command, line)
 
 
 def test_balance_table_is_the_csv_rounded(tmp_path):

@@ -95,6 +95,43 @@ def wrap(text: str, width: int = 120, indent: str = "") -> str:
     return textwrap.fill(text, width, subsequent_indent=indent or "  ")
 
 
+def fold_long_lines(text: str, width: int = 120) -> str:
+    """Each line of ``text`` longer than ``width`` folded at words, its continuation indented
+    two more than the line; shorter lines (tables) as they are."""
+    import textwrap
+
+    out = []
+    for line in str(text).split("\n"):
+        if len(line) <= width:
+            out.append(line)
+            continue
+        lead = line[: len(line) - len(line.lstrip())]
+        out.append(
+            textwrap.fill(line.strip(), width, initial_indent=lead, subsequent_indent=lead + "  ")
+        )
+    return "\n".join(out)
+
+
+class FoldedStream:
+    """A text stream that folds the long lines written to it (:func:`fold_long_lines`)."""
+
+    def __init__(self, stream, width: int = 120) -> None:
+        self.stream, self.width, self._pending = stream, width, ""
+
+    def write(self, text: str) -> int:
+        self._pending += text
+        *done, self._pending = self._pending.split("\n")
+        for line in done:
+            self.stream.write(fold_long_lines(line, self.width) + "\n")
+        return len(text)
+
+    def flush(self) -> None:
+        if self._pending:
+            self.stream.write(fold_long_lines(self._pending, self.width))
+            self._pending = ""
+        self.stream.flush()
+
+
 def emit(args: argparse.Namespace, lake, doc: dict, summary: object, written: list) -> None:
     """Print a result as one JSON document (``--json``) or as its text summary."""
     site, seed = lake.site, lake.seed
@@ -105,7 +142,7 @@ def emit(args: argparse.Namespace, lake, doc: dict, summary: object, written: li
         print(dumps(doc))
     else:
         print(f"{site.site.name} (seed {seed})")
-        print(summary)
+        print(fold_long_lines(str(summary)))
         for p in written:
             print(f"wrote {p}")
 

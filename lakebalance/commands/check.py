@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import argparse
 
-from ._common import LakebalanceWarnings, add_json, add_site, open_lake
+from ._common import FoldedStream, LakebalanceWarnings, add_json, add_site, open_lake
 
 HELP = (
     "pre-flight of a site: series, storage relation, gaugings and outlet, levels; periods, "
@@ -116,6 +116,7 @@ def run(args: argparse.Namespace) -> int:
     import sys
 
     from .._json import dumps
+    from ..display import number
 
     lake = open_lake(args, progress=not args.json)
     site = lake.site
@@ -134,7 +135,7 @@ def run(args: argparse.Namespace) -> int:
         }
         print(dumps(doc))
         return 0
-    out = sys.stdout
+    out = FoldedStream(sys.stdout)
     print(f"site: {site.site.name}  ({site.path})", file=out)
     if len(records.daily):
         print(
@@ -172,7 +173,7 @@ def run(args: argparse.Namespace) -> int:
         st = checked["storage"]
         print(
             f"storage:  {st['source']}, {st['min_stage_m']:g} to {st['max_stage_m']:g} m, "
-            f"up to {st['max_volume_m3']:.6g} m³",
+            f"up to {number(st['max_volume_m3'], 4)} m³",
             file=out,
         )
     if checked["rating"] is not None:
@@ -189,6 +190,7 @@ def run(args: argparse.Namespace) -> int:
         print(f"level:    {name} = {lv['stage_m']:g} m{where}", file=out)
     if note:
         print(f"note: {note}", file=out)
+    out.flush()
     for m in messages:
         print(f"warning: {m}", file=sys.stderr)
     return 0

@@ -4,7 +4,13 @@ from __future__ import annotations
 
 import argparse
 
-from ._common import LakebalanceWarnings, add_step_arguments, open_lake, output_folder
+from ._common import (
+    LakebalanceWarnings,
+    add_step_arguments,
+    fold_long_lines,
+    open_lake,
+    output_folder,
+)
 
 HELP = "fit the outlet rating curve to the spot gaugings, with its uncertainty"
 
@@ -68,7 +74,7 @@ def run(args: argparse.Namespace) -> int:
         }
         print(dumps(doc))
         return 0
-    print(fit.summary())
+    print(fold_long_lines(str(fit.summary())))
     if shift is not None:
         print()
         print(
@@ -79,9 +85,9 @@ def run(args: argparse.Namespace) -> int:
             print(line)
     for m in messages:
         if m not in fit.warnings:  # those are in the summary's notes
-            print(f"warning: {m}")
+            print(fold_long_lines(f"warning: {m}"))
     print()
-    print(f"caution: {CAUTION}")
+    print(fold_long_lines(f"caution: {CAUTION}"))
     if args.out is not None:
         print(f"wrote rating tables and figures to {args.out}")
     return 0

@@ -250,7 +250,7 @@ def build_context(
         band_source = "noise of the residual (no uncertainty band given)"
     if errors is not None:
         band_source = (
-            "the balance's error model (rating variants, persistent and day-to-day term "
+            "balance's error model (rating variants, persistent and day-to-day term "
             "errors, area, gauge resolution)"
         )
     mean_area = np.nanmean(area) if area is not None and np.isfinite(area).any() else float("nan")
