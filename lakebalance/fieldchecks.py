@@ -331,7 +331,8 @@ def _step_or_drift(
     residual_with: Callable[[np.ndarray], np.ndarray],
 ) -> int | None:
     """The step day in (k0, k1] that best closes the balance, or None when a drift closes it
-    better.
+    better; near a flagged datum shift (``candidates``) always a step, on the best of the days
+    within two of the flag's date.
 
     Each hypothesis (a step from c0 to c1 on each day, or a drift linear from c0 to c1) corrects
     the stage between the two checks; the balance residual is closed with it and its spread
@@ -340,8 +341,6 @@ def _step_or_drift(
     an outlet lake also moves the outflow of every later day, which the residual shows.
     """
     inside = [c for c in candidates if k0 < c <= k1]
-    if inside:
-        return int(inside[0])
     span = k1 - k0
     window = slice(k0 + 1, k1)
 
@@ -353,6 +352,12 @@ def _step_or_drift(
         return float(np.sum((r - r.mean()) ** 2)) if r.size > 2 else float("inf")
 
     j = np.arange(span)
+    if inside:
+        # a datum shift the residual flags dated: the step goes on the day within two days of
+        # that date (the flags' dating tolerance) that best closes the balance
+        near = [k for k in range(inside[0] - 2, inside[0] + 3) if k0 < k < k1]
+        costs = [spread(np.where(j < k - k0, c0, c1)) for k in near]
+        return int(near[int(np.argmin(costs))]) if near else int(inside[0])
     drift = spread(c0 + (c1 - c0) * j / span)
     best, best_k = float("inf"), None
     for k in range(k0 + 1, k1):
