@@ -28,7 +28,7 @@ from typing import Any
 
 from .errors import OptionError
 
-__all__ = ["setting", "Options", "check_ranges", "describe_option"]
+__all__ = ["setting", "Options", "check_ranges", "describe_option", "iso_date"]
 
 _MISSING = dataclasses.MISSING
 
@@ -73,6 +73,20 @@ def setting(
     if default is _MISSING:
         return dataclasses.field(metadata=meta)
     return dataclasses.field(default=default, metadata=meta)
+
+
+def iso_date(value: str | None) -> str | None:
+    """Rule for a date option: None or an ISO date (``YYYY-MM-DD``, a time after it allowed);
+    else what it must be."""
+    import datetime as _dt
+
+    if value is None:
+        return None
+    try:
+        _dt.date.fromisoformat(str(value)[:10])
+    except ValueError:
+        return "be an ISO date (YYYY-MM-DD)"
+    return None
 
 
 def _num(x: float) -> str:

@@ -33,7 +33,7 @@ from typing import TYPE_CHECKING, Literal
 import numpy as np
 
 from .errors import OptionError
-from .options import Options, setting
+from .options import Options, iso_date, setting
 
 if TYPE_CHECKING:  # pragma: no cover
     import pandas as pd
@@ -54,14 +54,6 @@ __all__ = [
 #: evaporation step); ``offset``: the stage sensor reads off by a constant (estimated and
 #: removed); ``fouled``: the sensor is fouled (weed, silt) and reads off like ``offset``.
 PeriodKind = Literal["ice", "offset", "fouled"]
-
-
-def _iso_rule(value: str) -> str | None:
-    try:
-        _dt.date.fromisoformat(str(value)[:10])
-    except ValueError:
-        return "be an ISO date (YYYY-MM-DD)"
-    return None
 
 
 @dataclass(frozen=True)
@@ -100,8 +92,8 @@ class Period(Options):
     """
 
     kind: PeriodKind
-    start: str = setting(rule=_iso_rule)
-    end: str = setting(rule=_iso_rule)
+    start: str = setting(rule=iso_date)
+    end: str = setting(rule=iso_date)
     series: str = "stage"
     outflow: Literal["interpolate", "fraction", "rating"] | None = None
     fraction: float | None = setting(None, unit="-", low=0.0, high=1.0)

@@ -53,7 +53,7 @@ from .errors import (
     InputError,
     RangeError,
 )
-from .options import Options, setting
+from .options import Options, iso_date, setting
 from .results import Summary
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -75,24 +75,12 @@ __all__ = [
 ]
 
 
-def _iso_date_rule(value: str | None) -> str | None:
-    import datetime as _dt
-
-    if value is None:
-        return None
-    try:
-        _dt.date.fromisoformat(str(value)[:10])
-    except ValueError:
-        return "be an ISO date (YYYY-MM-DD)"
-    return None
-
-
 @dataclass(frozen=True)
 class DatedSurvey(Options):
     """``[[storage.survey]]``: another survey of the basin, on its date, read with the settings
     of ``[storage]`` (columns, units, datum); see :mod:`lakebalance.surveys`."""
 
-    date: str = setting(rule=_iso_date_rule)  # ISO date of the survey
+    date: str = setting(rule=iso_date)  # ISO date of the survey
     file: Path | None = None  # its table or contour layer
     sheet: str | None = None
     layer: str | None = None
@@ -133,7 +121,7 @@ class StorageOptions(Options):
     accept_volume_mismatch: bool = False
     compare: Path | None = None  # a second survey (table or contour layer) to compare against
     # date of the survey in 'file' (needed with [[storage.survey]]: relations dated in time)
-    date: str | None = setting(None, rule=_iso_date_rule)
+    date: str | None = setting(None, rule=iso_date)
     survey: tuple[DatedSurvey, ...] = ()  # further dated surveys, interpolated in time
     delimiter: str | None = None  # CSV field delimiter of a table (sniffed when absent)
     decimal: str = "."  # decimal mark of a CSV table

@@ -28,7 +28,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from ..errors import FitError
-from ..options import Options, setting
+from ..options import Options, iso_date, setting
 from ..results import Summary
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -40,18 +40,6 @@ if TYPE_CHECKING:  # pragma: no cover
 __all__ = ["RatingPeriod", "StageShift", "DatedRating", "fit_rating_periods"]
 
 Array = np.ndarray
-
-
-def _iso_rule(value: str | None) -> str | None:
-    import datetime as _dt
-
-    if value is None:
-        return None
-    try:
-        _dt.date.fromisoformat(str(value)[:10])
-    except ValueError:
-        return "be an ISO date (YYYY-MM-DD)"
-    return None
 
 
 @dataclass(frozen=True)
@@ -73,11 +61,11 @@ class RatingPeriod(Options):
         reach is not refitted from nothing.
     """
 
-    start: str = setting(rule=_iso_rule)
+    start: str = setting(rule=iso_date)
     reason: str = ""
     keep: list[str] = field(default_factory=list)
-    shift_from: str | None = setting(None, rule=_iso_rule)
-    shift_to: str | None = setting(None, rule=_iso_rule)
+    shift_from: str | None = setting(None, rule=iso_date)
+    shift_to: str | None = setting(None, rule=iso_date)
 
     def __post_init__(self) -> None:
         super().__post_init__()
