@@ -22,6 +22,8 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
+from ..display import number
+
 if TYPE_CHECKING:  # pragma: no cover
     from ..analysis import Lake
 
@@ -322,7 +324,7 @@ def confirmed_sentence(numbers: dict[str, Any], n: int) -> str:
     text = (
         f"With the datum shift{'s' if n > 1 else ''} the field checks confirm applied (as the "
         f"[[correction]] above would, not yet accepted in the site file), the residual of the "
-        f"year is {res / 1e3:+,.1f} thousand m³"
+        f"year is {'+' if res > 0 else ''}{number(res / 1e3, 4)} thousand m³"
     )
     if pct is not None:
         text += f" ({abs(pct):.1f} % of the measured gains)"
