@@ -29,10 +29,21 @@ def add_seed(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--seed", type=int, default=None, help="random seed (default: site file)")
 
 
+def add_progress(parser: argparse.ArgumentParser) -> None:
+    """``--no-progress``: no progress bar on stderr (one is shown only on a terminal)."""
+    parser.add_argument("--no-progress", action="store_true", help="no progress bar on stderr")
+
+
 def open_lake(args: argparse.Namespace, **settings):
-    """The analysis object of the command's site file, seeded from ``--seed`` when given."""
+    """The analysis object of the command's site file, seeded from ``--seed`` when given, with
+    a progress bar when the command has ``--no-progress``, it is not given and stderr is a
+    terminal."""
+    import sys
+
     from ..analysis import open_site
 
+    if hasattr(args, "no_progress") and "progress" not in settings:
+        settings["progress"] = not args.no_progress and sys.stderr.isatty()
     seed = getattr(args, "seed", None)
     return open_site(args.site, seed=seed, **settings)
 

@@ -8,6 +8,7 @@ from ._common import (
     LakebalanceWarnings,
     add_json,
     add_out,
+    add_progress,
     add_seed,
     add_site,
     open_lake,
@@ -49,18 +50,17 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         action="store_true",
         help="run the chosen scenario only, not every method side by side (faster)",
     )
-    parser.add_argument("--no-progress", action="store_true", help="no progress bar on stderr")
+    add_progress(parser)
     add_seed(parser)
     add_json(parser)
     add_out(parser)
 
 
 def run(args: argparse.Namespace) -> int:
-    import sys
 
     from .._json import dumps
 
-    lake = open_lake(args, progress=not args.no_progress and sys.stderr.isatty())
+    lake = open_lake(args)
     out = output_folder(args, lake)
     site, seed = lake.site, lake.seed
     with LakebalanceWarnings() as caught:

@@ -9,6 +9,7 @@ from ._common import (
     LakebalanceWarnings,
     add_json,
     add_out,
+    add_progress,
     add_seed,
     add_site,
     open_lake,
@@ -47,18 +48,17 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         metavar="DATE",
         help="start on this date's day of the year in every year (the outlook's season)",
     )
-    parser.add_argument("--no-progress", action="store_true", help="no progress bar on stderr")
+    add_progress(parser)
     add_seed(parser)
     add_json(parser)
     add_out(parser)
 
 
 def run(args: argparse.Namespace) -> int:
-    import sys
 
     from .._json import dumps
 
-    lake = open_lake(args, progress=not args.no_progress and sys.stderr.isatty())
+    lake = open_lake(args)
     out = output_folder(args, lake)
     with LakebalanceWarnings() as caught:
         hc = lake.hindcast(

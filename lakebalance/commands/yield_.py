@@ -9,6 +9,7 @@ from ._common import (
     LakebalanceWarnings,
     add_json,
     add_out,
+    add_progress,
     add_site,
     open_lake,
     output_folder,
@@ -57,17 +58,16 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         metavar="R",
         help="relative width of the firm yield's final bracket (default 0.001)",
     )
-    parser.add_argument("--no-progress", action="store_true", help="no progress bar on stderr")
+    add_progress(parser)
     add_json(parser)
     add_out(parser)
 
 
 def run(args: argparse.Namespace) -> int:
-    import sys
 
     from .._json import dumps
 
-    lake = open_lake(args, progress=not args.no_progress and sys.stderr.isatty())
+    lake = open_lake(args)
     out = output_folder(args, lake)
     with LakebalanceWarnings() as caught:
         study = lake.yield_(

@@ -464,7 +464,9 @@ def firm_yield(
     v = laws.volume(np.array([failure_level_m, start_stage_m], dtype=float))
     store = max(float(v[1] - v[0]), 0.0)
     a_top = float(np.max(laws.area(np.array([start_stage_m], dtype=float))))
-    gain = forcing.inflow_m3s.mean() + max(forcing.net_depth_m.mean(), 0.0) * a_top / 86400.0
+    gain = (
+        forcing.inflow_m3s.mean() + max(forcing.net_depth_m.mean(), 0.0) * a_top / SECONDS_PER_DAY
+    )
     upper = max((gain + store / seconds) * 2.0 / factors.max(), 1e-6)
 
     def failed(demands: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

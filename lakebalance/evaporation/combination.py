@@ -34,11 +34,19 @@ from .method import EvaporationMethod
 from .options import EvaporationOptions
 from .weather import PreparedWeather
 
-__all__ = ["FAO56_GRASS_ALBEDO", "PENMAN", "FAO56", "penman_open_water", "fao56_reference"]
+__all__ = [
+    "COMBINATION_ROLES",
+    "FAO56_GRASS_ALBEDO",
+    "PENMAN",
+    "FAO56",
+    "penman_open_water",
+    "fao56_reference",
+]
 
 FAO56_GRASS_ALBEDO = 0.23  # (-) albedo of the FAO-56 grass reference (eq. 38)
 
-_ROLES = (
+#: Weather roles a combination (energy and aerodynamic) method can use.
+COMBINATION_ROLES = (
     "tmax",
     "tmin",
     "tmean",
@@ -217,7 +225,7 @@ PENMAN = EvaporationMethod(
     family="combination",
     label="Penman (open water)",
     reference="Penman (1948), combination equation with the open-water wind function",
-    roles=_ROLES,
+    roles=COMBINATION_ROLES,
     needs=("energy", "wind"),
     compute=_penman,
     preference=3,
@@ -231,7 +239,7 @@ FAO56 = EvaporationMethod(
     family="combination",
     label="FAO-56 Penman-Monteith x open-water coefficient",
     reference="Allen et al. (1998), FAO-56, eq. 6, times an open-water coefficient",
-    roles=_ROLES,
+    roles=COMBINATION_ROLES,
     needs=("energy", "wind"),
     compute=_fao56,
     preference=4,

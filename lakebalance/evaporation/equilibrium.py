@@ -36,6 +36,7 @@ from .atmosphere import (
     saturation_vapour_pressure,
     slope_vapour_pressure_curve,
 )
+from .combination import COMBINATION_ROLES
 from .method import EvaporationMethod
 from .options import EvaporationOptions
 from .radiation import STEFAN_BOLTZMANN
@@ -548,18 +549,7 @@ EQUILIBRIUM = EvaporationMethod(
         "de Bruin (1982); Finch (2001); McJannet et al. (2008): equilibrium temperature, heat "
         "storage from the mean depth, Penman-Monteith for open water; Sweers (1976) wind function"
     ),
-    roles=(
-        "tmax",
-        "tmin",
-        "tmean",
-        "rh",
-        "rh_max",
-        "rh_min",
-        "dewpoint",
-        "wind",
-        "solar",
-        "sunshine",
-    ),  # fmt: skip
+    roles=COMBINATION_ROLES,  # the weather of the combination methods
     needs=("energy", "wind", "lake_geometry"),
     compute=_equilibrium,
     preference=1,

@@ -41,6 +41,7 @@ from __future__ import annotations
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from ..units import SECONDS_PER_DAY
 from . import radiation as rad
 
 __all__ = [
@@ -66,7 +67,6 @@ WATER_ROUGHNESS_M = 2e-4  # m, roughness length of open water (Brutsaert 1982; f
 LAND_ROUGHNESS_M = 0.03  # m, open flat terrain with grass, WMO class "open" (from memory)
 BLENDING_HEIGHT_M = 60.0  # m, where land and lake share one wind (common practice, no source)
 SPECIFIC_HEAT_AIR = 1.013e-3  # MJ kg-1 K-1 (FAO-56 p. 26)
-_SECONDS_PER_DAY = 86400.0  # s d-1
 
 
 def _arr(x: ArrayLike) -> NDArray[np.float64]:
@@ -273,7 +273,7 @@ def transfer_coefficient(
         raise ValueError("give a wind function, or the 2 m wind over water and the air density")
     u = np.maximum(_arr(wind_2m_water_ms), 0.1)  # m/s: calm is never quite calm
     r_a = np.log(2.0 / water_roughness_m) ** 2 / (VON_KARMAN**2 * u)  # s m-1
-    return _arr(air_density_kg_m3) * SPECIFIC_HEAT_AIR * _SECONDS_PER_DAY / r_a
+    return _arr(air_density_kg_m3) * SPECIFIC_HEAT_AIR * SECONDS_PER_DAY / r_a
 
 
 def direct_beam_albedo(cos_zenith: ArrayLike) -> NDArray[np.float64]:

@@ -149,7 +149,7 @@ def shift_sentences(shifts: list[dict[str, Any]], first_day: str) -> list[str]:
             out.append(
                 f"This residual includes a gauge datum shift of {s['step_m']:+.3f} m {seen} on "
                 f"{s['day']} and not accepted in the site file, {status}: its storage jump alone "
-                f"is {s['volume_m3'] / 1e3:+,.1f} thousand m³ of the residual, and it biases the "
+                f"is {'+' if s['volume_m3'] > 0 else ''}{number(s['volume_m3'] / 1e3, 4)} thousand m³ of the residual, and it biases the "
                 f"outflow of every later day.{accept}"
             )
         else:
@@ -384,14 +384,14 @@ def graded_sentence(numbers: dict[str, Any], days: int) -> str:
     text = (
         f"With the {numbers['days_with_estimate']} days that have an estimated term filled in "
         f"(of {days}; {numbers['days_missing']} still missing), the residual is "
-        f"{numbers['residual_infilled_m3'] / 1e3:,.1f} thousand m³"
+        f"{number(numbers['residual_infilled_m3'] / 1e3, 4)} thousand m³"
         if numbers.get("residual_infilled_m3") is not None
         else ""
     )
     if text and numbers.get("inflow_infilled_m3") is not None:
         share = numbers.get("inflow_estimated_share") or 0.0
         text += (
-            f" and gauged inflow {numbers['inflow_infilled_m3'] / 1e3:,.1f} thousand m³, "
+            f" and gauged inflow {number(numbers['inflow_infilled_m3'] / 1e3, 4)} thousand m³, "
             f"{100 * share:.1f} % of it estimated"
         )
     return text + "; the totals above are measured-only." if text else ""
