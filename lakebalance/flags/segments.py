@@ -217,7 +217,7 @@ def segment_flags(
 
     * the aftermath of a datum shift when it starts within ``spike_days + 1`` days of one (a
       lone stage step whose storage jump the residual mirrors is taken as a new datum shift
-      first), or when it follows such an aftermath with the same sign: it becomes evidence of
+      first, except at the start of the record's first segment, where nothing changed), or when it follows such an aftermath with the same sign: it becomes evidence of
       the shift;
     * a run when both of its ends are change points (its ends then dated by
       :func:`~lakebalance.flags.date_run`), else a level shift.
@@ -244,8 +244,9 @@ def segment_flags(
         change = mean - span_mean(seg.level_m3, a, b)
         sign = float(np.sign(change))
         in_chain = chain is not None and sign == chain[0]
-        # a smaller step of the gauge zero, seen mainly by its effect on the outflow?
-        j = None if in_chain else mirrored_stage_step(ctx, a)
+        # a smaller step of the gauge zero, seen mainly by its effect on the outflow? Only where
+        # the residual changed: the first segment starts with the record, not at a change
+        j = None if in_chain or seg_i == 0 else mirrored_stage_step(ctx, a)
         if j is not None and not any(abs(j - d) <= near for d in datum_starts):
             flags.append(level_change_shift(ctx, j))
             datum_starts.append(j)
